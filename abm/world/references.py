@@ -1,0 +1,146 @@
+"""Checks that need the whole world: names referenced across sections, route order, coverage.
+
+Each check raises :class:`ReferenceProblem` with the key path of the offending
+value so the loader can report ``file: key.path: what was expected``.
+"""
+
+from __future__ import annotations
+
+from collections.abc import Iterable
+
+from .schema import DEFAULT_KEY, World
+
+
+class ReferenceProblem(ValueError):
+    """A value that names something the world does not define, or breaks a whole-world rule."""
+
+    def __init__(self, path: str, message: str) -> None:
+        super().__init__(message)
+        self.path = path
+        self.message = message
+
+
+def hours_of(span: tuple[int, int]) -> list[int]:
+    """Hours covered by a [start, end) span on a 24-hour clock; end < start wraps past midnight."""
+    start, end = span
+    if start < end:
+        return list(range(start, end))
+    return list(range(start, 24)) + list(range(0, end))
+
+
+def _require(name: str, known: Iterable[str], path: str, what: str) -> None:
+    known = list(known)
+    if name not in known:
+        raise ReferenceProblem(path, f"'{name}' is not a defined {what} (defined: {', '.join(known)})")
+
+
+def _unique(names: list[str], path: str, what: str) -> None:
+    seen: set[str] = set()
+    for i, name in enumerate(names):
+        if name in seen:
+            raise ReferenceProblem(f"{path}[{i}].name", f"{what} '{name}' is defined twice")
+        seen.add(name)
+
+
+def check_references(world: World) -> None:
+    """Raise ReferenceProblem for the first cross-section rule the world breaks."""
+    _unique(world.class_names, "vehicle_classes", "vehicle class")
+    _unique(world.method_names, "methods", "check method")
+    _unique(world.station_names, "stations", "station")
+    _unique(world.point_names, "boarding_points", "boarding point")
+    _unique([t.name for t in world.roster.teams], "roster.teams", "team")
+    _check_bands(world)
+    classes, bands = world.class_names, world.band_names
+
+    for i, method in enumerate(world.methods):
+        for key in method.detection:
+            if key != DEFAULT_KEY:
+                _require(key, classes, f"methods[{i}].detection.{key}", "vehicle class")
+        missing = [c for c in classes if c not in method.detection]
+        if missing and DEFAULT_KEY not in method.detection:
+            raise ReferenceProblem(
+                f"methods[{i}].detection",
+                f"no detection chance for class '{missing[0]}': give it or a 'default'",
+            )
+
+    names = world.station_names
+    for i, station in enumerate(world.stations):
+        path = f"stations[{i}]"
+        _require(station.method, world.method_names, f"{path}.method", "check method")
+        sel = station.selection
+        for key in sel.fraction_by_band:
+            _require(key, bands, f"{path}.selection.fraction_by_band.{key}", "time band")
+        for key in sel.class_factor:
+            _require(key, classes, f"{path}.selection.class_factor.{key}", "vehicle class")
+        if sel.fallback_method is not None:
+            _require(sel.fallback_method, world.method_names, f"{path}.selection.fallback_method", "check method")
+        if station.refer_to is not None:
+            _require(station.refer_to, names, f"{path}.refer_to", "station")
+            target = names.index(station.refer_to)
+            if world.stations[target].role != "secondary":
+                raise ReferenceProblem(f"{path}.refer_to", f"'{station.refer_to}' must have role: secondary")
+            if target <= i:
+                raise ReferenceProblem(
+                    f"{path}.refer_to", f"'{station.refer_to}' must lie downstream of '{station.name}' on the route"
+                )
+        if station.role == "secondary" and station.refer_to is not None:
+            raise ReferenceProblem(f"{path}.refer_to", "a secondary station cannot refer vehicles on")
+    if world.stations[0].role != "primary":
+        raise ReferenceProblem("stations[0].role", "the first station on the route must be primary")
+    for i, station in enumerate(world.stations):
+        if station.role == "secondary" and not any(s.refer_to == station.name for s in world.stations):
+            raise ReferenceProblem(f"stations[{i}].name", f"secondary station '{station.name}' receives no referrals")
+
+    primaries = [s.name for s in world.stations if s.role == "primary"]
+    for i, point in enumerate(world.boarding_points):
+        path = f"boarding_points[{i}]"
+        if point.before_station != "departure":
+            _require(point.before_station, primaries + ["departure"], f"{path}.before_station", "primary station")
+        for key in point.stops:
+            _require(key, classes, f"{path}.stops.{key}", "vehicle class")
+        for key in point.interdiction:
+            if key != DEFAULT_KEY:
+                _require(key, bands, f"{path}.interdiction.{key}", "time band")
+
+    for i, team in enumerate(world.roster.teams):
+        for key in team.lanes:
+            _require(key, names, f"roster.teams[{i}].lanes.{key}", "station")
+        for key in team.patrols:
+            _require(key, world.point_names, f"roster.teams[{i}].patrols.{key}", "boarding point")
+    _check_lanes_fit(world)
+
+    static = world.adversary.static
+    for key in static.point_shares:
+        _require(key, world.point_names, f"adversary.static.point_shares.{key}", "boarding point")
+    for key in static.band_shares:
+        _require(key, bands, f"adversary.static.band_shares.{key}", "time band")
+    for key in static.class_shares:
+        _require(key, classes, f"adversary.static.class_shares.{key}", "vehicle class")
+
+
+def _check_bands(world: World) -> None:
+    owner: dict[int, str] = {}
+    for name, span in world.time_bands.items():
+        if span[0] == span[1]:
+            raise ReferenceProblem(f"time_bands.{name}", "a band needs start hour != end hour")
+        for hour in hours_of(span):
+            if hour in owner:
+                raise ReferenceProblem(f"time_bands.{name}", f"hour {hour} is already in band '{owner[hour]}'")
+            owner[hour] = name
+    missing = sorted(set(range(24)) - set(owner))
+    if missing:
+        raise ReferenceProblem("time_bands", f"every hour must be in one band; hour {missing[0]} is in none")
+
+
+def _check_lanes_fit(world: World) -> None:
+    """Staffed lanes never exceed a station's physical lanes in any hour."""
+    for s_index, station in enumerate(world.stations):
+        for hour in range(24):
+            staffed = sum(
+                team.lanes.get(station.name, 0) for team in world.roster.teams if hour in hours_of(team.hours)
+            )
+            if staffed > station.lanes:
+                raise ReferenceProblem(
+                    f"stations[{s_index}].lanes",
+                    f"the roster staffs {staffed} lanes at hour {hour} but the station has {station.lanes}",
+                )

@@ -1,0 +1,283 @@
+"""The typed schema of a world file.
+
+A world describes one fictional freight crossing: vehicle classes, traffic,
+boarding points, check methods, stations in route order, departures, the
+inspection roster and the population of would-be crossers. Every model forbids
+unknown keys so a misspelt key is an error, not a silently ignored default.
+Cross-references between sections are checked in :mod:`abm.world.references`.
+"""
+
+from __future__ import annotations
+
+from typing import Annotated, Literal
+
+from pydantic import BaseModel, ConfigDict, Field, field_validator, model_validator
+
+Probability = Annotated[float, Field(ge=0.0, le=1.0)]
+NonNegative = Annotated[float, Field(ge=0.0)]
+Positive = Annotated[float, Field(gt=0.0)]
+Count = Annotated[int, Field(ge=0)]
+Hour = Annotated[int, Field(ge=0, le=24)]
+Name = Annotated[str, Field(min_length=1, max_length=80, pattern=r"^[A-Za-z0-9_\-]+$")]
+
+SHARE_TOLERANCE = 1e-6
+DEFAULT_KEY = "default"
+
+
+class Strict(BaseModel):
+    """Base for every section: unknown keys are errors, values are not coerced loosely."""
+
+    model_config = ConfigDict(extra="forbid", frozen=True, strict=False)
+
+
+def _check_shares(values: dict[str, float], what: str) -> dict[str, float]:
+    total = sum(values.values())
+    if values and abs(total - 1.0) > SHARE_TOLERANCE:
+        raise ValueError(f"{what} must sum to 1 (within 1e-6), got {total:.6g}")
+    return values
+
+
+class VehicleClass(Strict):
+    """A kind of vehicle: its share of traffic and how many people can hide in one."""
+
+    name: Name
+    share: Probability
+    capacity: Count = Field(description="people who can hide in one vehicle")
+    risk_weight: Positive = Field(1.0, description="relative risk score used by targeted selection")
+
+
+class Traffic(Strict):
+    """Vehicle arrivals: a non-homogeneous Poisson stream by hour and weekday."""
+
+    vehicles_per_day: NonNegative
+    hourly_profile: list[NonNegative] = Field(min_length=24, max_length=24)
+    weekday_factors: list[NonNegative] = Field(default=[1.0] * 7, min_length=7, max_length=7)
+
+    @field_validator("hourly_profile")
+    @classmethod
+    def _profile_not_all_zero(cls, v: list[float]) -> list[float]:
+        if sum(v) <= 0:
+            raise ValueError("hourly_profile needs at least one positive hour")
+        return v
+
+
+class ServiceTime(Strict):
+    """Distribution of a check's duration in minutes."""
+
+    dist: Literal["exponential", "deterministic", "lognormal", "gamma", "uniform"]
+    mean: Positive
+    cv: NonNegative = Field(0.0, description="coefficient of variation (lognormal, gamma)")
+    spread: NonNegative = Field(0.0, description="half-width as a share of the mean (uniform)")
+
+    @model_validator(mode="after")
+    def _shape_given(self) -> "ServiceTime":
+        if self.dist in ("lognormal", "gamma") and self.cv <= 0:
+            raise ValueError(f"a {self.dist} service time needs cv > 0")
+        if self.dist == "uniform" and not 0 < self.spread <= 1:
+            raise ValueError("a uniform service time needs 0 < spread <= 1")
+        return self
+
+
+class CheckMethod(Strict):
+    """A way of checking a vehicle: imaging, motion sensing, gas probe, dog team, manual search."""
+
+    name: Name
+    service: ServiceTime
+    detection: dict[str, Probability] = Field(
+        description="chance that a check finds people hidden in a vehicle, per class or 'default'"
+    )
+    false_alarm: Probability = Field(0.0, description="chance of an alarm on a vehicle when nobody is found")
+    outdoor: bool = False
+
+
+class Selection(Strict):
+    """Which arriving vehicles a station checks."""
+
+    rule: Literal["all", "fraction", "targeted", "queue_aware"] = "all"
+    fraction: Probability = 1.0
+    fraction_by_band: dict[str, Probability] = Field(default_factory=dict)
+    class_factor: dict[str, NonNegative] = Field(default_factory=dict)
+    threshold: float = Field(0.0, description="targeted: check when log(risk_weight) + noise exceeds this")
+    noise_sd: NonNegative = Field(1.0, description="targeted: spread of the risk-score noise")
+    queue_threshold: Count = Field(0, description="queue_aware: queue length at which the station is busy")
+    busy_fraction: Probability = Field(1.0, description="queue_aware: selection share while busy")
+    fallback_method: Name | None = Field(None, description="queue_aware: faster method used while busy")
+
+    @model_validator(mode="after")
+    def _rule_has_its_keys(self) -> "Selection":
+        if self.rule == "queue_aware" and self.queue_threshold < 1:
+            raise ValueError("a queue_aware selection needs queue_threshold >= 1")
+        return self
+
+
+class Station(Strict):
+    """A place on the route where vehicles may be checked."""
+
+    name: Name
+    role: Literal["primary", "secondary"] = "primary"
+    method: Name
+    lanes: Count = Field(description="physical lanes or bays: the most servers the roster can use")
+    travel_minutes: NonNegative = Field(0.0, description="driving time from the previous point on the route")
+    selection: Selection = Field(default_factory=Selection)
+    refer_to: Name | None = Field(None, description="secondary station that searches vehicles after an alarm")
+
+
+class Stop(Strict):
+    """How a vehicle class uses a boarding point."""
+
+    share: Probability
+    dwell_minutes: NonNegative = 0.0
+
+
+class BoardingPoint(Strict):
+    """A place where a person can get onto a vehicle."""
+
+    name: Name
+    before_station: Name = Field(description="first station downstream, or 'departure' after every station")
+    lead_minutes: NonNegative = Field(0.0, description="minutes before the vehicle reaches that station")
+    stops: dict[str, Stop]
+    interdiction: dict[str, Probability] = Field(
+        default_factory=dict, description="chance an attempt is stopped here, per time band or 'default'"
+    )
+    hazard: Probability = Field(0.0, description="how dangerous boarding here is for the person (0-1)")
+    effort: NonNegative = Field(0.0, description="cost of reaching this point, in utility units")
+
+
+class Sailing(Strict):
+    """One daily departure."""
+
+    time: str = Field(pattern=r"^([01]\d|2[0-3]):[0-5]\d$", description="HH:MM")
+    capacity: Count
+
+    @property
+    def minute(self) -> int:
+        hours, minutes = self.time.split(":")
+        return int(hours) * 60 + int(minutes)
+
+
+class Departures(Strict):
+    """Sailings (or departure slots) with a check-in cut-off."""
+
+    sailings: list[Sailing] = Field(min_length=1)
+    cutoff_minutes: NonNegative = 30.0
+    planned_minutes: NonNegative = Field(
+        60.0, description="expected time from arrival to check-in, used to book a sailing"
+    )
+
+    @field_validator("sailings")
+    @classmethod
+    def _sorted_unique(cls, v: list[Sailing]) -> list[Sailing]:
+        minutes = [s.minute for s in v]
+        if minutes != sorted(set(minutes)):
+            raise ValueError("sailings must be in time order with no repeated time")
+        return v
+
+
+class Team(Strict):
+    """An inspection team on a daily shift: lanes it staffs and points it patrols."""
+
+    name: Name
+    hours: tuple[Hour, Hour] = Field(description="[start, end) hour; end < start wraps past midnight")
+    lanes: dict[str, Count] = Field(default_factory=dict)
+    patrols: dict[str, Probability] = Field(
+        default_factory=dict, description="interdiction chance added at a boarding point while on duty"
+    )
+    flexible: bool = Field(False, description="command may move this team's capacity")
+
+    @model_validator(mode="after")
+    def _shift_not_empty(self) -> "Team":
+        if self.hours[0] == self.hours[1]:
+            raise ValueError("a shift needs start hour != end hour")
+        return self
+
+
+class Roster(Strict):
+    """The inspection teams and how command allocates them."""
+
+    teams: list[Team] = Field(min_length=1)
+    command: Literal["fixed"] = "fixed"
+
+
+class StaticChoice(Strict):
+    """Fixed option probabilities, factorised as point x band x class shares."""
+
+    point_shares: dict[str, Probability]
+    band_shares: dict[str, Probability]
+    class_shares: dict[str, Probability]
+
+    @field_validator("point_shares", "band_shares", "class_shares")
+    @classmethod
+    def _sum_to_one(cls, v: dict[str, float], info) -> dict[str, float]:
+        return _check_shares(v, info.field_name)
+
+
+class Adversary(Strict):
+    """The population of would-be crossers."""
+
+    arrivals_per_day: NonNegative = Field(description="new groups arriving in the area each day")
+    group_size: dict[int, Probability] = Field(default_factory=lambda: {1: 1.0})
+    attempt_chance: Probability = Field(description="daily chance a waiting group attempts")
+    return_delay_days: Count = 1
+    give_up: Probability = Field(0.0, description="chance of giving up after an encounter")
+    move_elsewhere: Probability = Field(0.0, description="chance of leaving for a route outside the model")
+    identification: Probability = Field(0.0, description="chance a person is identified at an encounter")
+    behaviour: Literal["static"] = "static"
+    static: StaticChoice
+
+    @field_validator("group_size")
+    @classmethod
+    def _sizes(cls, v: dict[int, float]) -> dict[int, float]:
+        if not v:
+            raise ValueError("group_size needs at least one size")
+        if min(v) < 1:
+            raise ValueError("group sizes must be at least 1")
+        return _check_shares(v, "group_size")
+
+    @model_validator(mode="after")
+    def _exits(self) -> "Adversary":
+        if self.give_up + self.move_elsewhere > 1 + SHARE_TOLERANCE:
+            raise ValueError("give_up + move_elsewhere must not exceed 1")
+        return self
+
+
+class World(Strict):
+    """A whole crossing."""
+
+    name: str = Field(min_length=1, max_length=200)
+    note: str = ""
+    time_bands: dict[str, tuple[Hour, Hour]]
+    vehicle_classes: list[VehicleClass] = Field(min_length=1)
+    traffic: Traffic
+    methods: list[CheckMethod] = Field(min_length=1)
+    stations: list[Station] = Field(min_length=1)
+    boarding_points: list[BoardingPoint] = Field(min_length=1)
+    departures: Departures | None = None
+    roster: Roster
+    adversary: Adversary
+
+    @field_validator("vehicle_classes")
+    @classmethod
+    def _class_shares(cls, v: list[VehicleClass]) -> list[VehicleClass]:
+        _check_shares({c.name: c.share for c in v}, "vehicle class shares")
+        return v
+
+    # Convenience look-ups used by the engine; the schema stays the single source.
+    @property
+    def class_names(self) -> list[str]:
+        return [c.name for c in self.vehicle_classes]
+
+    @property
+    def band_names(self) -> list[str]:
+        return list(self.time_bands)
+
+    @property
+    def point_names(self) -> list[str]:
+        return [p.name for p in self.boarding_points]
+
+    @property
+    def station_names(self) -> list[str]:
+        return [s.name for s in self.stations]
+
+    @property
+    def method_names(self) -> list[str]:
+        return [m.name for m in self.methods]

@@ -11,6 +11,7 @@ import argparse
 import os
 import sys
 from collections.abc import Callable, Sequence
+from pathlib import Path
 
 from .errors import InputError
 
@@ -34,6 +35,79 @@ def cmd_check(args: argparse.Namespace) -> int:
     return EXIT_OK
 
 
+REPO_WORLDS = Path(__file__).resolve().parent.parent / "worlds"
+DEMO_WORLD = REPO_WORLDS / "kestrel_quay" / "world.yaml"
+
+
+def _progress_bar(total: int, label: str):
+    """A progress bar on a terminal, nothing when output is not a terminal."""
+    from tqdm import tqdm
+
+    return tqdm(total=total, desc=label, unit="day", disable=not sys.stderr.isatty(), leave=False)
+
+
+def print_summary(summary: dict, title: str) -> None:
+    """A short readable table of a run's headline figures, each labelled with its record set."""
+    print(title)
+    sources = summary.get("sources", {})
+    for key, value in summary.items():
+        if key == "sources":
+            continue
+        shown = f"{value:,.3f}" if isinstance(value, float) else (f"{value:,}" if isinstance(value, int) else str(value))
+        print(f"  {key:<26}{shown:>14}  {sources.get(key, '')}")
+    print("  (truth = simulated ground truth; observed = what an agency would hold. Model estimates, not counts.)")
+
+
+def _run_world(world_path: Path, days: int, seed: int, out: Path, argv: list[str]) -> int:
+    from .experiment.single import run_to_directory
+    from .world import file_hash, load_world
+
+    world = load_world(world_path)
+    with _progress_bar(days, "days") as bar:
+        summary = run_to_directory(world, file_hash(world_path), days, seed, out, command=argv, progress=bar.update)
+    print_summary(summary, f"{world.name}: {days} days, seed {seed} -> {out}")
+    return EXIT_OK
+
+
+def cmd_run(args: argparse.Namespace) -> int:
+    """Simulate a world for some days and write a run directory."""
+    world = Path(args.world)
+    out = Path(args.out) if args.out else Path("outputs") / f"{world.parent.name or world.stem}-seed{args.seed}"
+    return _run_world(world, args.days, args.seed, out, ["undertow", *sys.argv[1:]])
+
+
+def cmd_demo(args: argparse.Namespace) -> int:
+    """Run the main job on the bundled demo world."""
+    if not DEMO_WORLD.exists():
+        raise InputError(f"{DEMO_WORLD}: the demo world is not here; run from a checkout of the project")
+    out = Path(args.out)
+    if out.exists():
+        import shutil
+
+        shutil.rmtree(out)  # the demo's own folder: a fresh demo replaces the last one
+    return _run_world(DEMO_WORLD, args.days, args.seed, out, ["undertow", "demo"])
+
+
+def _positive_int(text: str) -> int:
+    try:
+        value = int(text)
+    except ValueError:
+        raise argparse.ArgumentTypeError(f"expected a whole number, got '{text}'") from None
+    if value < 1:
+        raise argparse.ArgumentTypeError(f"expected a number of at least 1, got {value}")
+    return value
+
+
+def _seed(text: str) -> int:
+    try:
+        value = int(text)
+    except ValueError:
+        raise argparse.ArgumentTypeError(f"expected a whole-number seed, got '{text}'") from None
+    if value < 0:
+        raise argparse.ArgumentTypeError(f"expected a seed of 0 or more, got {value}")
+    return value
+
+
 def build_parser() -> argparse.ArgumentParser:
     """The argument parser with every sub-command."""
     parser = _Parser(prog="undertow", description=__doc__.splitlines()[0])
@@ -42,6 +116,19 @@ def build_parser() -> argparse.ArgumentParser:
     check = sub.add_parser("check", help="validate world files")
     check.add_argument("files", nargs="+", help="world YAML files")
     check.set_defaults(func=cmd_check)
+
+    run = sub.add_parser("run", help="simulate a world and write a run directory")
+    run.add_argument("world", help="world YAML file")
+    run.add_argument("--days", type=_positive_int, default=365, help="operating days (default 365)")
+    run.add_argument("--seed", type=_seed, default=0, help="root seed (default 0)")
+    run.add_argument("--out", help="run directory to create (default outputs/WORLD-seedS)")
+    run.set_defaults(func=cmd_run)
+
+    demo = sub.add_parser("demo", help="run the main job on the bundled demo world")
+    demo.add_argument("--days", type=_positive_int, default=365)
+    demo.add_argument("--seed", type=_seed, default=0)
+    demo.add_argument("--out", default="outputs/demo")
+    demo.set_defaults(func=cmd_demo)
     return parser
 
 

@@ -19,7 +19,13 @@ from pydantic import BaseModel, ValidationError
 
 from ..errors import InputError
 from .references import ReferenceProblem, check_references
-from .schema import World
+from .schema import CLOCK_PATTERN, NAME_PATTERN, World
+
+# What a pattern means, in words: a regular expression is no help to someone editing YAML.
+_PATTERN_WORDS = {
+    NAME_PATTERN: "expected a name of letters, digits, '_' or '-' (no spaces)",
+    CLOCK_PATTERN: "expected a clock time 'HH:MM' from '00:00' to '23:59'",
+}
 
 
 class WorldFileError(InputError):
@@ -34,17 +40,114 @@ class WorldFileError(InputError):
 
 
 class _UniqueKeyLoader(yaml.SafeLoader):
-    """SafeLoader that refuses a mapping with the same key twice."""
+    """SafeLoader used to compose the node tree; :func:`_check_nodes` vets it before construction."""
 
-    def construct_mapping(self, node: yaml.MappingNode, deep: bool = False) -> dict:
-        seen: set[Any] = set()
-        for key_node, _ in node.value:
-            key = self.construct_object(key_node, deep=deep)
-            if key in seen:
-                line = key_node.start_mark.line + 1
-                raise yaml.constructor.ConstructorError(None, None, f"key '{key}' appears twice (line {line})")
-            seen.add(key)
-        return super().construct_mapping(node, deep=deep)
+
+_MERGE_TAG = "tag:yaml.org,2002:merge"
+_STANDARD_PREFIX = "tag:yaml.org,2002:"
+
+
+class _NodeProblem(Exception):
+    """A problem found while walking the YAML node tree, with its key path."""
+
+    def __init__(self, path: str, message: str) -> None:
+        super().__init__(message)
+        self.path = path
+        self.message = message
+
+
+def _join(path: str, key: Any) -> str:
+    return f"{path}.{key}" if path else str(key)
+
+
+def _shown_tag(tag: str) -> str:
+    """A tag as the author wrote it: ``!!python/object/apply:os.system``, not its expanded URI."""
+    return "!!" + tag[len(_STANDARD_PREFIX) :] if tag.startswith(_STANDARD_PREFIX) else tag
+
+
+def _check_nodes(loader: _UniqueKeyLoader, root: yaml.Node) -> None:
+    """Refuse unknown tags, non-scalar or repeated keys and unreadable scalars, naming the key path.
+
+    Runs on the composed node tree, before anything is constructed, so a tag that
+    would build an object is refused without ever reaching a constructor. Each
+    node is visited once, so aliases (even recursive ones) cost nothing extra.
+    """
+    visited: set[int] = set()
+    stack: list[tuple[yaml.Node, str]] = [(root, "")]
+    while stack:  # iterative: a deeply nested file must not exhaust the Python stack
+        node, path = stack.pop()
+        if id(node) in visited:
+            continue
+        visited.add(id(node))
+        line = node.start_mark.line + 1
+        if node.tag not in loader.yaml_constructors:
+            raise _NodeProblem(
+                path, f"YAML tag {_shown_tag(node.tag)} is not allowed (line {line}): world files hold plain data only"
+            )
+        if isinstance(node, yaml.ScalarNode):
+            try:  # an explicit standard tag can still be unreadable, e.g. ``!!int ten``
+                loader.construct_object(node)
+            except Exception:
+                raise _NodeProblem(
+                    path, f"cannot read {node.value!r} as {_shown_tag(node.tag)} (line {line})"
+                ) from None
+        elif isinstance(node, yaml.SequenceNode):
+            stack.extend((child, f"{path}[{i}]") for i, child in enumerate(node.value))
+        elif isinstance(node, yaml.MappingNode):
+            first_line: dict[Any, int] = {}
+            for key_node, value_node in node.value:
+                if key_node.tag == _MERGE_TAG:  # ``<<: *anchor`` merges keys; it is not a key itself
+                    stack.append((value_node, path))
+                    continue
+                key_line = key_node.start_mark.line + 1
+                if not isinstance(key_node, yaml.ScalarNode):
+                    raise _NodeProblem(path, f"expected a plain name as a key, got a {key_node.id} (line {key_line})")
+                if key_node.tag not in loader.yaml_constructors:
+                    raise _NodeProblem(
+                        path,
+                        f"YAML tag {_shown_tag(key_node.tag)} is not allowed (line {key_line}): "
+                        "world files hold plain data only",
+                    )
+                try:
+                    key = loader.construct_object(key_node)
+                except Exception:
+                    raise _NodeProblem(
+                        path, f"cannot read the key {key_node.value!r} as {_shown_tag(key_node.tag)} (line {key_line})"
+                    ) from None
+                if key in first_line:
+                    raise _NodeProblem(
+                        _join(path, key),
+                        f"key '{key}' appears twice (lines {first_line[key]} and {key_line}); expected it once",
+                    )
+                first_line[key] = key_line
+                stack.append((value_node, _join(path, key)))
+
+
+def _yaml_problem(exc: yaml.YAMLError, text: str) -> str:
+    """One human line for a YAML syntax error."""
+    if isinstance(exc, yaml.reader.ReaderError):
+        where = text.count("\n", 0, exc.position) + 1
+        char = exc.character if isinstance(exc.character, int) else ord(exc.character[:1] or "\0")
+        return f"not valid YAML at line {where}: the control character U+{char:04X} is not allowed in a YAML text file"
+    mark = getattr(exc, "problem_mark", None)
+    line = f" at line {mark.line + 1}, column {mark.column + 1}" if mark else ""
+    problem = getattr(exc, "problem", None) or "unreadable"
+    context = getattr(exc, "context", None)
+    if context and problem.startswith("but "):  # e.g. "expected a single document in the stream, but found ..."
+        problem = f"{context}, {problem}"
+    return f"not valid YAML{line}: {problem}"
+
+
+def _kind(value: Any) -> str:
+    """What a value is, in words, for 'got ...' messages."""
+    if value is None:
+        return "nothing (null)"
+    if isinstance(value, dict):
+        return "a mapping"
+    if isinstance(value, list):
+        return "a list"
+    shown = repr(value)
+    return shown if len(shown) <= 40 else shown[:37] + "..."
 
 
 def read_yaml_mapping(path: str | Path) -> dict[str, Any]:
@@ -54,38 +157,78 @@ def read_yaml_mapping(path: str | Path) -> dict[str, Any]:
         text = path.read_text(encoding="utf-8")
     except FileNotFoundError:
         raise WorldFileError(path, "", "file not found") from None
-    except (OSError, UnicodeDecodeError) as exc:
-        raise WorldFileError(path, "", f"cannot read the file ({exc.__class__.__name__})") from None
+    except IsADirectoryError:
+        raise WorldFileError(path, "", "is a directory; expected a world YAML file") from None
+    except PermissionError:
+        raise WorldFileError(path, "", "permission denied; cannot read the file") from None
+    except UnicodeDecodeError as exc:
+        byte = exc.object[exc.start : exc.start + 1].hex()
+        raise WorldFileError(
+            path, "", f"not UTF-8 text (byte 0x{byte} at offset {exc.start}); expected a YAML text file"
+        ) from None
+    except OSError as exc:
+        raise WorldFileError(path, "", f"cannot read the file: {exc.strerror or exc.__class__.__name__}") from None
+    loader: _UniqueKeyLoader | None = None
     try:
-        data = yaml.load(text, Loader=_UniqueKeyLoader)  # noqa: S506 - a SafeLoader subclass
+        loader = _UniqueKeyLoader(text)  # the reader refuses control characters here, at construction
+        root = loader.get_single_node()
+        if root is not None:
+            _check_nodes(loader, root)
+        data = None if root is None else loader.construct_document(root)
+    except _NodeProblem as exc:
+        raise WorldFileError(path, exc.path, exc.message) from None
     except yaml.constructor.ConstructorError as exc:
-        problem = exc.problem or str(exc)
-        if "constructor for the tag" in problem:
-            tag = problem.split("tag", 1)[1].strip(" '")
-            problem = f"YAML tag {tag} is not allowed: world files hold plain data only"
         line = f" (line {exc.problem_mark.line + 1})" if exc.problem_mark else ""
-        raise WorldFileError(path, "", problem + line) from None
+        raise WorldFileError(path, "", f"{exc.problem or 'cannot build the data'}{line}") from None
     except yaml.YAMLError as exc:
-        mark = getattr(exc, "problem_mark", None)
-        line = f" at line {mark.line + 1}, column {mark.column + 1}" if mark else ""
-        problem = getattr(exc, "problem", None) or "unreadable"
-        raise WorldFileError(path, "", f"not valid YAML{line}: {problem}") from None
+        raise WorldFileError(path, "", _yaml_problem(exc, text)) from None
+    except RecursionError:
+        raise WorldFileError(path, "", "not valid YAML: nested too deeply for a world file") from None
+    finally:
+        if loader is not None:
+            loader.dispose()
     if data is None:
         raise WorldFileError(path, "", "the file is empty; expected a mapping of sections")
     if not isinstance(data, dict):
-        raise WorldFileError(path, "", f"expected a mapping of sections at the top, got {type(data).__name__}")
+        raise WorldFileError(path, "", f"expected a mapping of sections at the top, got {_kind(data)}")
     return data
 
 
-def format_loc(loc: tuple[Any, ...]) -> str:
-    """Turn a pydantic location into a key path like ``stations[2].selection.fraction``."""
+def format_loc(loc: tuple[Any, ...], data: Any = None) -> str:
+    """Turn a pydantic location into a key path like ``stations[2].selection.fraction``.
+
+    Given the validated ``data``, integer mapping keys (``group_size: {1: ...}``)
+    are written ``group_size.1`` rather than mistaken for list indices.
+    """
     out = ""
+    current = data
     for item in loc:
-        if isinstance(item, int):
+        if item == "[key]":  # pydantic's marker for "the key itself", not a key called "[key]"
+            continue
+        if isinstance(current, dict):
+            out += ("." if out else "") + str(item)
+        elif isinstance(item, int):
             out += f"[{item}]"
         else:
             out += ("." if out else "") + str(item)
+        if isinstance(current, dict):
+            current = current.get(item)
+        elif isinstance(current, list) and isinstance(item, int) and 0 <= item < len(current):
+            current = current[item]
+        else:
+            current = None
     return out
+
+
+def _value_at(data: Any, loc: tuple[Any, ...]) -> Any:
+    for item in loc:
+        if isinstance(data, dict):
+            data = data.get(item)
+        elif isinstance(data, list) and isinstance(item, int) and 0 <= item < len(data):
+            data = data[item]
+        else:
+            return None
+    return data
 
 
 def _unwrap(annotation: Any) -> list[Any]:
@@ -119,9 +262,9 @@ def allowed_keys(model: type[BaseModel], loc: tuple[Any, ...]) -> list[str]:
     return []
 
 
-def _describe(error: dict[str, Any], model: type[BaseModel]) -> tuple[str, str]:
+def _describe(error: dict[str, Any], model: type[BaseModel], data: Any = None) -> tuple[str, str]:
     loc = tuple(error["loc"])
-    path = format_loc(loc)
+    path = format_loc(loc, data)
     kind = error["type"]
     given = error.get("input")
     if kind == "extra_forbidden":
@@ -131,15 +274,31 @@ def _describe(error: dict[str, Any], model: type[BaseModel]) -> tuple[str, str]:
         hint = f"; did you mean '{close[0]}'?" if close else (f"; valid keys: {', '.join(valid)}" if valid else "")
         return path, f"unknown key '{key}'{hint}"
     if kind == "missing":
+        if loc and isinstance(loc[-1], int) and isinstance(_value_at(data, loc[:-1]), list):
+            # A short list or [start, end] pair, not a missing key.
+            return format_loc(loc[:-1], data), f"too few values (no item [{loc[-1]}]), got {_value_at(data, loc[:-1])}"
         return path, "required key is missing"
     message = error["msg"]
+    pattern = (error.get("ctx") or {}).get("pattern")
+    if kind == "string_pattern_mismatch" and pattern in _PATTERN_WORDS:
+        message = _PATTERN_WORDS[pattern]
     if message.startswith("Value error, "):
         message = message[len("Value error, ") :]
-    if given is not None and not isinstance(given, (dict, list)):
-        shown = repr(given) if len(repr(given)) <= 40 else repr(given)[:37] + "..."
-        message = f"{message}, got {shown}"
-    if kind == "string_type" and isinstance(given, int) and path.endswith(".time"):
-        message += " (quote clock times, e.g. '06:30')"
+    if loc and loc[-1] == "[key]":
+        message = message.replace("Input should", "this key should", 1)
+    if kind == "string_type" and isinstance(given, int) and not isinstance(given, bool) and path.endswith(".time"):
+        # YAML 1.1 reads an unquoted 12:30 as the sexagesimal number 750.
+        hours, minutes = divmod(given, 60)
+        return path, (
+            f"expected a quoted clock time like '{hours:02d}:{minutes:02d}', got the number {given} "
+            f"(YAML reads an unquoted {hours}:{minutes:02d} as a number)"
+        )
+    # Say what was given: our own rule messages already do, and a whole section judged by a rule is noise.
+    if kind == "value_error":
+        if " got " not in message and not isinstance(given, (dict, list)):
+            message = f"{message}, got {_kind(given)}"
+    elif not isinstance(given, (dict, list)) or kind.endswith("_type"):
+        message = f"{message}, got {_kind(given)}"
     return path, message
 
 
@@ -148,7 +307,15 @@ def parse_world(data: dict[str, Any], source: str | Path = "<world>") -> World:
     try:
         world = World.model_validate(data)
     except ValidationError as exc:
-        path, message = _describe(exc.errors()[0], World)
+        errors = exc.errors()
+        error = errors[0]
+        if error["type"] == "missing":
+            # A misspelt key shows up as "missing" plus an unknown sibling: the unknown key is the real news.
+            parent = tuple(error["loc"][:-1])
+            error = next(
+                (e for e in errors if e["type"] == "extra_forbidden" and tuple(e["loc"][:-1]) == parent), error
+            )
+        path, message = _describe(error, World, data)
         raise WorldFileError(source, path, message) from None
     try:
         check_references(world)

@@ -6,6 +6,7 @@ value so the loader can report ``file: key.path: what was expected``.
 
 from __future__ import annotations
 
+import difflib
 from collections.abc import Iterable
 
 from .schema import DEFAULT_KEY, World
@@ -31,7 +32,10 @@ def hours_of(span: tuple[int, int]) -> list[int]:
 def _require(name: str, known: Iterable[str], path: str, what: str) -> None:
     known = list(known)
     if name not in known:
-        raise ReferenceProblem(path, f"'{name}' is not a defined {what} (defined: {', '.join(known)})")
+        # A near-miss is usually a typo: name the likely intended entry first.
+        close = difflib.get_close_matches(name, known, n=1, cutoff=0.6)
+        hint = f"; did you mean '{close[0]}'?" if close else ""
+        raise ReferenceProblem(path, f"'{name}' is not a defined {what}{hint} (defined: {', '.join(known)})")
 
 
 def _unique(names: list[str], path: str, what: str) -> None:
@@ -78,7 +82,11 @@ def check_references(world: World) -> None:
             _require(station.refer_to, names, f"{path}.refer_to", "station")
             target = names.index(station.refer_to)
             if world.stations[target].role != "secondary":
-                raise ReferenceProblem(f"{path}.refer_to", f"'{station.refer_to}' must have role: secondary")
+                raise ReferenceProblem(
+                    f"{path}.refer_to",
+                    f"expected a secondary station, but '{station.refer_to}' has role "
+                    f"{world.stations[target].role}",
+                )
             if target <= i:
                 raise ReferenceProblem(
                     f"{path}.refer_to", f"'{station.refer_to}' must lie downstream of '{station.name}' on the route"
@@ -95,6 +103,12 @@ def check_references(world: World) -> None:
     for i, point in enumerate(world.boarding_points):
         path = f"boarding_points[{i}]"
         if point.before_station != "departure":
+            if point.before_station in names and point.before_station not in primaries:
+                # Defined, but a secondary station is not on every vehicle's route.
+                raise ReferenceProblem(
+                    f"{path}.before_station",
+                    f"expected a primary station or 'departure', but '{point.before_station}' is secondary",
+                )
             _require(point.before_station, primaries + ["departure"], f"{path}.before_station", "primary station")
         for key in point.stops:
             _require(key, classes, f"{path}.stops.{key}", "vehicle class")
@@ -136,11 +150,12 @@ def _check_lanes_fit(world: World) -> None:
     """Staffed lanes never exceed a station's physical lanes in any hour."""
     for s_index, station in enumerate(world.stations):
         for hour in range(24):
-            staffed = sum(
-                team.lanes.get(station.name, 0) for team in world.roster.teams if hour in hours_of(team.hours)
-            )
+            on_duty = [t for t in world.roster.teams if hour in hours_of(t.hours) and t.lanes.get(station.name, 0)]
+            staffed = sum(team.lanes[station.name] for team in on_duty)
             if staffed > station.lanes:
+                teams = ", ".join(t.name for t in on_duty)
                 raise ReferenceProblem(
                     f"stations[{s_index}].lanes",
-                    f"the roster staffs {staffed} lanes at hour {hour} but the station has {station.lanes}",
+                    f"expected at least as many lanes as the roster staffs: at hour {hour} the roster "
+                    f"({teams}) staffs {staffed} lanes of '{station.name}' but the station has {station.lanes}",
                 )

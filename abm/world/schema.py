@@ -9,16 +9,29 @@ Cross-references between sections are checked in :mod:`abm.world.references`.
 
 from __future__ import annotations
 
-from typing import Annotated, Literal
+from typing import Annotated, Any, Literal
 
-from pydantic import BaseModel, ConfigDict, Field, field_validator, model_validator
+from pydantic import BaseModel, BeforeValidator, ConfigDict, Field, field_validator, model_validator
 
-Probability = Annotated[float, Field(ge=0.0, le=1.0)]
-NonNegative = Annotated[float, Field(ge=0.0)]
-Positive = Annotated[float, Field(gt=0.0)]
-Count = Annotated[int, Field(ge=0)]
-Hour = Annotated[int, Field(ge=0, le=24)]
-Name = Annotated[str, Field(min_length=1, max_length=80, pattern=r"^[A-Za-z0-9_\-]+$")]
+
+def _number_only(value: Any) -> Any:
+    """Refuse true/false and text where a number belongs (lax mode would read ``true`` as 1)."""
+    if isinstance(value, bool):
+        raise ValueError(f"expected a number, got {str(value).lower()}")
+    if isinstance(value, str):
+        raise ValueError(f"expected a number, got the text {value!r}")
+    return value
+
+
+_Number = BeforeValidator(_number_only)
+Probability = Annotated[float, Field(ge=0.0, le=1.0), _Number]
+NonNegative = Annotated[float, Field(ge=0.0), _Number]
+Positive = Annotated[float, Field(gt=0.0), _Number]
+Count = Annotated[int, Field(ge=0), _Number]
+Hour = Annotated[int, Field(ge=0, le=24), _Number]
+NAME_PATTERN = r"^[A-Za-z0-9_\-]+$"
+CLOCK_PATTERN = r"^([01]\d|2[0-3]):[0-5]\d$"
+Name = Annotated[str, Field(min_length=1, max_length=80, pattern=NAME_PATTERN)]
 
 SHARE_TOLERANCE = 1e-6
 DEFAULT_KEY = "default"
@@ -27,7 +40,9 @@ DEFAULT_KEY = "default"
 class Strict(BaseModel):
     """Base for every section: unknown keys are errors, values are not coerced loosely."""
 
-    model_config = ConfigDict(extra="forbid", frozen=True, strict=False)
+    # Not strict=True: YAML gives lists where tuples are declared. Infinity and NaN are refused
+    # because no count, time or chance in a world can be infinite.
+    model_config = ConfigDict(extra="forbid", frozen=True, strict=False, allow_inf_nan=False)
 
 
 def _check_shares(values: dict[str, float], what: str) -> dict[str, float]:
@@ -146,7 +161,7 @@ class BoardingPoint(Strict):
 class Sailing(Strict):
     """One daily departure."""
 
-    time: str = Field(pattern=r"^([01]\d|2[0-3]):[0-5]\d$", description="HH:MM")
+    time: str = Field(pattern=CLOCK_PATTERN, description="HH:MM")
     capacity: Count
 
     @property

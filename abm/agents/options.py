@@ -1,0 +1,38 @@
+"""The option space of a concealment attempt: boarding point x time band x vehicle class."""
+
+from __future__ import annotations
+
+from dataclasses import dataclass
+
+import numpy as np
+
+from ..port.layout import Layout
+
+
+@dataclass(frozen=True)
+class OptionSpace:
+    """Flat indexing of every (point, band, class) option, with per-option attributes."""
+
+    n_points: int
+    n_bands: int
+    n_classes: int
+    hazard: np.ndarray  # (K,) hazard of the option's boarding point
+    effort: np.ndarray  # (K,) effort of reaching the point
+
+    @classmethod
+    def from_layout(cls, layout: Layout) -> "OptionSpace":
+        n_p, n_b, n_c = layout.point_hazard.shape[0], int(layout.band_of_hour.max()) + 1, layout.n_classes
+        grid = np.indices((n_p, n_b, n_c)).reshape(3, -1)
+        return cls(n_p, n_b, n_c, layout.point_hazard[grid[0]], layout.point_effort[grid[0]])
+
+    @property
+    def size(self) -> int:
+        return self.n_points * self.n_bands * self.n_classes
+
+    def unravel(self, option: np.ndarray | int) -> tuple[np.ndarray, np.ndarray, np.ndarray]:
+        """(point, band, class) indices of flat option indices."""
+        return np.unravel_index(option, (self.n_points, self.n_bands, self.n_classes))
+
+    def index(self, point: int, band: int, vehicle_class: int) -> int:
+        """Flat index of one option."""
+        return int(np.ravel_multi_index((point, band, vehicle_class), (self.n_points, self.n_bands, self.n_classes)))

@@ -1,0 +1,1 @@
+"""Experiments: single runs, designs, seeds, executors and the run store."""

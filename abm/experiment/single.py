@@ -1,0 +1,151 @@
+"""One run: a world, a number of days and a seed, written to a run directory.
+
+Layout of a run directory::
+
+    manifest.json     world hash, seed, days, package versions, command
+    truth/*.parquet   simulated truth (attempts, arrivals, exits)
+    observed/*.parquet  what an agency holds (see abm.observed)
+    daily.parquet     daily KPIs (truth_ columns from truth)
+    summary.json      the run's headline figures, each labelled truth or observed
+
+The directory is written under a temporary name and renamed when complete, so a
+run directory that exists is always whole.
+"""
+
+from __future__ import annotations
+
+import shutil
+import sys
+from collections.abc import Callable
+from importlib import metadata
+from pathlib import Path
+from typing import Any
+
+import numpy as np
+
+from ..errors import InputError
+from ..model import PortModel
+from ..records import RecordBook, write_json, write_records
+from ..world.schema import World
+
+# Which record set each summary figure comes from.
+SUMMARY_SOURCES: dict[str, str] = {
+    "attempts": "truth",
+    "interdictions": "observed",
+    "detections": "observed",
+    "crossings": "truth",
+    "no_vehicle": "truth",
+    "displaced_out": "truth",
+    "gave_up": "truth",
+    "arrived": "truth",
+    "in_system_at_end": "truth",
+    "vehicles": "observed",
+    "checks": "observed",
+    "alarms": "observed",
+    "false_alarms": "observed",
+    "staff_hours": "observed",
+    "time_in_port_p50_min": "observed",
+    "time_in_port_p95_min": "observed",
+    "missed_departure_share": "observed",
+}
+
+PACKAGES = ("undertow", "mesa", "numpy", "pandas", "scipy", "pyarrow", "numba", "pydantic")
+
+
+class RunDirectoryExists(InputError):
+    """The output directory already holds something; runs never overwrite."""
+
+
+def package_versions() -> dict[str, str]:
+    """Installed versions of the packages a run depends on."""
+    versions = {"python": sys.version.split()[0]}
+    for name in PACKAGES:
+        try:
+            versions[name] = metadata.version(name)
+        except metadata.PackageNotFoundError:
+            versions[name] = "not installed"
+    return versions
+
+
+def summarise(book: RecordBook, days: int) -> dict[str, Any]:
+    """The headline figures of a finished run (people counts are persons)."""
+    truth = book.truth_tables()
+    attempts, exits, arrivals = truth["attempts"], truth["exits"], truth["arrivals"]
+    daily = book.daily_table()
+
+    def persons(outcome: str) -> int:
+        return int(attempts.loc[attempts["outcome"] == outcome, "persons"].sum())
+
+    def exited(state: str) -> int:
+        return int(exits.loc[exits["state"] == state, "persons"].sum())
+
+    tip = book.time_in_port()
+    finite = tip[np.isfinite(tip)]
+    missed = book.missed()
+    summary: dict[str, Any] = {
+        "days": days,
+        "attempts": int(attempts["persons"].sum()),
+        "interdictions": persons("interdicted"),
+        "detections": persons("detected"),
+        "crossings": persons("crossed"),
+        "no_vehicle": persons("no_vehicle"),
+        "displaced_out": exited("displaced_out"),
+        "gave_up": exited("gave_up"),
+        "arrived": int(arrivals["persons"].sum()),
+        "in_system_at_end": int(daily["truth_in_system"].iloc[-1]) if len(daily) else 0,
+        "vehicles": int(daily["vehicles"].sum()) if len(daily) else 0,
+        "checks": int(daily["checks"].sum()) if len(daily) else 0,
+        "alarms": int(daily["alarms"].sum()) if len(daily) else 0,
+        "false_alarms": int(daily["false_alarms"].sum()) if len(daily) else 0,
+        "staff_hours": float(daily["staff_hours"].sum()) if len(daily) else 0.0,
+        "time_in_port_p50_min": float(np.percentile(finite, 50)) if finite.size else None,
+        "time_in_port_p95_min": float(np.percentile(finite, 95)) if finite.size else None,
+        "missed_departure_share": float(missed.mean()) if missed.size else 0.0,
+    }
+    summary["sources"] = {key: SUMMARY_SOURCES[key] for key in summary if key in SUMMARY_SOURCES}
+    return summary
+
+
+def simulate(world: World, days: int, seed: int, progress: Callable[[int], None] | None = None) -> PortModel:
+    """Run the model for ``days`` operating days; ``progress`` is called after each day."""
+    model = PortModel(world, seed=seed)
+    for _ in range(days):
+        model.step()
+        if progress is not None:
+            progress(1)
+    return model
+
+
+def run_to_directory(
+    world: World,
+    world_hash: str,
+    days: int,
+    seed: int,
+    out: Path,
+    command: list[str] | None = None,
+    progress: Callable[[int], None] | None = None,
+) -> dict[str, Any]:
+    """Simulate and write a complete run directory atomically; returns the summary."""
+    out = Path(out)
+    if out.exists():
+        raise RunDirectoryExists(f"{out}: already exists; choose another output directory (nothing was overwritten)")
+    model = simulate(world, days, seed, progress)
+    staging = out.with_name(f".{out.name}.partial")
+    if staging.exists():
+        shutil.rmtree(staging)
+    write_records(model.records, staging)
+    summary = summarise(model.records, days)
+    write_json(summary, staging / "summary.json")
+    write_json(
+        {
+            "world_name": world.name,
+            "world_sha256": world_hash,
+            "seed": seed,
+            "days": days,
+            "packages": package_versions(),
+            "command": command or [],
+        },
+        staging / "manifest.json",
+    )
+    staging.rename(out)
+    return summary

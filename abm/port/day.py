@@ -1,0 +1,369 @@
+"""The operating-day engine: a day's vehicles through boarding points, stations and sailings.
+
+Vehicles are rows of numpy arrays; nothing here is a per-vehicle object and no
+generic event scheduler is used. The route is processed position by position:
+before each primary station, attempts at the boarding points that lie before it
+board vehicles at the minute those vehicles pass; the station's queue is then
+run exactly (see :mod:`abm.port.queues`). A vehicle whose check raises an alarm
+is referred to the station's secondary search area (which lies downstream; the
+referred vehicle skips the stations in between) and continues from there.
+After the last station come the boarding points before departure, then sailings.
+
+Lanes carry their state between days, so a vehicle still queueing at midnight
+is served by the next day's lanes: vehicles carry over. The only approximation
+is at that boundary: a late vehicle of one day is queued ahead of every vehicle
+of the next day at each station.
+"""
+
+from __future__ import annotations
+
+from dataclasses import dataclass, field
+
+import numpy as np
+
+from ..errors import InputError
+from .checks import draw_for_station
+from .layout import DEPARTURE, RULES, Layout
+from .queues import board_sailings, serve_fifo
+from .traffic import MINUTES_PER_DAY, DayTraffic, generate_traffic
+
+HORIZON_DAYS = 3  # lanes and sailings are looked up this many days ahead of the arrival day
+SAILING_HORIZON_DAYS = 7
+
+# Outcome codes of an attempt.
+PENDING, INTERDICTED, DETECTED, CROSSED, NO_VEHICLE = 0, 1, 2, 3, 4
+OUTCOME_NAMES = {INTERDICTED: "interdicted", DETECTED: "detected", CROSSED: "crossed", NO_VEHICLE: "no_vehicle"}
+
+
+class StationUnservable(InputError):
+    """A station selected a vehicle that no staffed lane can ever check."""
+
+
+@dataclass
+class Attempts:
+    """The day's boarding attempts, one row per group, chosen by the concealment agents."""
+
+    point: np.ndarray
+    band: np.ndarray
+    vehicle_class: np.ndarray
+    size: np.ndarray
+
+    @classmethod
+    def empty(cls) -> "Attempts":
+        z = np.zeros(0, dtype=np.int64)
+        return cls(z, z.copy(), z.copy(), z.copy())
+
+    def __len__(self) -> int:
+        return int(self.point.shape[0])
+
+
+@dataclass
+class Staffing:
+    """What command put on duty today: lanes per station and hour, extra interdiction per point and band."""
+
+    lanes: np.ndarray  # (S, 24) int
+    patrol: np.ndarray  # (P, B) float
+
+    def staff_hours(self) -> float:
+        """Lane-hours staffed (patrols are counted by the team roster, not here)."""
+        return float(self.lanes.sum())
+
+
+@dataclass
+class AttemptResult:
+    """What happened to each attempt (truth)."""
+
+    outcome: np.ndarray  # outcome code
+    station: np.ndarray  # station index of detection, -1 otherwise
+    method: np.ndarray  # method index of detection, -1 otherwise
+    minute: np.ndarray  # absolute minute of the encounter or crossing; NaN for no vehicle
+    vehicle: np.ndarray  # vehicle row boarded, -1 when none
+
+
+@dataclass
+class DayResult:
+    """Everything one day produced."""
+
+    day: int
+    traffic: DayTraffic
+    attempts: AttemptResult
+    check_rows: dict[str, np.ndarray]  # aggregated observed checks (calendar day, hour, station, class, method, counts)
+    false_alarms: dict[str, np.ndarray]  # one row per alarm after which nothing was found
+    time_in_port: np.ndarray  # minutes, per vehicle
+    missed: np.ndarray  # bool per vehicle: left on a later sailing than booked
+    queue_wait: dict[int, np.ndarray] = field(default_factory=dict)  # station -> waits of checked vehicles
+
+
+class DayEngine:
+    """Runs operating days one after another, keeping lanes and sailings between days."""
+
+    def __init__(
+        self,
+        layout: Layout,
+        traffic_seq: np.random.SeedSequence,
+        boarding_seq: np.random.SeedSequence,
+        detection_seq: np.random.SeedSequence,
+    ) -> None:
+        arrivals_seq, stop_seq = traffic_seq.spawn(2)
+        self.layout = layout
+        self.traffic_rng = np.random.default_rng(arrivals_seq)
+        self.stop_rng = np.random.default_rng(stop_seq)
+        self.boarding_rng = np.random.default_rng(boarding_seq)
+        # one stream per station, so adding or changing one station leaves the others' numbers alone
+        self.station_rngs = [np.random.default_rng(s) for s in detection_seq.spawn(len(layout.station_method))]
+        self.free = [np.full(int(lanes), -np.inf) for lanes in layout.station_lanes]
+        self.sailing_left: dict[int, np.ndarray] = {}
+
+    # -- helpers -------------------------------------------------------------------------
+    def _band_at(self, minutes: np.ndarray) -> np.ndarray:
+        hour = (np.floor(minutes / 60.0).astype(np.int64)) % 24
+        return self.layout.band_of_hour[hour]
+
+    def _sailing_window(self, day: int) -> tuple[np.ndarray, np.ndarray, list[tuple[int, int, int]]]:
+        """Absolute sailing times and remaining capacity from ``day`` over the horizon."""
+        lay = self.layout
+        times, left, spans = [], [], []
+        offset = 0
+        for d in range(day, day + SAILING_HORIZON_DAYS):
+            if d not in self.sailing_left:
+                self.sailing_left[d] = lay.sailing_capacity.copy()
+            times.append(d * MINUTES_PER_DAY + lay.sailing_minute)
+            left.append(self.sailing_left[d])
+            spans.append((d, offset, offset + lay.sailing_minute.shape[0]))
+            offset += lay.sailing_minute.shape[0]
+        self.sailing_left.pop(day - 1, None)
+        return np.concatenate(times), np.concatenate(left), spans
+
+    # -- the day -----------------------------------------------------------------------
+    def run_day(self, day: int, attempts: Attempts, staffing: Staffing) -> DayResult:
+        """Simulate one operating day."""
+        lay = self.layout
+        traffic = generate_traffic(lay, day, self.traffic_rng, self.stop_rng)
+        n, origin = traffic.size, day * MINUTES_PER_DAY
+        cls = traffic.vehicle_class
+        draws = [draw_for_station(lay, s, n, rng) for s, rng in enumerate(self.station_rngs)]
+
+        a_n = len(attempts)
+        result = AttemptResult(
+            outcome=np.full(a_n, PENDING, dtype=np.int64),
+            station=np.full(a_n, -1, dtype=np.int64),
+            method=np.full(a_n, -1, dtype=np.int64),
+            minute=np.full(a_n, np.nan),
+            vehicle=np.full(a_n, -1, dtype=np.int64),
+        )
+        self._interdict(day, attempts, staffing, result)
+
+        aboard = np.zeros(n, dtype=np.int64)  # people aboard and not yet found
+        ready = traffic.arrival.copy()  # minute the vehicle leaves its last position
+        referred = np.full(n, -1, dtype=np.int64)  # secondary station a vehicle is heading to
+        alarm_station = np.full(n, -1, dtype=np.int64)
+        alarm_method = np.full(n, -1, dtype=np.int64)
+        alarm_hit = np.zeros(n, dtype=bool)
+        check_parts: list[tuple[np.ndarray, ...]] = []
+        false_parts: list[tuple[np.ndarray, ...]] = []
+        waits: dict[int, np.ndarray] = {}
+
+        for s in range(lay.station_method.shape[0]):
+            secondary = bool(lay.station_secondary[s])
+            rows = np.flatnonzero(referred == s) if secondary else np.flatnonzero(referred == -1)
+            arrive = ready[rows] + lay.station_travel[s]
+            if not secondary:
+                self._board(attempts, result, np.flatnonzero(lay.point_station == s), rows, arrive, cls, aboard, traffic)
+            order = np.argsort(arrive, kind="stable")
+            rows, arrive = rows[order], arrive[order]
+            d = draws[s]
+            hour = (np.floor((arrive - origin) / 60.0).astype(np.int64)).clip(0) % 24
+            rule = RULES[lay.station_rule[s]]
+            if secondary:
+                p_normal = np.ones(rows.shape[0])
+            elif rule == "targeted":
+                score = lay.class_risk[cls[rows]] + lay.station_noise_sd[s] * d.risk_noise[rows]
+                p_normal = (score > lay.station_threshold[s]).astype(float)
+            else:
+                p_normal = lay.station_fraction[s, hour, cls[rows]]
+            queue_aware = rule == "queue_aware" and not secondary
+            p_busy = lay.station_busy_fraction[s, hour, cls[rows]] if queue_aware else p_normal
+            staffed = np.tile(np.minimum(staffing.lanes[s], lay.station_lanes[s]), HORIZON_DAYS).astype(np.int64)
+            start, end, checked, busy = serve_fifo(
+                arrive,
+                d.service[rows],
+                d.fallback_service[rows],
+                d.u_select[rows],
+                p_normal,
+                p_busy,
+                int(lay.station_queue_threshold[s]) if queue_aware else 0,
+                staffed,
+                origin,
+                self.free[s],
+            )
+            if np.isinf(start).any():
+                name = lay.world.stations[s].name
+                raise StationUnservable(f"station '{name}' selected a vehicle on day {day} that no staffed lane can check")
+            fallback = lay.station_fallback[s]
+            method = np.where(busy & (fallback >= 0), fallback, lay.station_method[s])
+            occupied = aboard[rows] > 0
+            hit = checked & occupied & (d.u_detect[rows] < lay.method_detect[method, cls[rows]])
+            if secondary:
+                alarm = hit
+                # nothing found after the alarm that sent the vehicle here: the agency logs a false alarm
+                empty = ~hit & ~alarm_hit[rows]
+                false_parts.append((end[empty], alarm_station[rows][empty], alarm_method[rows][empty], cls[rows][empty]))
+                referred[rows] = -1
+            else:
+                alarm = checked & (hit | (d.u_false[rows] < lay.method_false_alarm[method]))
+                target = lay.station_refer[s]
+                if target >= 0:
+                    sent = rows[alarm]
+                    referred[sent] = target
+                    alarm_station[sent], alarm_method[sent], alarm_hit[sent] = s, method[alarm], hit[alarm]
+                else:
+                    empty = alarm & ~hit
+                    false_parts.append((end[empty], np.full(int(empty.sum()), s), method[empty], cls[rows][empty]))
+            self._found(result, rows[hit], s, method[hit], end[hit], aboard)
+            ready[rows] = end
+            when = np.where(checked, start, arrive)
+            check_parts.append((when, np.full(rows.shape[0], s), cls[rows], method, checked, alarm))
+            waits[s] = (start - arrive)[checked]
+
+        departure_points = np.flatnonzero(lay.point_station == DEPARTURE)
+        every = np.arange(n)
+        self._board(attempts, result, departure_points, every, ready, cls, aboard, traffic)
+        leave, missed = self._depart(day, traffic, ready)
+        crossed = (result.outcome == PENDING) & (result.vehicle >= 0)
+        result.outcome[crossed] = CROSSED
+        result.minute[crossed] = leave[result.vehicle[crossed]]
+        return DayResult(
+            day=day,
+            traffic=traffic,
+            attempts=result,
+            check_rows=_aggregate_checks(check_parts, lay),
+            false_alarms=_false_alarm_rows(false_parts),
+            time_in_port=leave - traffic.arrival,
+            missed=missed,
+            queue_wait=waits,
+        )
+
+    def _interdict(self, day: int, attempts: Attempts, staffing: Staffing, result: AttemptResult) -> None:
+        """Attempts stopped at the boarding point by fences or patrols, at a random minute of their band."""
+        lay = self.layout
+        u = self.boarding_rng.random(len(attempts))
+        when = self.boarding_rng.random(len(attempts))
+        chance = np.clip(lay.point_interdiction[attempts.point, attempts.band] + staffing.patrol[attempts.point, attempts.band], 0, 1)
+        stopped = u < chance
+        band_hours = np.array([[lay.band_of_hour[h] == b for h in range(24)] for b in range(lay.band_of_hour.max() + 1)])
+        for a in np.flatnonzero(stopped):
+            hours = np.flatnonzero(band_hours[attempts.band[a]])
+            minute = (hours[int(when[a] * hours.shape[0])] + (when[a] * hours.shape[0]) % 1.0) * 60.0
+            result.outcome[a] = INTERDICTED
+            result.minute[a] = day * MINUTES_PER_DAY + minute
+
+    def _board(
+        self,
+        attempts: Attempts,
+        result: AttemptResult,
+        points: np.ndarray,
+        rows: np.ndarray,
+        next_arrival: np.ndarray,
+        cls: np.ndarray,
+        aboard: np.ndarray,
+        traffic: DayTraffic,
+    ) -> None:
+        """Board pending attempts at ``points`` onto vehicles ``rows`` passing them.
+
+        A vehicle is at a point ``lead`` minutes before it reaches the next station
+        (``next_arrival``); it must stop there, be of the chosen class, pass in the
+        chosen band and have room for the whole group. One such vehicle is taken at random.
+        """
+        lay = self.layout
+        todo = np.flatnonzero((result.outcome == PENDING) & np.isin(attempts.point, points))
+        if todo.shape[0] == 0:
+            return
+        capacity = lay.class_capacity[cls[rows]]
+        for p in np.unique(attempts.point[todo]):
+            at_point = next_arrival - lay.point_lead[p]
+            band = self._band_at(at_point)
+            stops = traffic.stops[p, rows]
+            for a in todo[attempts.point[todo] == p]:
+                room = capacity - aboard[rows]
+                fits = stops & (cls[rows] == attempts.vehicle_class[a]) & (band == attempts.band[a]) & (room >= attempts.size[a])
+                choices = np.flatnonzero(fits)
+                if choices.shape[0] == 0:
+                    result.outcome[a] = NO_VEHICLE
+                    continue
+                pick = choices[self.boarding_rng.integers(choices.shape[0])]
+                aboard[rows[pick]] += attempts.size[a]
+                result.vehicle[a] = rows[pick]
+                result.minute[a] = at_point[pick]
+
+    @staticmethod
+    def _found(result: AttemptResult, vehicles: np.ndarray, station: int, methods: np.ndarray, when: np.ndarray, aboard: np.ndarray) -> None:
+        """Everyone aboard a vehicle whose check found people is found (detected)."""
+        if vehicles.shape[0] == 0:
+            return
+        pending = (result.outcome == PENDING) & np.isin(result.vehicle, vehicles)
+        lookup = {int(v): i for i, v in enumerate(vehicles)}
+        for a in np.flatnonzero(pending):
+            i = lookup[int(result.vehicle[a])]
+            result.outcome[a] = DETECTED
+            result.station[a] = station
+            result.method[a] = methods[i]
+            result.minute[a] = when[i]
+        aboard[vehicles] = 0
+
+    def _depart(self, day: int, traffic: DayTraffic, ready: np.ndarray) -> tuple[np.ndarray, np.ndarray]:
+        """Minute each vehicle leaves the port and whether it missed its booked sailing."""
+        lay = self.layout
+        if lay.sailing_minute.shape[0] == 0:
+            return ready, np.zeros(ready.shape[0], dtype=bool)
+        times, left, spans = self._sailing_window(day)
+        order = np.argsort(ready, kind="stable")
+        chosen = np.empty(ready.shape[0], dtype=np.int64)
+        chosen[order] = board_sailings(ready[order], times, left, lay.cutoff)
+        for d, lo, hi in spans:  # write back the capacity the day's vehicles used
+            self.sailing_left[d] = left[lo:hi]
+        booked = np.searchsorted(times - lay.cutoff, traffic.arrival + lay.planned, side="left")
+        stranded = chosen < 0
+        leave = np.where(stranded, np.nan, times[np.where(stranded, 0, chosen)])
+        missed = stranded | (chosen > booked)
+        return leave, missed
+
+
+def _aggregate_checks(parts: list[tuple[np.ndarray, ...]], lay: Layout) -> dict[str, np.ndarray]:
+    """Sum vehicles, checks and alarms per calendar day, hour, station, class and method."""
+    when = np.concatenate([p[0] for p in parts])
+    station = np.concatenate([p[1] for p in parts])
+    vclass = np.concatenate([p[2] for p in parts])
+    method = np.concatenate([p[3] for p in parts])
+    checked = np.concatenate([p[4] for p in parts])
+    alarm = np.concatenate([p[5] for p in parts])
+    cal_day = np.floor(when / MINUTES_PER_DAY).astype(np.int64)
+    hour = (np.floor(when / 60.0).astype(np.int64)) % 24
+    n_s, n_c, n_m = lay.station_method.shape[0], lay.n_classes, lay.method_dist.shape[0]
+    key = (((cal_day * 24 + hour) * n_s + station) * n_c + vclass) * n_m + method
+    uniq, inverse = np.unique(key, return_inverse=True)
+    rest, m = np.divmod(uniq, n_m)
+    rest, c = np.divmod(rest, n_c)
+    rest, s = np.divmod(rest, n_s)
+    d, h = np.divmod(rest, 24)
+    return {
+        "day": d,
+        "hour": h,
+        "station": s,
+        "vehicle_class": c,
+        "method": m,
+        "vehicles": np.bincount(inverse, minlength=uniq.shape[0]),
+        "checks": np.bincount(inverse, weights=checked, minlength=uniq.shape[0]).astype(np.int64),
+        "alarms": np.bincount(inverse, weights=alarm, minlength=uniq.shape[0]).astype(np.int64),
+    }
+
+
+def _false_alarm_rows(parts: list[tuple[np.ndarray, ...]]) -> dict[str, np.ndarray]:
+    if not parts:
+        z = np.zeros(0)
+        return {"minute": z, "station": z.astype(np.int64), "method": z.astype(np.int64), "vehicle_class": z.astype(np.int64)}
+    return {
+        "minute": np.concatenate([p[0] for p in parts]),
+        "station": np.concatenate([p[1] for p in parts]).astype(np.int64),
+        "method": np.concatenate([p[2] for p in parts]).astype(np.int64),
+        "vehicle_class": np.concatenate([p[3] for p in parts]).astype(np.int64),
+    }

@@ -45,6 +45,9 @@ class _UniqueKeyLoader(yaml.SafeLoader):
 
 _MERGE_TAG = "tag:yaml.org,2002:merge"
 _STANDARD_PREFIX = "tag:yaml.org,2002:"
+# Only tags SafeLoader builds plain data for (str, int, float, bool, null, seq, map, timestamp, binary,
+# set, omap, pairs); anything else, python/* included, is refused before construction.
+_SAFE_TAGS = frozenset(tag for tag in _UniqueKeyLoader.yaml_constructors if tag is not None)
 
 
 class _NodeProblem(Exception):
@@ -65,62 +68,80 @@ def _shown_tag(tag: str) -> str:
     return "!!" + tag[len(_STANDARD_PREFIX) :] if tag.startswith(_STANDARD_PREFIX) else tag
 
 
+def _tag_problem(node: yaml.Node, path: str) -> _NodeProblem | None:
+    if node.tag in _SAFE_TAGS:
+        return None
+    line = node.start_mark.line + 1
+    return _NodeProblem(
+        path, f"YAML tag {_shown_tag(node.tag)} is not allowed (line {line}): world files hold plain data only"
+    )
+
+
 def _check_nodes(loader: _UniqueKeyLoader, root: yaml.Node) -> None:
     """Refuse unknown tags, non-scalar or repeated keys and unreadable scalars, naming the key path.
 
     Runs on the composed node tree, before anything is constructed, so a tag that
-    would build an object is refused without ever reaching a constructor. Each
-    node is visited once, so aliases (even recursive ones) cost nothing extra.
+    would build an object is refused without ever reaching a constructor. Nodes
+    are visited in document order so the first problem in the file is reported,
+    and each node once, so aliases (even recursive ones) cost nothing extra.
     """
     visited: set[int] = set()
-    stack: list[tuple[yaml.Node, str]] = [(root, "")]
+    # A stack entry is a node to visit or a problem to raise once the walk reaches its place in the file.
+    stack: list[tuple[yaml.Node, str] | _NodeProblem] = [(root, "")]
     while stack:  # iterative: a deeply nested file must not exhaust the Python stack
-        node, path = stack.pop()
+        entry = stack.pop()
+        if isinstance(entry, _NodeProblem):
+            raise entry
+        node, path = entry
         if id(node) in visited:
             continue
         visited.add(id(node))
-        line = node.start_mark.line + 1
-        if node.tag not in loader.yaml_constructors:
-            raise _NodeProblem(
-                path, f"YAML tag {_shown_tag(node.tag)} is not allowed (line {line}): world files hold plain data only"
-            )
+        problem = _tag_problem(node, path)
+        if problem:
+            raise problem
         if isinstance(node, yaml.ScalarNode):
             try:  # an explicit standard tag can still be unreadable, e.g. ``!!int ten``
                 loader.construct_object(node)
             except Exception:
-                raise _NodeProblem(
-                    path, f"cannot read {node.value!r} as {_shown_tag(node.tag)} (line {line})"
-                ) from None
+                line = node.start_mark.line + 1
+                message = f"cannot read {node.value!r} as {_shown_tag(node.tag)} (line {line})"
+                raise _NodeProblem(path, message) from None
         elif isinstance(node, yaml.SequenceNode):
-            stack.extend((child, f"{path}[{i}]") for i, child in enumerate(node.value))
+            stack.extend(reversed([(child, f"{path}[{i}]") for i, child in enumerate(node.value)]))
         elif isinstance(node, yaml.MappingNode):
-            first_line: dict[Any, int] = {}
-            for key_node, value_node in node.value:
-                if key_node.tag == _MERGE_TAG:  # ``<<: *anchor`` merges keys; it is not a key itself
-                    stack.append((value_node, path))
-                    continue
-                key_line = key_node.start_mark.line + 1
-                if not isinstance(key_node, yaml.ScalarNode):
-                    raise _NodeProblem(path, f"expected a plain name as a key, got a {key_node.id} (line {key_line})")
-                if key_node.tag not in loader.yaml_constructors:
-                    raise _NodeProblem(
-                        path,
-                        f"YAML tag {_shown_tag(key_node.tag)} is not allowed (line {key_line}): "
-                        "world files hold plain data only",
-                    )
-                try:
-                    key = loader.construct_object(key_node)
-                except Exception:
-                    raise _NodeProblem(
-                        path, f"cannot read the key {key_node.value!r} as {_shown_tag(key_node.tag)} (line {key_line})"
-                    ) from None
-                if key in first_line:
-                    raise _NodeProblem(
-                        _join(path, key),
-                        f"key '{key}' appears twice (lines {first_line[key]} and {key_line}); expected it once",
-                    )
-                first_line[key] = key_line
-                stack.append((value_node, _join(path, key)))
+            stack.extend(reversed(_mapping_entries(loader, node, path)))
+
+
+def _mapping_entries(
+    loader: _UniqueKeyLoader, node: yaml.MappingNode, path: str
+) -> list[tuple[yaml.Node, str] | _NodeProblem]:
+    """A mapping's values to visit, in order; a bad or repeated key becomes a problem in its place."""
+    entries: list[tuple[yaml.Node, str] | _NodeProblem] = []
+    first_line: dict[Any, int] = {}
+    for key_node, value_node in node.value:
+        if key_node.tag == _MERGE_TAG:  # ``<<: *anchor`` merges keys; it is not a key itself
+            entries.append((value_node, path))
+            continue
+        key_line = key_node.start_mark.line + 1
+        problem = _tag_problem(key_node, path)
+        if problem is None and not isinstance(key_node, yaml.ScalarNode):
+            problem = _NodeProblem(path, f"expected a plain name as a key, got a {key_node.id} (line {key_line})")
+        if problem is None:
+            try:
+                key = loader.construct_object(key_node)
+            except Exception:
+                problem = _NodeProblem(
+                    path, f"cannot read the key {key_node.value!r} as {_shown_tag(key_node.tag)} (line {key_line})"
+                )
+        if problem is None and key in first_line:
+            lines = f"lines {first_line[key]} and {key_line}"
+            problem = _NodeProblem(_join(path, key), f"key '{key}' appears twice ({lines}); expected it once")
+        if problem is not None:
+            entries.append(problem)
+            break  # nothing after the first bad key can be reported first
+        first_line[key] = key_line
+        entries.append((value_node, _join(path, key)))
+    return entries
 
 
 def _yaml_problem(exc: yaml.YAMLError, text: str) -> str:

@@ -18,6 +18,7 @@ import yaml
 from pydantic import BaseModel, ValidationError
 
 from ..errors import InputError
+from .paths import PathProblem, apply_changes
 from .references import ReferenceProblem, check_references
 from .schema import CLOCK_PATTERN, NAME_PATTERN, World
 
@@ -342,7 +343,33 @@ def parse_world(data: dict[str, Any], source: str | Path = "<world>") -> World:
         check_references(world)
     except ReferenceProblem as exc:
         raise WorldFileError(source, exc.path, exc.message) from None
+    for index in range(len(world.interventions)):
+        try:
+            changed = policy_after(world, index)
+        except WorldFileError as exc:
+            raise WorldFileError(source, f"interventions[{index}].set", f"after the change, {exc.path}: {exc.message}") from None
+        except PathProblem as exc:
+            raise WorldFileError(source, f"interventions[{index}].set", str(exc)) from None
+        _same_shape(world, changed, source, index)
     return world
+
+
+def policy_after(world: World, index: int) -> World:
+    """The world as it stands once interventions 0..index (in file order) have taken effect."""
+    data = world.model_dump(mode="python", exclude={"interventions"})
+    for intervention in world.interventions[: index + 1]:
+        data = apply_changes(data, intervention.set)
+    return parse_world(data, "<intervention>")
+
+
+def _same_shape(before: World, after: World, source: str | Path, index: int) -> None:
+    """An intervention changes policy, not the crossing's geography or the option space."""
+    for what in ("class_names", "band_names", "point_names", "station_names", "method_names"):
+        if getattr(before, what) != getattr(after, what):
+            label = what.replace("_names", "").replace("_", " ")
+            raise WorldFileError(
+                source, f"interventions[{index}].set", f"an intervention may not add, remove or rename any {label}"
+            )
 
 
 def load_world(path: str | Path) -> World:

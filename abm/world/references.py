@@ -121,7 +121,27 @@ def check_references(world: World) -> None:
             _require(key, names, f"roster.teams[{i}].lanes.{key}", "station")
         for key in team.patrols:
             _require(key, world.point_names, f"roster.teams[{i}].patrols.{key}", "boarding point")
+        for j, posting in enumerate(team.postings):
+            for key in posting.lanes:
+                _require(key, names, f"roster.teams[{i}].postings[{j}].lanes.{key}", "station")
+            for key in posting.patrols:
+                _require(key, world.point_names, f"roster.teams[{i}].postings[{j}].patrols.{key}", "boarding point")
+        if team.postings and not team.flexible:
+            raise ReferenceProblem(f"roster.teams[{i}].postings", "only a flexible team can have postings")
     _check_lanes_fit(world)
+
+    for key in world.adversary.adaptive.band_waiting:
+        _require(key, bands, f"adversary.adaptive.band_waiting.{key}", "time band")
+    if world.displacement is not None:
+        for area in ("response", "buffer", "control"):
+            for j, selector in enumerate(getattr(world.displacement, area)):
+                path = f"displacement.{area}[{j}]"
+                if selector.point is not None:
+                    _require(selector.point, world.point_names, f"{path}.point", "boarding point")
+                if selector.band is not None:
+                    _require(selector.band, bands, f"{path}.band", "time band")
+                if selector.vehicle_class is not None:
+                    _require(selector.vehicle_class, classes, f"{path}.vehicle_class", "vehicle class")
 
     static = world.adversary.static
     for key in static.point_shares:

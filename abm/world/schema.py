@@ -188,6 +188,21 @@ class Departures(Strict):
         return v
 
 
+class Posting(Strict):
+    """One alternative assignment of a flexible team; randomised command draws one a day."""
+
+    weight: NonNegative
+    hours: tuple[Hour, Hour]
+    lanes: dict[str, Count] = Field(default_factory=dict)
+    patrols: dict[str, Probability] = Field(default_factory=dict)
+
+    @model_validator(mode="after")
+    def _shift_not_empty(self) -> "Posting":
+        if self.hours[0] == self.hours[1]:
+            raise ValueError("a posting needs start hour != end hour")
+        return self
+
+
 class Team(Strict):
     """An inspection team on a daily shift: lanes it staffs and points it patrols."""
 
@@ -198,6 +213,7 @@ class Team(Strict):
         default_factory=dict, description="interdiction chance added at a boarding point while on duty"
     )
     flexible: bool = Field(False, description="command may move this team's capacity")
+    postings: list[Posting] = Field(default_factory=list, description="alternatives for randomised command")
 
     @model_validator(mode="after")
     def _shift_not_empty(self) -> "Team":
@@ -206,11 +222,28 @@ class Team(Strict):
         return self
 
 
+class Reactive(Strict):
+    """Reactive command: move flexible capacity toward where detections were recent."""
+
+    share: Probability = Field(0.3, description="share of flexible lane-hours and patrol moved each day")
+    smoothing: Probability = Field(0.2, description="weight of the newest day in the smoothed detection score")
+
+
 class Roster(Strict):
     """The inspection teams and how command allocates them."""
 
     teams: list[Team] = Field(min_length=1)
-    command: Literal["fixed"] = "fixed"
+    command: Literal["fixed", "reactive", "randomised"] = "fixed"
+    reactive: Reactive = Field(default_factory=Reactive)
+
+    @model_validator(mode="after")
+    def _command_has_what_it_moves(self) -> "Roster":
+        flexible = [t for t in self.teams if t.flexible]
+        if self.command in ("reactive", "randomised") and not flexible:
+            raise ValueError(f"command '{self.command}' needs at least one team with flexible: true")
+        if self.command == "randomised" and not any(t.postings for t in flexible):
+            raise ValueError("command 'randomised' needs a flexible team with postings to draw from")
+        return self
 
 
 class StaticChoice(Strict):
@@ -226,6 +259,54 @@ class StaticChoice(Strict):
         return _check_shares(v, info.field_name)
 
 
+class Learning(Strict):
+    """Adaptive behaviour: Beta-Bernoulli beliefs about each option's risk, logit choice.
+
+    Utility of an option = -(perceived risk x detection_cost) - effort
+    - hazard_aversion x hazard - waiting (per band); choice probability is the
+    logit (quantal response) with rationality lambda, mixed with a small uniform
+    exploration share.
+    """
+
+    rationality: NonNegative = Field(2.0, description="lambda of the logit rule; 0 = uniform choice")
+    exploration: Probability = Field(0.05, description="share of choices made uniformly at random")
+    detection_cost: NonNegative = Field(5.0, description="utility lost when caught")
+    hazard_aversion: NonNegative = 1.0
+    band_waiting: dict[str, NonNegative] = Field(default_factory=dict, description="waiting cost per time band")
+    prior_caught: Positive = Field(1.0, description="Beta prior pseudo-count of being caught")
+    prior_crossed: Positive = Field(1.0, description="Beta prior pseudo-count of crossing")
+    forgetting: Annotated[float, Field(gt=0.0, le=1.0)] = Field(
+        0.98, description="daily decay of evidence; 1 = plain conjugate updating"
+    )
+    own_weight: NonNegative = 1.0
+    peer_weight: NonNegative = 0.5
+    peer_delay_days: Count = 1
+    network_degree: Count = Field(4, description="peers each new group links to")
+    rumour_weight: NonNegative = 0.05
+    rumour_delay_days: Count = 7
+    rumour_noise: NonNegative = Field(0.2, description="log-normal spread of the rumoured counts")
+    presence_weight: NonNegative = Field(0.0, description="weight of seen patrol presence as evidence of risk")
+    presence_noise: NonNegative = 0.1
+
+
+class Reinforcement(Strict):
+    """Roth-Erev reinforcement learning (Erev & Roth 1998): propensities grow with payoffs."""
+
+    recency: Probability = Field(0.1, description="forgetting of past propensity each attempt")
+    experimentation: Probability = Field(0.2, description="share of payoff spread to other options")
+    initial_propensity: Positive = 1.0
+    payoff_crossed: NonNegative = 1.0
+    payoff_caught: NonNegative = 0.0
+    payoff_no_vehicle: NonNegative = 0.0
+
+
+class Deterrence(Strict):
+    """Give-up and move-elsewhere chances that grow with each earlier encounter."""
+
+    give_up_step: Probability = 0.0
+    move_elsewhere_step: Probability = 0.0
+
+
 class Adversary(Strict):
     """The population of would-be crossers."""
 
@@ -236,8 +317,11 @@ class Adversary(Strict):
     give_up: Probability = Field(0.0, description="chance of giving up after an encounter")
     move_elsewhere: Probability = Field(0.0, description="chance of leaving for a route outside the model")
     identification: Probability = Field(0.0, description="chance a person is identified at an encounter")
-    behaviour: Literal["static"] = "static"
+    behaviour: Literal["static", "adaptive", "reinforcement"] = "static"
     static: StaticChoice
+    adaptive: Learning = Field(default_factory=Learning)
+    reinforcement: Reinforcement = Field(default_factory=Reinforcement)
+    deterrence: Deterrence = Field(default_factory=Deterrence)
 
     @field_validator("group_size")
     @classmethod
@@ -255,6 +339,30 @@ class Adversary(Strict):
         return self
 
 
+class Intervention(Strict):
+    """A policy change from a given day: values set at dotted paths of the world."""
+
+    day: Count
+    name: str = Field(min_length=1, max_length=120)
+    set: dict[str, Any] = Field(min_length=1, description="dotted path -> new value, e.g. stations.gate_imaging.lanes")
+
+
+class AreaSelector(Strict):
+    """Options matching every given field (an omitted field matches all)."""
+
+    point: Name | None = None
+    band: Name | None = None
+    vehicle_class: Name | None = None
+
+
+class DisplacementAreas(Strict):
+    """Response, buffer and control areas of options for the weighted displacement quotient."""
+
+    response: list[AreaSelector] = Field(min_length=1)
+    buffer: list[AreaSelector] = Field(default_factory=list)
+    control: list[AreaSelector] = Field(min_length=1)
+
+
 class World(Strict):
     """A whole crossing."""
 
@@ -269,6 +377,8 @@ class World(Strict):
     departures: Departures | None = None
     roster: Roster
     adversary: Adversary
+    interventions: list[Intervention] = Field(default_factory=list)
+    displacement: DisplacementAreas | None = None
 
     @field_validator("vehicle_classes")
     @classmethod

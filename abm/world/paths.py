@@ -1,0 +1,91 @@
+"""Dotted paths into a world mapping: ``stations.gate_imaging.selection.fraction``.
+
+A segment addresses a mapping key, a list item by its ``name`` (lists of named
+sections such as stations, methods, teams) or a list item by index
+(``stations[0]``). Paths are how interventions and experiment factors name the
+values they change; nothing in a path is evaluated.
+"""
+
+from __future__ import annotations
+
+import copy
+import re
+from typing import Any
+
+_SEGMENT = re.compile(r"^(?P<key>[^\[\]]*)(?:\[(?P<index>\d+)\])?$")
+
+
+class PathProblem(ValueError):
+    """A path that does not lead to a value of the world."""
+
+
+def _step(node: Any, segment: str, walked: str) -> tuple[Any, Any]:
+    """The container and key/index one segment addresses below ``node``."""
+    match = _SEGMENT.match(segment)
+    if not match or (not match.group("key") and match.group("index") is None):
+        raise PathProblem(f"'{walked}{segment}' is not a valid path segment")
+    key, index = match.group("key"), match.group("index")
+    if key:
+        if isinstance(node, dict):
+            if key not in node:
+                options = ", ".join(map(str, node)) or "nothing"
+                raise PathProblem(f"'{walked}{key}' does not exist (there: {options})")
+            parent, slot = node, key
+        elif isinstance(node, list):
+            named = [i for i, item in enumerate(node) if isinstance(item, dict) and item.get("name") == key]
+            if not named:
+                names = ", ".join(str(item.get("name")) for item in node if isinstance(item, dict)) or "nothing"
+                raise PathProblem(f"no item named '{key}' under '{walked.rstrip('.')}' (there: {names})")
+            parent, slot = node, named[0]
+        else:
+            raise PathProblem(f"'{walked.rstrip('.')}' holds a value, not a section")
+        node = parent[slot]
+    else:
+        parent, slot = None, None
+    if index is not None:
+        if not isinstance(node, list) or int(index) >= len(node):
+            raise PathProblem(f"'{walked}{segment}' is out of range")
+        parent, slot = node, int(index)
+    return parent, slot
+
+
+def _resolve(data: dict[str, Any], path: str, create_leaf: bool) -> tuple[Any, Any]:
+    segments = path.split(".")
+    if not path or any(not s for s in segments):
+        raise PathProblem(f"'{path}' is not a dotted path")
+    node: Any = data
+    walked = ""
+    for i, segment in enumerate(segments):
+        last = i == len(segments) - 1
+        if create_leaf and isinstance(node, dict) and "[" not in segment and segment not in node:
+            # a section or key the file left at its default; the schema judges it after the change
+            if last:
+                return node, segment
+            node[segment] = {}
+        parent, slot = _step(node, segment, walked)
+        if last:
+            return parent, slot
+        node = parent[slot]
+        walked += segment + "."
+    raise AssertionError("unreachable")
+
+
+def get_path(data: dict[str, Any], path: str) -> Any:
+    """The value at ``path``."""
+    parent, slot = _resolve(data, path, create_leaf=False)
+    return parent[slot]
+
+
+def set_path(data: dict[str, Any], path: str, value: Any) -> dict[str, Any]:
+    """A deep copy of ``data`` with ``value`` at ``path`` (missing mapping keys are added)."""
+    out = copy.deepcopy(data)
+    parent, slot = _resolve(out, path, create_leaf=True)
+    parent[slot] = copy.deepcopy(value)
+    return out
+
+
+def apply_changes(data: dict[str, Any], changes: dict[str, Any]) -> dict[str, Any]:
+    """Apply several path changes in order."""
+    for path, value in changes.items():
+        data = set_path(data, path, value)
+    return data

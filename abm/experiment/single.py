@@ -3,6 +3,7 @@
 Layout of a run directory::
 
     manifest.json     world hash, seed, days, package versions, command
+    world.json        the validated world the run used (defaults filled in)
     truth/*.parquet   simulated truth (attempts, arrivals, exits)
     observed/*.parquet  what an agency holds (see abm.observed)
     daily.parquet     daily KPIs (truth_ columns from truth)
@@ -27,6 +28,8 @@ from ..errors import InputError
 from ..model import PortModel
 from ..records import RecordBook, write_json, write_records
 from ..world.schema import World
+
+WORLD_FILE = "world.json"
 
 # Which record set each summary figure comes from.
 SUMMARY_SOURCES: dict[str, str] = {
@@ -136,6 +139,7 @@ def run_to_directory(
     write_records(model.records, staging)
     summary = summarise(model.records, days)
     write_json(summary, staging / "summary.json")
+    write_json(world.model_dump(mode="json"), staging / WORLD_FILE)
     write_json(
         {
             "world_name": world.name,

@@ -1,9 +1,11 @@
 """PortModel: one Mesa step is one operating day at the crossing.
 
-Each day: new groups arrive in the area; command sets today's staffing from the
-teams; waiting groups decide whether and how to attempt; the day engine runs
-vehicles, boarding, checks and sailings; groups learn their outcomes; the
-record book takes the day. Agents decide, the engine moves vehicles.
+Each day: a scheduled intervention takes effect if one is due; new groups
+arrive in the area; command sets today's staffing from the teams; behaviour
+channels deliver what agents learnt since yesterday; waiting groups decide
+whether and how to attempt; the day engine runs vehicles, boarding, checks and
+sailings; groups and command learn the outcomes; the record book takes the
+day. Agents decide, the engine moves vehicles.
 
 Random numbers come from one ``SeedSequence`` per run, spawned per purpose
 (traffic, boarding, detection, agents), so changing a policy does not shift the
@@ -22,6 +24,7 @@ from .agents.options import OptionSpace
 from .port.day import OUTCOME_NAMES, Attempts, DayEngine
 from .port.layout import build_layout
 from .records import RecordBook
+from .world.loader import policy_after
 from .world.schema import World
 
 SEED_PURPOSES = ("traffic", "boarding", "detection", "agents")
@@ -38,17 +41,22 @@ class PortModel(mesa.Model):
 
     def __init__(self, world: World, seed: int | np.random.SeedSequence = 0) -> None:
         streams = spawn_streams(seed)
-        arrivals_seq, decisions_seq = streams["agents"].spawn(2)
+        arrivals_seq, decisions_seq, behaviour_seq, command_seq = streams["agents"].spawn(4)
         super().__init__(rng=np.random.default_rng(decisions_seq))
+        self.base_world = world
         self.world = world
         self.layout = build_layout(world)
         self.options = OptionSpace.from_layout(self.layout)
-        self.behaviour = make_behaviour(world, self.options)
-        self.command = make_command(world.roster.command)
+        self.behaviour_rng = np.random.default_rng(behaviour_seq)
+        self.behaviour = make_behaviour(world, self.options, self.behaviour_rng)
+        self.command_rng = np.random.default_rng(command_seq)
+        self.command = make_command(world.roster, self.layout, self.command_rng)
         self.engine = DayEngine(self.layout, streams["traffic"], streams["boarding"], streams["detection"])
         self.records = RecordBook(self.layout)
         self.arrivals_rng = np.random.default_rng(arrivals_seq)
         self.day = 0
+        self.policy_name = "as rostered"
+        self._due = {iv.day: i for i, iv in enumerate(world.interventions)}
         for team in world.roster.teams:
             InspectionTeam(self, team)
 
@@ -60,36 +68,57 @@ class PortModel(mesa.Model):
     def persons_in_system(self) -> int:
         return int(sum(self.concealers.get("size")))
 
+    def apply_policy(self, world: World, name: str) -> None:
+        """Switch to a changed world (same geography and option space) from today on."""
+        self.world = world
+        self.layout = build_layout(world)
+        self.options = OptionSpace.from_layout(self.layout)
+        self.engine.change_layout(self.layout)
+        self.behaviour.refresh(world, self.options)
+        if world.roster.command != self.command.name:
+            self.command = make_command(world.roster, self.layout, self.command_rng)
+        for team in list(self.agents.select(agent_type=InspectionTeam)):
+            team.remove()
+        for team in world.roster.teams:
+            InspectionTeam(self, team)
+        self.policy_name = name
+
     def _new_groups(self, day: int) -> None:
         adversary = self.world.adversary
         n = int(self.arrivals_rng.poisson(adversary.arrivals_per_day))
         for size in draw_group_sizes(adversary, n, self.arrivals_rng):
-            agent = ConcealmentAgent(self, int(size), day, self.behaviour)
+            agent = ConcealmentAgent(self, int(size), day)
             self.records.arrival(agent.unique_id, day, agent.size)
 
     def step(self) -> None:
         """Simulate one operating day."""
         day = self.day
+        if day in self._due:
+            index = self._due[day]
+            self.apply_policy(policy_after(self.base_world, index), self.base_world.interventions[index].name)
         self._new_groups(day)
         staffing = self.command.staffing(self, day)
-        attempting = self.concealers.select(lambda a: a.will_attempt(day))
-        options = np.array(attempting.map("decide"), dtype=np.int64)
+        self.behaviour.start_of_day(day, staffing, self.behaviour_rng)
+        attempting = list(self.concealers.select(lambda a: a.will_attempt(day)))
+        options = np.array([agent.decide() for agent in attempting], dtype=np.int64)
         point, band, vclass = self.options.unravel(options)
-        sizes = np.array(attempting.get("size"), dtype=np.int64)
+        sizes = np.array([agent.size for agent in attempting], dtype=np.int64)
         attempts = Attempts(point.astype(np.int64), band.astype(np.int64), vclass.astype(np.int64), sizes)
         result = self.engine.run_day(day, attempts, staffing)
+        self.command.observe(self, attempts, result)
 
-        agent_ids = np.array(attempting.get("unique_id"), dtype=np.int64)
+        agent_ids = np.array([agent.unique_id for agent in attempting], dtype=np.int64)
+        outcomes = [OUTCOME_NAMES[int(code)] for code in result.attempts.outcome]
         identification = self.world.adversary.identification
         refs: list[list[str | None] | None] = []
-        attempting = list(attempting)  # a snapshot: agents that leave are removed below
-        for agent, code in zip(attempting, result.attempts.outcome, strict=True):
-            outcome = OUTCOME_NAMES[int(code)]
+        for agent, outcome in zip(attempting, outcomes, strict=True):
             refs.append(agent.identify(identification) if outcome in ("detected", "interdicted") else None)
             agent.after_outcome(outcome, day)
+        self.behaviour.end_of_day(day, options, outcomes, sizes)
         for agent in attempting:
             if agent.state is not State.WAITING:
                 self.records.exit(agent.unique_id, day, agent.state.value, agent.size, agent.encounters)
+                self.behaviour.agent_left(agent)
                 agent.remove()
         self.records.add_day(
             result,

@@ -1,21 +1,59 @@
 """Behaviour models of concealment attempts, as swappable strategy objects.
 
-A behaviour picks an option for an agent about to attempt and may learn from
-outcomes. The model holds one behaviour object; per-agent memory, where a model
-needs it, lives on the agent (``agent.memory``) and is created by ``init_agent``.
+A behaviour picks an option (boarding point x time band x vehicle class) for an
+agent about to attempt and may learn from outcomes. The model holds one
+behaviour object; per-agent memory lives on the agent (``agent.memory``).
+
+- ``static``: fixed option probabilities, the classic assumption that people do
+  not react to checking.
+- ``adaptive``: perceived risk of each option learnt with a Beta-Bernoulli update
+  with forgetting, from the agent's own outcomes, from peers on a social network
+  (with a delay) and from a shared rumour channel (lagged, noisy aggregate
+  outcomes), optionally with a noisy cue of patrol presence; choice by a logit
+  (quantal-response) rule with a small exploration share.
+- ``reinforcement``: Roth-Erev reinforcement learning (Roth & Erev 1995, Games and
+  Economic Behavior 8:164-212; Erev & Roth 1998, American Economic Review
+  88:848-881) of propensities shared by the population, as a facilitation
+  network would learn which options work: payoffs add to the chosen option's
+  propensity, an experimentation share spreads to the others, recency forgets.
 """
 
 from __future__ import annotations
 
+from collections import defaultdict
+from dataclasses import dataclass
 from typing import TYPE_CHECKING, Protocol
 
+import networkx as nx
 import numpy as np
 
-from ..world.schema import Adversary, World
+from ..port.day import Staffing
+from ..world.schema import World
 from .options import OptionSpace
 
 if TYPE_CHECKING:
     from .concealment import ConcealmentAgent
+
+CAUGHT = ("interdicted", "detected")
+
+
+def logit_probabilities(utility: np.ndarray, rationality: float, valid: np.ndarray, exploration: float = 0.0) -> np.ndarray:
+    """Quantal-response choice probabilities over valid options, mixed with uniform exploration.
+
+    P_j = (1 - e) * exp(lambda u_j) / sum_k exp(lambda u_k) + e / K over the K valid options.
+    """
+    z = np.where(valid, rationality * utility, -np.inf)
+    z = z - z[valid].max()
+    weights = np.exp(z)
+    logit = weights / weights.sum()
+    uniform = valid / valid.sum()
+    return (1.0 - exploration) * logit + exploration * uniform
+
+
+def _draw(probabilities: np.ndarray, rng: np.random.Generator) -> int:
+    """One option by inverse CDF: a single uniform per choice."""
+    index = int(np.searchsorted(np.cumsum(probabilities), rng.random() * probabilities.sum(), side="right"))
+    return min(index, probabilities.size - 1)
 
 
 class Behaviour(Protocol):
@@ -23,52 +61,230 @@ class Behaviour(Protocol):
 
     name: str
 
+    def refresh(self, world: World, options: OptionSpace) -> None:
+        """Take the world's (possibly changed) parameters."""
+
     def init_agent(self, agent: "ConcealmentAgent") -> None:
         """Give a new agent whatever memory the model needs."""
+
+    def start_of_day(self, day: int, staffing: Staffing, rng: np.random.Generator) -> None:
+        """Deliver what agents learn before they decide today."""
 
     def choose(self, agent: "ConcealmentAgent", rng: np.random.Generator) -> int:
         """Flat option index for the agent's attempt today."""
 
-    def learn(self, agent: "ConcealmentAgent", option: int, outcome: str) -> None:
+    def learn(self, agent: "ConcealmentAgent", option: int, outcome: str, day: int) -> None:
         """Take in the outcome of the agent's own attempt."""
 
+    def end_of_day(self, day: int, options: np.ndarray, outcomes: list[str], persons: np.ndarray) -> None:
+        """See the day's outcomes as a whole (for channels shared by everyone)."""
 
-class StaticBehaviour:
-    """Fixed option probabilities: the classic assumption that people do not react to checking."""
+    def agent_left(self, agent: "ConcealmentAgent") -> None:
+        """Forget an agent that left the system."""
 
-    name = "static"
 
-    def __init__(self, probabilities: np.ndarray) -> None:
-        if probabilities.ndim != 1 or abs(probabilities.sum() - 1.0) > 1e-9:
-            raise ValueError("option probabilities must be a vector summing to 1")
-        self.probabilities = probabilities
-        self._cumulative = np.cumsum(probabilities)
-
-    @classmethod
-    def from_world(cls, world: World, options: OptionSpace) -> "StaticBehaviour":
-        """Option probabilities as the product of the world's point, band and class shares."""
-        shares = world.adversary.static
-        point = np.array([shares.point_shares.get(p, 0.0) for p in world.point_names])
-        band = np.array([shares.band_shares.get(b, 0.0) for b in world.band_names])
-        vclass = np.array([shares.class_shares.get(c, 0.0) for c in world.class_names])
-        grid = point[:, None, None] * band[None, :, None] * vclass[None, None, :]
-        flat = grid.reshape(options.size)
-        return cls(flat / flat.sum())
+class _Quiet:
+    """No-op hooks for behaviours that do not need them."""
 
     def init_agent(self, agent: "ConcealmentAgent") -> None:
         return None
 
-    def choose(self, agent: "ConcealmentAgent", rng: np.random.Generator) -> int:
-        # inverse-CDF draw: one uniform per choice, cheaper than Generator.choice per agent
-        return int(min(np.searchsorted(self._cumulative, rng.random(), side="right"), self.probabilities.size - 1))
+    def start_of_day(self, day: int, staffing: Staffing, rng: np.random.Generator) -> None:
+        return None
 
-    def learn(self, agent: "ConcealmentAgent", option: int, outcome: str) -> None:
+    def learn(self, agent: "ConcealmentAgent", option: int, outcome: str, day: int) -> None:
+        return None
+
+    def end_of_day(self, day: int, options: np.ndarray, outcomes: list[str], persons: np.ndarray) -> None:
+        return None
+
+    def agent_left(self, agent: "ConcealmentAgent") -> None:
         return None
 
 
-def make_behaviour(world: World, options: OptionSpace) -> Behaviour:
+class StaticBehaviour(_Quiet):
+    """Fixed option probabilities: the product of the world's point, band and class shares."""
+
+    name = "static"
+
+    def __init__(self, world: World, options: OptionSpace) -> None:
+        self.refresh(world, options)
+
+    def refresh(self, world: World, options: OptionSpace) -> None:
+        shares = world.adversary.static
+        point = np.array([shares.point_shares.get(p, 0.0) for p in world.point_names])
+        band = np.array([shares.band_shares.get(b, 0.0) for b in world.band_names])
+        vclass = np.array([shares.class_shares.get(c, 0.0) for c in world.class_names])
+        flat = (point[:, None, None] * band[None, :, None] * vclass[None, None, :]).reshape(options.size)
+        self.probabilities = flat / flat.sum()
+
+    def choose(self, agent: "ConcealmentAgent", rng: np.random.Generator) -> int:
+        return _draw(self.probabilities, rng)
+
+
+@dataclass
+class Beliefs:
+    """One agent's evidence about each option: decayed counts of being caught and of crossing."""
+
+    caught: np.ndarray
+    crossed: np.ndarray
+    day: int  # day the counts were last decayed to
+    rumour_caught: np.ndarray  # the shared rumour totals when the agent arrived
+    rumour_crossed: np.ndarray
+    arrival_day: int
+
+
+class AdaptiveBehaviour:
+    """Learnt risk per option (Beta-Bernoulli with forgetting) and logit choice."""
+
+    name = "adaptive"
+
+    def __init__(self, world: World, options: OptionSpace, rng: np.random.Generator) -> None:
+        self.refresh(world, options)
+        self.network = nx.Graph()
+        self._network_rng = rng
+        self._messages: dict[int, list[tuple[int, int, bool]]] = defaultdict(list)
+        self._agents: dict[int, "ConcealmentAgent"] = {}
+        self._rumour_caught = np.zeros(options.size)
+        self._rumour_crossed = np.zeros(options.size)
+        self._history: dict[int, tuple[np.ndarray, np.ndarray]] = {}
+        self._presence = np.zeros(options.size)
+
+    def refresh(self, world: World, options: OptionSpace) -> None:
+        self.params = world.adversary.adaptive
+        self.options = options
+        waiting = np.array([self.params.band_waiting.get(b, 0.0) for b in world.band_names])
+        # everything in the utility but perceived risk, which is what is learnt
+        self.base_utility = -options.effort - self.params.hazard_aversion * options.hazard - waiting[options.band]
+
+    # -- memory -------------------------------------------------------------------------
+    def init_agent(self, agent: "ConcealmentAgent") -> None:
+        k = self.options.size
+        day = agent.arrival_day
+        agent.memory = Beliefs(np.zeros(k), np.zeros(k), day, self._rumour_caught.copy(), self._rumour_crossed.copy(), day)
+        present = [a for a in self.network.nodes if a in self._agents]
+        self.network.add_node(agent.unique_id)
+        self._agents[agent.unique_id] = agent
+        degree = min(self.params.network_degree, len(present))
+        if degree:
+            # links to random groups already in the area: a growing random network
+            for peer in self._network_rng.choice(np.array(present), size=degree, replace=False):
+                self.network.add_edge(agent.unique_id, int(peer))
+
+    def _decayed(self, beliefs: Beliefs, day: int) -> Beliefs:
+        if day > beliefs.day:
+            factor = self.params.forgetting ** (day - beliefs.day)
+            beliefs.caught *= factor
+            beliefs.crossed *= factor
+            beliefs.day = day
+        return beliefs
+
+    def perceived_risk(self, agent: "ConcealmentAgent", day: int) -> np.ndarray:
+        """Posterior mean chance of being caught, per option."""
+        p = self.params
+        b = self._decayed(agent.memory, day)
+        since = p.forgetting ** (day - b.arrival_day)
+        rumour_caught = self._rumour_caught - since * b.rumour_caught
+        rumour_crossed = self._rumour_crossed - since * b.rumour_crossed
+        alpha = p.prior_caught + b.caught + p.rumour_weight * rumour_caught
+        beta = p.prior_crossed + b.crossed + p.rumour_weight * rumour_crossed
+        return alpha / (alpha + beta)
+
+    # -- daily channels -----------------------------------------------------------------
+    def start_of_day(self, day: int, staffing: Staffing, rng: np.random.Generator) -> None:
+        for target, option, caught in self._messages.pop(day, []):
+            agent = self._agents.get(target)
+            if agent is not None:
+                beliefs = self._decayed(agent.memory, day)
+                (beliefs.caught if caught else beliefs.crossed)[option] += self.params.peer_weight
+        lagged = self._history.pop(day - self.params.rumour_delay_days, None)
+        f = self.params.forgetting
+        self._rumour_caught *= f
+        self._rumour_crossed *= f
+        if lagged is not None:
+            noise = np.exp(self.params.rumour_noise * rng.standard_normal(2))
+            self._rumour_caught += noise[0] * lagged[0]
+            self._rumour_crossed += noise[1] * lagged[1]
+        if self.params.presence_weight > 0:
+            patrol = staffing.patrol[self.options.point, self.options.band]
+            seen = patrol + self.params.presence_noise * rng.standard_normal(patrol.shape)
+            self._presence = self.params.presence_weight * np.clip(seen, 0.0, 1.0)
+
+    def choose(self, agent: "ConcealmentAgent", rng: np.random.Generator) -> int:
+        risk = np.minimum(self.perceived_risk(agent, agent.model.day) + self._presence, 1.0)
+        utility = self.base_utility - self.params.detection_cost * risk
+        valid = self.options.valid_for(agent.size)
+        if not valid.any():
+            valid = self.options.valid  # no class fits the group: it still tries, and finds no vehicle
+        probabilities = logit_probabilities(utility, self.params.rationality, valid, self.params.exploration)
+        return _draw(probabilities, rng)
+
+    def learn(self, agent: "ConcealmentAgent", option: int, outcome: str, day: int) -> None:
+        if outcome == "no_vehicle":
+            return  # says nothing about the risk of being caught
+        caught = outcome in CAUGHT
+        beliefs = self._decayed(agent.memory, day)
+        (beliefs.caught if caught else beliefs.crossed)[option] += self.params.own_weight
+        if self.params.peer_weight > 0 and agent.unique_id in self.network:
+            deliver = day + max(1, self.params.peer_delay_days)
+            for peer in self.network.neighbors(agent.unique_id):
+                self._messages[deliver].append((peer, option, caught))
+
+    def end_of_day(self, day: int, options: np.ndarray, outcomes: list[str], persons: np.ndarray) -> None:
+        k = self.options.size
+        caught = np.array([o in CAUGHT for o in outcomes], dtype=bool)
+        crossed = np.array([o == "crossed" for o in outcomes], dtype=bool)
+        self._history[day] = (
+            np.bincount(options[caught], minlength=k).astype(float),
+            np.bincount(options[crossed], minlength=k).astype(float),
+        )
+
+    def agent_left(self, agent: "ConcealmentAgent") -> None:
+        self._agents.pop(agent.unique_id, None)
+        if agent.unique_id in self.network:
+            self.network.remove_node(agent.unique_id)
+
+
+class ReinforcementBehaviour(_Quiet):
+    """Roth-Erev reinforcement of propensities shared by the whole population."""
+
+    name = "reinforcement"
+
+    def __init__(self, world: World, options: OptionSpace) -> None:
+        self.refresh(world, options)
+        self.propensity = np.where(options.valid, self.params.initial_propensity, 0.0)
+
+    def refresh(self, world: World, options: OptionSpace) -> None:
+        self.params = world.adversary.reinforcement
+        self.options = options
+
+    def choose(self, agent: "ConcealmentAgent", rng: np.random.Generator) -> int:
+        fits = self.propensity * self.options.valid_for(agent.size)
+        return _draw(fits if fits.sum() > 0 else self.propensity, rng)
+
+    def end_of_day(self, day: int, options: np.ndarray, outcomes: list[str], persons: np.ndarray) -> None:
+        p = self.params
+        payoff = {"crossed": p.payoff_crossed, "no_vehicle": p.payoff_no_vehicle}
+        valid = self.options.valid
+        others = max(int(valid.sum()) - 1, 1)
+        for option, outcome in zip(options, outcomes, strict=True):
+            reward = payoff.get(outcome, p.payoff_caught)
+            # Erev & Roth (1998) update: recency forgets, experimentation spreads the payoff
+            spread = np.where(valid, reward * p.experimentation / others, 0.0)
+            spread[option] = reward * (1.0 - p.experimentation)
+            self.propensity = (1.0 - p.recency) * self.propensity + spread
+        # keep every valid option reachable: propensities must stay positive
+        floor = 1e-9 * p.initial_propensity
+        self.propensity = np.where(valid, np.maximum(self.propensity, floor), 0.0)
+
+
+def make_behaviour(world: World, options: OptionSpace, rng: np.random.Generator) -> Behaviour:
     """The behaviour model the world asks for."""
-    adversary: Adversary = world.adversary
-    if adversary.behaviour == "static":
-        return StaticBehaviour.from_world(world, options)
-    raise ValueError(f"unknown behaviour model '{adversary.behaviour}'")
+    name = world.adversary.behaviour
+    if name == "static":
+        return StaticBehaviour(world, options)
+    if name == "adaptive":
+        return AdaptiveBehaviour(world, options, rng)
+    if name == "reinforcement":
+        return ReinforcementBehaviour(world, options)
+    raise ValueError(f"unknown behaviour model '{name}'")

@@ -16,7 +16,6 @@ import mesa
 import numpy as np
 
 from ..world.schema import Adversary
-from .behaviour import Behaviour
 
 if TYPE_CHECKING:
     from ..model import PortModel
@@ -40,7 +39,7 @@ class ConcealmentAgent(mesa.Agent):
 
     model: "PortModel"
 
-    def __init__(self, model: "PortModel", size: int, arrival_day: int, behaviour: Behaviour) -> None:
+    def __init__(self, model: "PortModel", size: int, arrival_day: int) -> None:
         super().__init__(model)
         self.size = size
         self.arrival_day = arrival_day
@@ -48,10 +47,9 @@ class ConcealmentAgent(mesa.Agent):
         self.state = State.WAITING
         self.encounters = 0
         self.person_refs: list[str | None] = [None] * size
-        self.behaviour = behaviour
-        self.memory: object = None
+        self.memory: object = None  # whatever the behaviour model keeps for this group
         self.option: int = -1
-        behaviour.init_agent(self)
+        model.behaviour.init_agent(self)
 
     def will_attempt(self, day: int) -> bool:
         """Today is one of the days this group tries (drawn with the daily attempt chance)."""
@@ -61,7 +59,7 @@ class ConcealmentAgent(mesa.Agent):
 
     def decide(self) -> int:
         """Choose today's option (boarding point x band x class)."""
-        self.option = self.behaviour.choose(self, self.model.rng)
+        self.option = self.model.behaviour.choose(self, self.model.rng)
         return self.option
 
     def identify(self, chance: float) -> list[str | None]:
@@ -76,19 +74,28 @@ class ConcealmentAgent(mesa.Agent):
     def after_outcome(self, outcome: str, day: int) -> None:
         """Move to the next state after today's attempt."""
         adversary: Adversary = self.model.world.adversary
-        self.behaviour.learn(self, self.option, outcome)
+        self.model.behaviour.learn(self, self.option, outcome, day)
         if outcome == "crossed":
             self.state = State.CROSSED
         elif outcome in ("interdicted", "detected"):
             self.encounters += 1
+            give_up, move = exit_chances(adversary, self.encounters)
             u = self.model.rng.random()
-            if u < adversary.give_up:
+            if u < give_up:
                 self.state = State.GAVE_UP
-            elif u < adversary.give_up + adversary.move_elsewhere:
+            elif u < give_up + move:
                 self.state = State.DISPLACED
             else:
                 self.ready_day = day + max(1, adversary.return_delay_days)
         # no vehicle: still waiting, tries again another day
+
+
+def exit_chances(adversary: Adversary, encounters: int) -> tuple[float, float]:
+    """Give-up and move-elsewhere chances after the ``encounters``-th encounter (deterrence grows them)."""
+    steps = max(encounters - 1, 0)
+    give_up = min(1.0, adversary.give_up + adversary.deterrence.give_up_step * steps)
+    move = min(1.0 - give_up, adversary.move_elsewhere + adversary.deterrence.move_elsewhere_step * steps)
+    return give_up, move
 
 
 def draw_group_sizes(adversary: Adversary, n: int, rng: np.random.Generator) -> np.ndarray:

@@ -18,12 +18,22 @@ class OptionSpace:
     n_classes: int
     hazard: np.ndarray  # (K,) hazard of the option's boarding point
     effort: np.ndarray  # (K,) effort of reaching the point
+    band: np.ndarray  # (K,) band index of each option
+    point: np.ndarray  # (K,) point index of each option
+    valid: np.ndarray  # (K,) bool: the class stops at the point and has room for somebody
+    capacity: np.ndarray  # (K,) people who fit in the option's vehicle class
 
     @classmethod
     def from_layout(cls, layout: Layout) -> "OptionSpace":
         n_p, n_b, n_c = layout.point_hazard.shape[0], int(layout.band_of_hour.max()) + 1, layout.n_classes
-        grid = np.indices((n_p, n_b, n_c)).reshape(3, -1)
-        return cls(n_p, n_b, n_c, layout.point_hazard[grid[0]], layout.point_effort[grid[0]])
+        point, band, vclass = np.indices((n_p, n_b, n_c)).reshape(3, -1)
+        valid = (layout.point_stop_share[point, vclass] > 0) & (layout.class_capacity[vclass] > 0)
+        capacity = layout.class_capacity[vclass]
+        return cls(n_p, n_b, n_c, layout.point_hazard[point], layout.point_effort[point], band, point, valid, capacity)
+
+    def valid_for(self, size: int) -> np.ndarray:
+        """Options a group of ``size`` can take: the whole group must fit in one vehicle."""
+        return self.valid & (self.capacity >= size)
 
     @property
     def size(self) -> int:

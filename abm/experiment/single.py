@@ -70,11 +70,24 @@ def package_versions() -> dict[str, str]:
     return versions
 
 
-def summarise(book: RecordBook, days: int) -> dict[str, Any]:
-    """The headline figures of a finished run (people counts are persons)."""
+def summarise(book: RecordBook, days: int, warmup: int = 0) -> dict[str, Any]:
+    """The headline figures of a finished run (people counts are persons).
+
+    With ``warmup`` > 0 the figures cover only days ``warmup`` onward (``days``
+    of them); the records themselves keep every day.
+    """
     truth = book.truth_tables()
     attempts, exits, arrivals = truth["attempts"], truth["exits"], truth["arrivals"]
     daily = book.daily_table()
+    tip, missed = book.time_in_port(), book.missed()
+    if warmup:
+        attempts = attempts[attempts["day"] >= warmup]
+        exits = exits[exits["day"] >= warmup]
+        arrivals = arrivals[arrivals["day"] >= warmup]
+        # Per-vehicle arrays are concatenated day by day, so the warm-up's vehicles come first.
+        skipped = int(daily.loc[daily["day"] < warmup, "vehicles"].sum()) if len(daily) else 0
+        tip, missed = tip[skipped:], missed[skipped:]
+        daily = daily[daily["day"] >= warmup]
 
     def persons(outcome: str) -> int:
         return int(attempts.loc[attempts["outcome"] == outcome, "persons"].sum())
@@ -82,9 +95,7 @@ def summarise(book: RecordBook, days: int) -> dict[str, Any]:
     def exited(state: str) -> int:
         return int(exits.loc[exits["state"] == state, "persons"].sum())
 
-    tip = book.time_in_port()
     finite = tip[np.isfinite(tip)]
-    missed = book.missed()
     summary: dict[str, Any] = {
         "days": days,
         "attempts": int(attempts["persons"].sum()),
@@ -103,8 +114,11 @@ def summarise(book: RecordBook, days: int) -> dict[str, Any]:
         "staff_hours": float(daily["staff_hours"].sum()) if len(daily) else 0.0,
         "time_in_port_p50_min": float(np.percentile(finite, 50)) if finite.size else None,
         "time_in_port_p95_min": float(np.percentile(finite, 95)) if finite.size else None,
-        "missed_departure_share": float(missed.mean()) if missed.size else 0.0,
+        # a crossing without sailings (a land border) has no departures to miss
+        "missed_departure_share": float(missed.mean()) if missed.size and book.layout.world.departures else None,
     }
+    if warmup:
+        summary["warmup_days"] = warmup
     summary["sources"] = {key: SUMMARY_SOURCES[key] for key in summary if key in SUMMARY_SOURCES}
     return summary
 
@@ -127,29 +141,37 @@ def run_to_directory(
     out: Path,
     command: list[str] | None = None,
     progress: Callable[[int], None] | None = None,
+    warmup: int = 0,
+    manifest_extra: dict[str, Any] | None = None,
 ) -> dict[str, Any]:
-    """Simulate and write a complete run directory atomically; returns the summary."""
+    """Simulate and write a complete run directory atomically; returns the summary.
+
+    ``warmup`` days are simulated before the ``days`` the summary covers (the
+    records keep them all); ``manifest_extra`` adds keys to the manifest, e.g.
+    which experiment run this is.
+    """
     out = Path(out)
     if out.exists():
         raise RunDirectoryExists(f"{out}: already exists; choose another output directory (nothing was overwritten)")
-    model = simulate(world, days, seed, progress)
+    model = simulate(world, warmup + days, seed, progress)
     staging = out.with_name(f".{out.name}.partial")
     if staging.exists():
         shutil.rmtree(staging)
     write_records(model.records, staging)
-    summary = summarise(model.records, days)
+    summary = summarise(model.records, days, warmup)
     write_json(summary, staging / "summary.json")
     write_json(world.model_dump(mode="json"), staging / WORLD_FILE)
-    write_json(
-        {
-            "world_name": world.name,
-            "world_sha256": world_hash,
-            "seed": seed,
-            "days": days,
-            "packages": package_versions(),
-            "command": command or [],
-        },
-        staging / "manifest.json",
-    )
+    manifest: dict[str, Any] = {
+        "world_name": world.name,
+        "world_sha256": world_hash,
+        "seed": seed,
+        "days": days,
+        "packages": package_versions(),
+        "command": command or [],
+    }
+    if warmup:
+        manifest["warmup_days"] = warmup
+    manifest.update(manifest_extra or {})
+    write_json(manifest, staging / "manifest.json")
     staging.rename(out)
     return summary

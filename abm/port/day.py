@@ -114,6 +114,17 @@ class DayEngine:
         self.free = [np.full(int(lanes), -np.inf) for lanes in layout.station_lanes]
         self.sailing_left: dict[int, np.ndarray] = {}
 
+    def change_layout(self, layout: Layout) -> None:
+        """Take a changed policy (same stations and points); lanes keep their state, new lanes start free."""
+        for s, lanes in enumerate(layout.station_lanes):
+            free = self.free[s]
+            if lanes > free.shape[0]:
+                self.free[s] = np.concatenate([free, np.full(int(lanes) - free.shape[0], -np.inf)])
+            elif lanes < free.shape[0]:
+                # removed lanes are the last ones: the recursion puts lanes above the staffed count off duty
+                self.free[s] = free[: int(lanes)]
+        self.layout = layout
+
     # -- helpers -------------------------------------------------------------------------
     def _band_at(self, minutes: np.ndarray) -> np.ndarray:
         hour = (np.floor(minutes / 60.0).astype(np.int64)) % 24

@@ -370,6 +370,10 @@ def _same_shape(before: World, after: World, source: str | Path, index: int) -> 
             raise WorldFileError(
                 source, f"interventions[{index}].set", f"an intervention may not add, remove or rename any {label}"
             )
+    if before.adversary.behaviour != after.adversary.behaviour:
+        raise WorldFileError(
+            source, f"interventions[{index}].set", "an intervention may not change adversary.behaviour (a run has one)"
+        )
 
 
 def load_world(path: str | Path) -> World:

@@ -282,7 +282,7 @@ class Learning(Strict):
     peer_weight: NonNegative = 0.5
     peer_delay_days: Count = 1
     network_degree: Count = Field(4, description="peers each new group links to")
-    rumour_weight: NonNegative = 0.05
+    rumour_weight: NonNegative = Field(0.5, description="weight of one rumoured outcome against one's own")
     rumour_delay_days: Count = 7
     rumour_noise: NonNegative = Field(0.2, description="log-normal spread of the rumoured counts")
     presence_weight: NonNegative = Field(0.0, description="weight of seen patrol presence as evidence of risk")
@@ -379,6 +379,14 @@ class World(Strict):
     adversary: Adversary
     interventions: list[Intervention] = Field(default_factory=list)
     displacement: DisplacementAreas | None = None
+
+    @field_validator("interventions")
+    @classmethod
+    def _in_day_order(cls, v: list[Intervention]) -> list[Intervention]:
+        days = [iv.day for iv in v]
+        if days != sorted(set(days)):
+            raise ValueError("interventions must be in day order, at most one a day")
+        return v
 
     @field_validator("vehicle_classes")
     @classmethod

@@ -1,0 +1,218 @@
+"""`undertow run`: a complete run directory, a printed table, and one-line errors with exit code 2."""
+
+from __future__ import annotations
+
+import contextlib
+import hashlib
+import io
+import json
+import subprocess
+import sys
+from pathlib import Path
+
+import pandas as pd
+import pytest
+
+from abm.cli import main
+
+ROOT = Path(__file__).resolve().parents[1]
+DEMO = ROOT / "worlds" / "kestrel_quay" / "world.yaml"
+UNDERTOW = Path(sys.executable).parent / "undertow"
+
+RECORD_FILES = [
+    "truth/attempts.parquet",
+    "truth/arrivals.parquet",
+    "truth/exits.parquet",
+    "observed/stations.parquet",
+    "observed/checks.parquet",
+    "observed/encounters.parquet",
+    "observed/false_alarms.parquet",
+    "daily.parquet",
+]
+SUMMARY_KEYS = [
+    "attempts",
+    "interdictions",
+    "detections",
+    "crossings",
+    "displaced_out",
+    "gave_up",
+    "vehicles",
+    "checks",
+    "false_alarms",
+    "time_in_port_p50_min",
+    "time_in_port_p95_min",
+    "missed_departure_share",
+]
+
+
+def invoke(capsys: pytest.CaptureFixture[str], *argv: str | Path) -> tuple[int, str, str]:
+    """Run ``abm.cli.main`` in process; argparse's usage errors leave through SystemExit, counted alike."""
+    try:
+        code = main([str(a) for a in argv])
+    except SystemExit as exc:  # what the console script would turn into the exit code
+        code = exc.code if isinstance(exc.code, int) else 1
+    out, err = capsys.readouterr()
+    return code, out, err
+
+
+def snapshot(directory: Path) -> dict[str, bytes]:
+    """Every file under a directory, by relative path, with its bytes."""
+    return {str(p.relative_to(directory)): p.read_bytes() for p in sorted(directory.rglob("*")) if p.is_file()}
+
+
+def run_args(out: Path, days: str = "5", seed: str = "1", world: Path | str = DEMO) -> list[str]:
+    return ["run", str(world), "--days", days, "--seed", seed, "--out", str(out)]
+
+
+@pytest.fixture(scope="module")
+def first_run(tmp_path_factory) -> dict:
+    """One in-process `undertow run` of the demo world for 5 days."""
+    out = tmp_path_factory.mktemp("runs") / "demo-5"
+    stdout, stderr = io.StringIO(), io.StringIO()
+    with contextlib.redirect_stdout(stdout), contextlib.redirect_stderr(stderr):
+        code = main(run_args(out))
+    return {"out": out, "code": code, "stdout": stdout.getvalue(), "stderr": stderr.getvalue()}
+
+
+def test_run_exits_zero_and_writes_every_file(first_run):
+    assert first_run["code"] == 0, first_run["stderr"]
+    out = first_run["out"]
+    for name in RECORD_FILES + ["manifest.json", "summary.json"]:
+        assert (out / name).is_file(), f"{name} missing from the run directory"
+    # written under a temporary name and renamed: nothing partial or temporary is left behind
+    assert not list(out.parent.glob(".*partial*"))
+    assert not [p for p in out.rglob(".*") if p.is_file()]
+    for name in RECORD_FILES:
+        frame = pd.read_parquet(out / name)
+        assert list(frame.columns), name
+    daily = pd.read_parquet(out / "daily.parquet")
+    assert list(daily["day"]) == [0, 1, 2, 3, 4]
+
+
+def test_manifest_records_world_hash_seed_days_packages_and_command(first_run):
+    manifest = json.loads((first_run["out"] / "manifest.json").read_text(encoding="utf-8"))
+    assert manifest["world_sha256"] == hashlib.sha256(DEMO.read_bytes()).hexdigest()
+    assert manifest["seed"] == 1
+    assert manifest["days"] == 5
+    packages = manifest["packages"]
+    assert isinstance(packages, dict)
+    for name in ("python", "numpy", "pandas", "mesa", "pyarrow", "undertow"):
+        assert packages.get(name) and packages[name] != "not installed", name
+    command = manifest["command"]
+    assert isinstance(command, list) and command and command[0] == "undertow"
+
+
+@pytest.mark.xfail(
+    strict=True,
+    reason=(
+        "abm/cli.py cmd_run builds the manifest command from sys.argv ('undertow', *sys.argv[1:]) "
+        "instead of the argv given to main(), so an in-process main([...]) records the host "
+        "program's arguments"
+    ),
+)
+def test_manifest_command_is_the_command_that_was_run(tmp_path, capsys, monkeypatch):
+    monkeypatch.setattr(sys, "argv", ["host-program", "--host-flag"])
+    out = tmp_path / "run"
+    argv = run_args(out, days="1")
+    code, _, err = invoke(capsys, *argv)
+    assert code == 0, err
+    manifest = json.loads((out / "manifest.json").read_text(encoding="utf-8"))
+    assert manifest["command"] == ["undertow", *argv]
+
+
+def test_summary_has_the_headline_figures(first_run):
+    summary = json.loads((first_run["out"] / "summary.json").read_text(encoding="utf-8"))
+    for key in SUMMARY_KEYS:
+        assert key in summary, f"summary.json lacks {key}"
+    for key in SUMMARY_KEYS:
+        assert isinstance(summary[key], (int, float)), key
+    assert summary["vehicles"] > 10_000
+    assert 0 < summary["checks"] <= summary["vehicles"]
+    assert summary["time_in_port_p50_min"] <= summary["time_in_port_p95_min"]
+    assert 0.0 <= summary["missed_departure_share"] <= 1.0
+    assert summary["attempts"] == summary["interdictions"] + summary["detections"] + summary["crossings"] + summary["no_vehicle"]
+    # every figure says which record set it comes from
+    assert set(SUMMARY_KEYS) <= set(summary["sources"])
+    assert set(summary["sources"].values()) <= {"truth", "observed"}
+    # the summary agrees with the records it was built from
+    daily = pd.read_parquet(first_run["out"] / "daily.parquet")
+    assert summary["vehicles"] == int(daily["vehicles"].sum())
+    attempts = pd.read_parquet(first_run["out"] / "truth" / "attempts.parquet")
+    assert summary["attempts"] == int(attempts["persons"].sum())
+
+
+def test_run_prints_the_summary_table(first_run):
+    text = first_run["stdout"]
+    lines = text.splitlines()
+    assert "5 days, seed 1" in lines[0] and str(first_run["out"]) in lines[0]
+    summary = json.loads((first_run["out"] / "summary.json").read_text(encoding="utf-8"))
+    for key in SUMMARY_KEYS:
+        row = next((line for line in lines if line.split() and line.split()[0] == key), None)
+        assert row is not None, f"table has no row for {key}"
+        assert row.split()[-1] == summary["sources"][key]
+    assert f"{summary['vehicles']:,}" in text
+    assert "Traceback" not in first_run["stderr"]
+
+
+def test_running_into_an_existing_directory_exits_2_and_keeps_the_first_run(first_run, capsys):
+    out = first_run["out"]
+    before = snapshot(out)
+    code, stdout, err = invoke(capsys, *run_args(out, seed="2"))
+    assert code == 2
+    assert len(err.strip().splitlines()) == 1, err
+    assert str(out) in err and "Traceback" not in err
+    assert snapshot(out) == before, "the first run directory was changed"
+    assert not list(out.parent.glob(f".{out.name}*"))
+
+
+@pytest.mark.parametrize(
+    "argv,needle",
+    [
+        (["--days", "0"], "--days"),
+        (["--days", "-3"], "--days"),
+        (["--days", "five"], "--days"),
+        (["--seed", "x"], "--seed"),
+        (["--seed", "-1"], "--seed"),
+    ],
+    ids=["days-0", "days-negative", "days-text", "seed-text", "seed-negative"],
+)
+def test_bad_arguments_exit_2_with_one_line(tmp_path, capsys, argv, needle):
+    out = tmp_path / "never"
+    args = ["run", str(DEMO), "--out", str(out), *argv]
+    code, stdout, err = invoke(capsys, *args)
+    assert code == 2
+    assert len(err.strip().splitlines()) == 1, err
+    assert needle in err and "Traceback" not in err
+    assert not out.exists()
+
+
+def test_missing_world_exits_2_with_one_line(tmp_path, capsys):
+    missing = tmp_path / "nowhere" / "world.yaml"
+    out = tmp_path / "never"
+    code, stdout, err = invoke(capsys, *run_args(out, world=missing))
+    assert code == 2
+    lines = err.strip().splitlines()
+    assert len(lines) == 1, err
+    assert str(missing) in lines[0] and "not found" in lines[0]
+    assert "Traceback" not in err
+    assert not out.exists()
+
+
+def test_console_script_runs(tmp_path):
+    """The installed `undertow` entry point, as a user would run it."""
+    assert UNDERTOW.exists(), f"no console script at {UNDERTOW}"
+    out = tmp_path / "cli-run"
+    argv = [str(UNDERTOW), *run_args(out, days="2", seed="3")]
+    proc = subprocess.run(argv, capture_output=True, text=True, timeout=120, cwd=tmp_path)
+    assert proc.returncode == 0, proc.stderr
+    assert "Traceback" not in proc.stderr
+    assert "2 days, seed 3" in proc.stdout
+    for name in RECORD_FILES + ["manifest.json", "summary.json"]:
+        assert (out / name).is_file(), name
+    manifest = json.loads((out / "manifest.json").read_text(encoding="utf-8"))
+    assert manifest["command"] == ["undertow", *argv[1:]]
+    assert manifest["seed"] == 3 and manifest["days"] == 2
+    # and a usage error from the real process: exit 2, one line, no traceback
+    bad = subprocess.run([str(UNDERTOW), *run_args(tmp_path / "bad", days="0")], capture_output=True, text=True, timeout=120)
+    assert bad.returncode == 2
+    assert len(bad.stderr.strip().splitlines()) == 1 and "Traceback" not in bad.stderr

@@ -88,6 +88,14 @@ def cmd_demo(args: argparse.Namespace) -> int:
     return _run_world(DEMO_WORLD, args.days, args.seed, out, ["undertow", "demo"])
 
 
+def cmd_estimate(args: argparse.Namespace) -> int:
+    """Estimate the unobserved flow from a run directory's observed records."""
+    from .estimate.report import estimate_command
+
+    estimate_command(args.run_dir, args.window, args.level, args.sensitivity, args.seed)
+    return EXIT_OK
+
+
 def _positive_int(text: str) -> int:
     try:
         value = int(text)
@@ -129,6 +137,20 @@ def build_parser() -> argparse.ArgumentParser:
     demo.add_argument("--seed", type=_seed, default=0)
     demo.add_argument("--out", default="outputs/demo")
     demo.set_defaults(func=cmd_demo)
+
+    estimate = sub.add_parser("estimate", help="estimate the unobserved flow from a run's observed records")
+    estimate.add_argument("run_dir", help="run directory holding observed/")
+    estimate.add_argument("--window", metavar="START:END", help="days to use, both inclusive (default: all)")
+    estimate.add_argument("--level", type=float, default=0.9, help="confidence level of the intervals (default 0.9)")
+    estimate.add_argument(
+        "--sensitivity",
+        action="append",
+        default=[],
+        metavar="NAME=A,B",
+        help="Beta(a, b) sensitivity of a station or check method, for the expansions (repeatable)",
+    )
+    estimate.add_argument("--seed", type=_seed, help="seed for the expansions' bootstrap intervals (default: none)")
+    estimate.set_defaults(func=cmd_estimate)
     return parser
 
 

@@ -1,0 +1,237 @@
+"""Run every estimator on a run's observed records, print a table, write estimates.csv and estimates.json."""
+
+from __future__ import annotations
+
+import json
+import os
+import tempfile
+from collections.abc import Callable, Sequence
+from functools import partial
+from pathlib import Path
+from typing import TextIO
+
+import numpy as np
+import pandas as pd
+
+from ..errors import InputError
+from .expansion import EXPANSION, Sensitivities, beta_for, expansion, expansion_name, selection_shares
+from .frequency import (
+    CHAO,
+    CHAO_BC,
+    ZELTERMAN,
+    ZTP,
+    ZTP_REGRESSION,
+    chao,
+    chao_bias_corrected,
+    zelterman,
+    ztp,
+    ztp_regression,
+)
+from .inputs import Observed, load_tables, primary_stations, read_tables
+from .removal import (
+    CARLE_STRUB,
+    RELATIVE,
+    TWO_PASS,
+    ZIPPIN,
+    removal_carle_strub,
+    removal_relative_sensitivity,
+    removal_two_pass,
+    removal_zippin,
+)
+from .results import DEFAULT_LEVEL, FRAME_COLUMNS, EstimateResult, EstimatorCannotRun, z_value
+from .twosample import CHAPMAN, chapman
+from .windows import Window, check_window, in_window
+
+CSV_NAME, JSON_NAME = "estimates.csv", "estimates.json"
+
+
+def relative_sensitivities(
+    observed: Observed, window: Window, sensitivities: Sensitivities | None
+) -> dict[str, float]:
+    """Relative catchability per primary station: overall selection share × mean assumed sensitivity."""
+    tables = load_tables(
+        observed,
+        {"stations": ["station", "position", "role", "method"], "checks": ["day", "station", "vehicles", "checks"]},
+        RELATIVE,
+    )
+    stations = tables["stations"].set_index("station")
+    checks = in_window(tables["checks"], window).assign(all="all")
+    out = {}
+    for station in primary_stations(tables["stations"], RELATIVE):
+        a, b = beta_for(station, str(stations.loc[station, "method"]), sensitivities, RELATIVE)
+        share = float(selection_shares(checks, station, ["all"], RELATIVE).iloc[0])
+        out[station] = share * a / (a + b)
+    return out
+
+
+def run_all(
+    observed: Observed,
+    window: Window = None,
+    level: float = DEFAULT_LEVEL,
+    sensitivities: Sensitivities | None = None,
+    *,
+    rng: np.random.Generator | None = None,
+) -> tuple[list[EstimateResult], list[tuple[str, str]]]:
+    """Every estimator that can run, and (name, reason) for each that cannot.
+
+    Without ``sensitivities`` (Beta(a, b) per station or check method) the
+    expansion and the relative-sensitivity removal cannot run. The relative
+    sensitivity of a station for removal is its selection share in the
+    window times the mean of its Beta. ``rng`` adds bootstrap intervals to the
+    expansions.
+    """
+    tables = read_tables(observed)
+    window = check_window(window, "estimation")
+    z_value(level, "estimation")
+
+    def relative() -> EstimateResult:
+        weights = relative_sensitivities(tables, window, sensitivities)
+        return removal_relative_sensitivity(tables, window, level, sensitivities=weights)
+
+    standard = (
+        (CHAO, chao),
+        (CHAO_BC, chao_bias_corrected),
+        (ZELTERMAN, zelterman),
+        (ZTP, ztp),
+        (ZTP_REGRESSION, ztp_regression),
+        (CHAPMAN, chapman),
+        (TWO_PASS, removal_two_pass),
+        (CARLE_STRUB, removal_carle_strub),
+        (ZIPPIN, removal_zippin),
+    )
+    jobs: list[tuple[str, Callable[[], EstimateResult]]] = [
+        (name, partial(fn, tables, window, level)) for name, fn in standard
+    ]
+    jobs.append((RELATIVE, relative))
+    results: list[EstimateResult] = []
+    failures: list[tuple[str, str]] = []
+    try:
+        needs = {"stations": ["station", "position", "role"]}
+        stations = primary_stations(load_tables(tables, needs, EXPANSION)["stations"], EXPANSION)
+    except EstimatorCannotRun as exc:
+        failures.append((EXPANSION, exc.reason))
+        stations = []
+    jobs += [
+        (
+            expansion_name(station),
+            partial(expansion, tables, window, level, sensitivities=sensitivities, station=station, rng=rng),
+        )
+        for station in stations
+    ]
+    for name, job in jobs:
+        try:
+            results.append(job())
+        except EstimatorCannotRun as exc:
+            failures.append((name, exc.reason))
+    return results, failures
+
+
+def results_frame(results: Sequence[EstimateResult]) -> pd.DataFrame:
+    """One row per result, with the columns of :meth:`EstimateResult.to_frame`."""
+    if not results:
+        return pd.DataFrame(columns=list(FRAME_COLUMNS))
+    return pd.concat([r.to_frame() for r in results], ignore_index=True)
+
+
+def format_table(results: Sequence[EstimateResult], failures: Sequence[tuple[str, str]], level: float) -> str:
+    """The printed report: a table of estimates, then the estimators that cannot run and why."""
+    pct = f"{100 * level:g}%"
+    header = ("method", "target", "estimate", "SE", f"{pct} interval", "observed")
+    rows = [
+        (r.method, r.target, f"{r.estimate:.1f}", f"{r.se:.1f}", f"{r.ci_low:.1f} to {r.ci_high:.1f}", str(r.observed))
+        for r in results
+    ]
+    lines = []
+    if rows:
+        widths = [max(len(row[i]) for row in [header, *rows]) for i in range(len(header))]
+        right = {2, 3, 4, 5}  # numbers align right
+
+        def line(cells: Sequence[str]) -> str:
+            return "  ".join(c.rjust(w) if i in right else c.ljust(w) for i, (c, w) in enumerate(zip(cells, widths)))
+
+        lines += [line(header), line(["-" * w for w in widths]), *(line(row) for row in rows)]
+    else:
+        lines.append("no estimator could run on these records")
+    if failures:
+        lines += ["", "cannot run:"]
+        lines += [f"  {name}: {reason}" for name, reason in failures]
+    return "\n".join(lines)
+
+
+def _write_atomic(path: Path, text: str) -> None:
+    """Write to a temporary name in the same folder, then rename over ``path``."""
+    handle, temp = tempfile.mkstemp(dir=path.parent, prefix=f".{path.name}.", suffix=".tmp")
+    try:
+        with os.fdopen(handle, "w", encoding="utf-8", newline="") as out:
+            out.write(text)
+        os.chmod(temp, 0o644)  # mkstemp makes the file private; these are ordinary outputs
+        os.replace(temp, path)
+    except BaseException:
+        Path(temp).unlink(missing_ok=True)
+        raise
+
+
+def write_estimates(
+    run_dir: str | os.PathLike[str],
+    results: Sequence[EstimateResult],
+    failures: Sequence[tuple[str, str]],
+    *,
+    window: Window,
+    level: float,
+) -> tuple[Path, Path]:
+    """Write ``estimates.csv`` (one row per result) and ``estimates.json`` (results and failures) atomically."""
+    base = Path(run_dir)
+    csv_path, json_path = base / CSV_NAME, base / JSON_NAME
+    _write_atomic(csv_path, results_frame(results).to_csv(index=False))
+    document = {
+        "window": None if window is None else list(window),
+        "level": level,
+        "estimates": [r.to_dict() for r in results],
+        "cannot_run": [{"method": name, "reason": reason} for name, reason in failures],
+    }
+    # allow_nan=False: a NaN reaching the file is a fault, not a value
+    _write_atomic(json_path, json.dumps(document, indent=2, allow_nan=False) + "\n")
+    return csv_path, json_path
+
+
+def parse_window(text: str) -> tuple[int, int]:
+    """``START:END`` (days, inclusive) as a pair of ints."""
+    try:
+        start, end = (int(part) for part in text.split(":"))
+    except ValueError:
+        raise InputError(f"--window must be START:END in whole days, got '{text}'") from None
+    if start > end:
+        raise InputError(f"--window start {start} is after its end {end}")
+    return start, end
+
+
+def parse_sensitivity(text: str) -> tuple[str, tuple[float, float]]:
+    """``NAME=A,B`` (station or check method, Beta parameters) as (name, (a, b))."""
+    name, _, values = text.partition("=")
+    try:
+        a, b = (float(v) for v in values.split(","))
+    except ValueError:
+        raise InputError(f"--sensitivity must be NAME=A,B (a Beta(a, b) per station or method), got '{text}'") from None
+    if not name or not (a > 0 and b > 0):
+        raise InputError(f"--sensitivity needs a name and a, b > 0, got '{text}'")
+    return name, (a, b)
+
+
+def estimate_command(
+    run_dir: str,
+    window: str | None = None,
+    level: float = DEFAULT_LEVEL,
+    sensitivity: Sequence[str] = (),
+    seed: int | None = None,
+    out: TextIO | None = None,
+) -> None:
+    """What ``undertow estimate`` does: run every estimator, print the table, write the two files."""
+    if not 0.0 < level < 1.0:
+        raise InputError(f"--level must lie strictly between 0 and 1, got {level}")
+    span = parse_window(window) if window is not None else None
+    sensitivities = dict(parse_sensitivity(text) for text in sensitivity)
+    rng = np.random.default_rng(seed) if seed is not None else None
+    results, failures = run_all(run_dir, span, level, sensitivities or None, rng=rng)
+    csv_path, json_path = write_estimates(run_dir, results, failures, window=span, level=level)
+    print(format_table(results, failures, level), file=out)
+    print(f"\nwrote {csv_path} and {json_path}", file=out)

@@ -88,6 +88,14 @@ def cmd_demo(args: argparse.Namespace) -> int:
     return _run_world(DEMO_WORLD, args.days, args.seed, out, ["undertow", "demo"])
 
 
+def cmd_compare(args: argparse.Namespace) -> int:
+    """Compare a baseline run with a policy run: where attempts moved and whether the effect is real."""
+    from .analysis.displacement import displacement_between_runs
+
+    print(displacement_between_runs(args.run_a, args.run_b, warmup=args.warmup).summary())
+    return EXIT_OK
+
+
 def cmd_estimate(args: argparse.Namespace) -> int:
     """Estimate the unobserved flow from a run directory's observed records."""
     from .estimate.report import estimate_command
@@ -116,6 +124,16 @@ def _seed(text: str) -> int:
     return value
 
 
+def _non_negative_int(text: str) -> int:
+    try:
+        value = int(text)
+    except ValueError:
+        raise argparse.ArgumentTypeError(f"expected a whole number, got '{text}'") from None
+    if value < 0:
+        raise argparse.ArgumentTypeError(f"expected a number of 0 or more, got {value}")
+    return value
+
+
 def build_parser() -> argparse.ArgumentParser:
     """The argument parser with every sub-command."""
     parser = _Parser(prog="undertow", description=__doc__.splitlines()[0])
@@ -137,6 +155,14 @@ def build_parser() -> argparse.ArgumentParser:
     demo.add_argument("--seed", type=_seed, default=0)
     demo.add_argument("--out", default="outputs/demo")
     demo.set_defaults(func=cmd_demo)
+
+    compare = sub.add_parser("compare", help="compare a baseline run and a policy run: displacement and net effect")
+    compare.add_argument("run_a", metavar="RUN_A", help="baseline run directory")
+    compare.add_argument("run_b", metavar="RUN_B", help="policy run directory (same seed: common random numbers)")
+    compare.add_argument(
+        "--warmup", type=_non_negative_int, default=0, metavar="DAYS", help="days to drop from the start of both runs"
+    )
+    compare.set_defaults(func=cmd_compare)
 
     estimate = sub.add_parser("estimate", help="estimate the unobserved flow from a run's observed records")
     estimate.add_argument("run_dir", help="run directory holding observed/")

@@ -26,10 +26,14 @@ class _Parser(argparse.ArgumentParser):
 
 
 def cmd_check(args: argparse.Namespace) -> int:
-    """Validate a world file."""
+    """Validate world files and experiment files (an experiment's every design point included)."""
+    from .experiment.design import describe_experiment, is_experiment_file
     from .world import load_world
 
     for path in args.files:
+        if is_experiment_file(path):
+            print(describe_experiment(path))
+            continue
         world = load_world(path)
         print(f"{path}: ok ({world.name}; {len(world.stations)} stations, {len(world.boarding_points)} boarding points)")
     return EXIT_OK
@@ -73,7 +77,7 @@ def cmd_run(args: argparse.Namespace) -> int:
     """Simulate a world for some days and write a run directory."""
     world = Path(args.world)
     out = Path(args.out) if args.out else Path("outputs") / f"{world.parent.name or world.stem}-seed{args.seed}"
-    return _run_world(world, args.days, args.seed, out, ["undertow", *sys.argv[1:]])
+    return _run_world(world, args.days, args.seed, out, ["undertow", *args.argv])
 
 
 def cmd_demo(args: argparse.Namespace) -> int:
@@ -81,11 +85,24 @@ def cmd_demo(args: argparse.Namespace) -> int:
     if not DEMO_WORLD.exists():
         raise InputError(f"{DEMO_WORLD}: the demo world is not here; run from a checkout of the project")
     out = Path(args.out)
-    if out.exists():
-        import shutil
-
-        shutil.rmtree(out)  # the demo's own folder: a fresh demo replaces the last one
+    _clear_previous_demo(out)
     return _run_world(DEMO_WORLD, args.days, args.seed, out, ["undertow", "demo"])
+
+
+def _clear_previous_demo(out: Path) -> None:
+    """A fresh demo replaces the last demo's folder, and nothing else."""
+    if not out.exists():
+        return
+    import json
+    import shutil
+
+    try:
+        command = json.loads((out / "manifest.json").read_text(encoding="utf-8")).get("command", [])
+    except (OSError, ValueError):
+        command = []
+    if command[:2] != ["undertow", "demo"]:
+        raise InputError(f"{out}: exists and is not an earlier demo; choose another --out (nothing was removed)")
+    shutil.rmtree(out)
 
 
 def cmd_compare(args: argparse.Namespace) -> int:
@@ -102,6 +119,19 @@ def cmd_estimate(args: argparse.Namespace) -> int:
 
     estimate_command(args.run_dir, args.window, args.level, args.sensitivity, args.seed)
     return EXIT_OK
+
+
+def cmd_batch(args: argparse.Namespace) -> int:
+    """Run every run of an experiment into a batch folder; print the per-design-point comparison."""
+    from .experiment.batch import batch_command
+
+    command = ["undertow", *sys.argv[1:]]
+    try:
+        ok = batch_command(args.experiment, args.out, args.executor, args.workers, args.scheduler, args.resume, command)
+    except KeyboardInterrupt:
+        print(f"undertow batch: interrupted; complete runs are kept in {args.out}; add --resume to finish", file=sys.stderr)
+        return EXIT_INTERRUPTED
+    return EXIT_OK if ok else EXIT_FAULT
 
 
 def _positive_int(text: str) -> int:
@@ -139,9 +169,20 @@ def build_parser() -> argparse.ArgumentParser:
     parser = _Parser(prog="undertow", description=__doc__.splitlines()[0])
     sub = parser.add_subparsers(dest="command", required=True, parser_class=_Parser)
 
-    check = sub.add_parser("check", help="validate world files")
-    check.add_argument("files", nargs="+", help="world YAML files")
+    check = sub.add_parser("check", help="validate world files and experiment files")
+    check.add_argument("files", nargs="+", help="world or experiment YAML files")
     check.set_defaults(func=cmd_check)
+
+    batch = sub.add_parser("batch", help="run an experiment's batch of runs and compare its design points")
+    batch.add_argument("experiment", help="experiment YAML file")
+    batch.add_argument("--out", required=True, help="batch folder to create (or to finish, with --resume)")
+    batch.add_argument(
+        "--executor", choices=["serial", "processes", "dask"], help="where runs execute (default serial; dask with --scheduler)"
+    )
+    batch.add_argument("--workers", type=_positive_int, help="worker processes (default: one per CPU)")
+    batch.add_argument("--scheduler", metavar="ADDRESS", help="an existing Dask scheduler, e.g. tcp://10.0.0.5:8786")
+    batch.add_argument("--resume", action="store_true", help="finish a batch in --out: skip complete runs, redo the rest")
+    batch.set_defaults(func=cmd_batch)
 
     run = sub.add_parser("run", help="simulate a world and write a run directory")
     run.add_argument("world", help="world YAML file")
@@ -182,7 +223,9 @@ def build_parser() -> argparse.ArgumentParser:
 
 def main(argv: Sequence[str] | None = None) -> int:
     """Entry point of the console script."""
+    argv = list(sys.argv[1:] if argv is None else argv)
     args = build_parser().parse_args(argv)
+    args.argv = argv  # the exact command, for run manifests
     func: Callable[[argparse.Namespace], int] = args.func
     try:
         return func(args)

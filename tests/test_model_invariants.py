@@ -476,15 +476,6 @@ def test_selection_fraction_leaves_traffic_and_arrivals_identical(baseline, more
     assert int(more["vehicles"].iloc[0]) == int(base["vehicles"].iloc[0])
 
 
-@pytest.mark.xfail(
-    strict=True,
-    reason=(
-        "abm/port/day.py run_day (line ~224: when = np.where(checked, start, arrive)) files the "
-        "observed checks row of a checked vehicle under the hour its check STARTS and of an "
-        "unchecked one under its arrival hour, so checks.vehicles per station-hour depends on the "
-        "selection policy (queueing moves checked vehicles into later hours)"
-    ),
-)
 def test_selection_fraction_leaves_first_station_vehicles_per_hour_identical(baseline, more_selection):
     base = _first_station(baseline[0], ["day", "hour"])["vehicles"]
     more = _first_station(more_selection[0], ["day", "hour"])["vehicles"]

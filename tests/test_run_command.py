@@ -102,14 +102,6 @@ def test_manifest_records_world_hash_seed_days_packages_and_command(first_run):
     assert isinstance(command, list) and command and command[0] == "undertow"
 
 
-@pytest.mark.xfail(
-    strict=True,
-    reason=(
-        "abm/cli.py cmd_run builds the manifest command from sys.argv ('undertow', *sys.argv[1:]) "
-        "instead of the argv given to main(), so an in-process main([...]) records the host "
-        "program's arguments"
-    ),
-)
 def test_manifest_command_is_the_command_that_was_run(tmp_path, capsys, monkeypatch):
     monkeypatch.setattr(sys, "argv", ["host-program", "--host-flag"])
     out = tmp_path / "run"

@@ -124,14 +124,11 @@ class StaticBehaviour(_Quiet):
 
 @dataclass
 class Beliefs:
-    """One agent's evidence about each option: decayed counts of being caught and of crossing."""
+    """One agent's own and peer evidence about each option: decayed counts of being caught and of crossing."""
 
     caught: np.ndarray
     crossed: np.ndarray
     day: int  # day the counts were last decayed to
-    rumour_caught: np.ndarray  # the shared rumour totals when the agent arrived
-    rumour_crossed: np.ndarray
-    arrival_day: int
 
 
 class AdaptiveBehaviour:
@@ -161,7 +158,7 @@ class AdaptiveBehaviour:
     def init_agent(self, agent: "ConcealmentAgent") -> None:
         k = self.options.size
         day = agent.arrival_day
-        agent.memory = Beliefs(np.zeros(k), np.zeros(k), day, self._rumour_caught.copy(), self._rumour_crossed.copy(), day)
+        agent.memory = Beliefs(np.zeros(k), np.zeros(k), day)
         present = [a for a in self.network.nodes if a in self._agents]
         self.network.add_node(agent.unique_id)
         self._agents[agent.unique_id] = agent
@@ -179,15 +176,21 @@ class AdaptiveBehaviour:
             beliefs.day = day
         return beliefs
 
-    def perceived_risk(self, agent: "ConcealmentAgent", day: int) -> np.ndarray:
-        """Posterior mean chance of being caught, per option."""
+    def posterior(self, agent: "ConcealmentAgent", day: int) -> tuple[np.ndarray, np.ndarray]:
+        """Beta(alpha, beta) belief about the chance of being caught, per option.
+
+        Prior + own and peer evidence + weighted rumour; the rumour is what
+        circulates in the area, so a newcomer hears it at once.
+        """
         p = self.params
         b = self._decayed(agent.memory, day)
-        since = p.forgetting ** (day - b.arrival_day)
-        rumour_caught = self._rumour_caught - since * b.rumour_caught
-        rumour_crossed = self._rumour_crossed - since * b.rumour_crossed
-        alpha = p.prior_caught + b.caught + p.rumour_weight * rumour_caught
-        beta = p.prior_crossed + b.crossed + p.rumour_weight * rumour_crossed
+        alpha = p.prior_caught + b.caught + p.rumour_weight * self._rumour_caught
+        beta = p.prior_crossed + b.crossed + p.rumour_weight * self._rumour_crossed
+        return alpha, beta
+
+    def perceived_risk(self, agent: "ConcealmentAgent", day: int) -> np.ndarray:
+        """Posterior mean chance of being caught, per option."""
+        alpha, beta = self.posterior(agent, day)
         return alpha / (alpha + beta)
 
     # -- daily channels -----------------------------------------------------------------

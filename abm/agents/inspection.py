@@ -129,28 +129,6 @@ class RandomisedCommand(FixedCommand):
         return staffing
 
 
-def integer_lanes(target: np.ndarray, cap: np.ndarray, total: int) -> np.ndarray:
-    """Whole lanes close to a fractional target, within caps, summing to ``total`` where caps allow.
-
-    Largest-remainder rounding: floors first, then one more lane to the cells
-    with the largest remainders that still have room.
-    """
-    target = np.minimum(target, cap)
-    lanes = np.floor(target).astype(np.int64)
-    remainder = (target - lanes).ravel()
-    spare = (cap - lanes).ravel()
-    left = total - int(lanes.sum())
-    flat = lanes.ravel()
-    for cell in np.argsort(-remainder, kind="stable"):
-        if left <= 0:
-            break
-        if spare[cell] > 0:
-            flat[cell] += 1
-            spare[cell] -= 1
-            left -= 1
-    return flat.reshape(lanes.shape)
-
-
 class ReactiveCommand:
     """Move a share of flexible capacity toward recent detections, at constant flexible totals."""
 
@@ -174,15 +152,34 @@ class ReactiveCommand:
         return staffing
 
     def _move_lanes(self, rostered: np.ndarray, fixed: np.ndarray, layout: Layout) -> np.ndarray:
-        total = int(rostered.sum())
-        band = layout.band_of_hour
-        hours_in_band = np.bincount(band, minlength=self.station_score.shape[1])
-        weight = self.station_score[:, band] / hours_in_band[band]  # spread a band's score over its hours
-        if total == 0 or weight.sum() <= 0:
+        """Move whole lane-hours from the flexible roster toward the station-hours that found most.
+
+        ``share`` of the flexible lane-hours is taken from the rostered cells with
+        the lowest smoothed score and given out one lane-hour at a time to the
+        cells with the highest score per lane-hour already given (D'Hondt), within
+        each station's physical lanes; what cannot be placed goes back.
+        """
+        moved = int(round(self.share * rostered.sum()))
+        cell_score = self.station_score[:, layout.band_of_hour]  # station x hour
+        if moved == 0 or cell_score.max() <= 0:
             return rostered
-        target = (1 - self.share) * rostered + self.share * total * weight / weight.sum()
-        cap = np.maximum(layout.station_lanes[:, None] - fixed, 0)
-        return integer_lanes(target, cap, total)
+        lanes = rostered.copy().ravel()
+        score = cell_score.ravel()
+        taken: list[int] = []
+        for cell in np.argsort(score, kind="stable"):
+            while lanes[cell] > 0 and len(taken) < moved:
+                lanes[cell] -= 1
+                taken.append(int(cell))
+        room = (np.maximum(layout.station_lanes[:, None] - fixed, 0)).ravel() - lanes
+        given = np.zeros_like(score)
+        for cell in taken:
+            priority = np.where(room > 0, score / (given + 1.0), -np.inf)
+            best = int(np.argmax(priority))
+            target = best if priority[best] > 0 else cell  # nowhere better: the lane-hour stays put
+            lanes[target] += 1
+            room[target] -= 1
+            given[target] += 1
+        return lanes.reshape(rostered.shape)
 
     def _move_patrol(self, rostered: np.ndarray) -> np.ndarray:
         total = rostered.sum()

@@ -27,8 +27,7 @@ from .layout import DEPARTURE, RULES, Layout
 from .queues import board_sailings, serve_fifo
 from .traffic import MINUTES_PER_DAY, DayTraffic, generate_traffic
 
-HORIZON_DAYS = 3  # lanes and sailings are looked up this many days ahead of the arrival day
-SAILING_HORIZON_DAYS = 7
+SAILING_HORIZON_DAYS = 7  # sailings are looked up this many days ahead of the arrival day
 
 # Outcome codes of an attempt.
 PENDING, INTERDICTED, DETECTED, CROSSED, NO_VEHICLE = 0, 1, 2, 3, 4
@@ -194,7 +193,7 @@ class DayEngine:
                 p_normal = lay.station_fraction[s, hour, cls[rows]]
             queue_aware = rule == "queue_aware" and not secondary
             p_busy = lay.station_busy_fraction[s, hour, cls[rows]] if queue_aware else p_normal
-            staffed = np.tile(np.minimum(staffing.lanes[s], lay.station_lanes[s]), HORIZON_DAYS).astype(np.int64)
+            staffed = np.minimum(staffing.lanes[s], lay.station_lanes[s]).astype(np.int64)
             start, end, checked, busy = serve_fifo(
                 arrive,
                 d.service[rows],
@@ -232,8 +231,8 @@ class DayEngine:
                     false_parts.append((end[empty], np.full(int(empty.sum()), s), method[empty], cls[rows][empty]))
             self._found(result, rows[hit], s, method[hit], end[hit], aboard)
             ready[rows] = end
-            when = np.where(checked, start, arrive)
-            check_parts.append((when, np.full(rows.shape[0], s), cls[rows], method, checked, alarm))
+            # rows are keyed by arrival at the station, so vehicles passing per hour do not depend on policy
+            check_parts.append((arrive, np.full(rows.shape[0], s), cls[rows], method, checked, alarm))
             waits[s] = (start - arrive)[checked]
 
         departure_points = np.flatnonzero(lay.point_station == DEPARTURE)

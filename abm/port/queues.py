@@ -25,23 +25,23 @@ MINUTES_PER_HOUR = 60.0
 def earliest_fit(t: float, duration: float, lane: int, staffed: np.ndarray, origin: float) -> float:
     """Earliest minute >= t at which ``lane`` is on duty for ``duration`` minutes without a break.
 
-    ``staffed[h]`` is the number of lanes on duty in hour h counted from ``origin``;
-    the last hour of the horizon is taken to continue. Returns inf when no fit exists.
+    ``staffed[h]`` (24 entries) is the number of lanes on duty in hour h of the
+    day that starts at ``origin``; the pattern repeats on later days, so a
+    backlog of any length is served. Returns inf when the lane is never on duty
+    long enough: if no stretch within two days fits, none ever will.
     """
-    horizon = staffed.shape[0]
-    h = int((t - origin) // MINUTES_PER_HOUR)
-    if h < 0:
-        h = 0
-    while h < horizon:
-        if staffed[h] <= lane:
+    h = max(int((t - origin) // MINUTES_PER_HOUR), 0)
+    first = h
+    while h < first + 48:
+        if staffed[h % 24] <= lane:
             h += 1
             continue
         begin = max(t, origin + h * MINUTES_PER_HOUR)
         stop = h + 1
-        while stop < horizon and staffed[stop] > lane:
+        while stop < h + 24 and staffed[stop % 24] > lane:
             stop += 1
-        if stop >= horizon or begin + duration <= origin + stop * MINUTES_PER_HOUR:
-            return begin
+        if stop == h + 24 or begin + duration <= origin + stop * MINUTES_PER_HOUR:
+            return begin  # on duty all day, or the check fits before the lane goes off duty
         h = stop
     return np.inf
 
@@ -65,7 +65,7 @@ def serve_fifo(
     queue at its arrival holds ``queue_threshold`` or more (and the threshold is
     positive), ``p_busy``; a vehicle checked while busy takes ``busy_service``.
     ``free`` (one entry per physical lane, absolute minutes) carries the lanes'
-    state between days and is updated in place.
+    state between days and is updated in place; ``staffed`` is the day's 24-hour roster.
 
     Returns start, end (both equal to arrival for unchecked vehicles), a checked
     flag and a busy flag. An unservable vehicle (no lane ever fits) gets start inf.

@@ -70,6 +70,12 @@ def _run_world(world_path: Path, days: int, seed: int, out: Path, argv: list[str
     with _progress_bar(days, "days") as bar:
         summary = run_to_directory(world, file_hash(world_path), days, seed, out, command=argv, progress=bar.update)
     print_summary(summary, f"{world.name}: {days} days, seed {seed} -> {out}")
+    if any(0 < iv.day < days for iv in world.interventions):
+        from .analysis.displacement import write_displacement
+
+        result = write_displacement(out)
+        print(f"\nBefore and after the intervention on day {world.interventions[0].day} ({world.interventions[0].name}):")
+        print(result.summary())
     return EXIT_OK
 
 

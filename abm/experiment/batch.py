@@ -1,0 +1,137 @@
+"""A batch: every run of an experiment, through an executor, into a store.
+
+:func:`run_batch` validates the experiment (every design point's world
+included) before anything runs, opens the store (new, or resumed), ships the
+runs still to do to the executor as small task messages, records failures as
+they come back and finally rebuilds the summary and failure tables from the
+run directories.
+"""
+
+from __future__ import annotations
+
+import sys
+from collections.abc import Iterator, Sequence
+from dataclasses import dataclass
+from pathlib import Path
+from typing import Any
+
+import pandas as pd
+
+from ..errors import InputError
+from .compare import compare_points, format_comparison
+from .design import Plan, RunSpec, load_plan
+from .executors import make_executor
+from .store import FAILURES_TABLE, Store
+from .worker import RunTask
+
+
+@dataclass(frozen=True)
+class BatchResult:
+    """What a batch left in its store."""
+
+    out: Path
+    plan: Plan
+    ran: int  # runs attempted by this invocation (the rest were complete already)
+    summary: pd.DataFrame
+    failures: pd.DataFrame
+    comparison: pd.DataFrame
+
+    @property
+    def total(self) -> int:
+        return self.plan.total_runs
+
+    @property
+    def failed(self) -> int:
+        return len(self.failures)
+
+
+def _tasks(plan: Plan, todo: Sequence[RunSpec], store: Store, command: Sequence[str]) -> Iterator[RunTask]:
+    """Task messages, built as the executor asks for them; a point's world is built once for its replications."""
+    cached: tuple[int, dict[str, Any]] | None = None
+    for spec in todo:
+        if cached is None or cached[0] != spec.point:
+            cached = (spec.point, plan.world_for(spec.point))
+        yield RunTask(
+            run_id=spec.run_id,
+            point=spec.point,
+            replication=spec.replication,
+            seed=spec.seed,
+            days=plan.spec.days,
+            warmup=plan.spec.warmup_days,
+            world=cached[1],
+            world_sha256=plan.world_sha256,
+            out=str(store.run_dir(spec.run_id).resolve()),
+            command=tuple(command),
+            values=plan.points[spec.point].values,
+        )
+
+
+def _progress(total: int, initial: int, show: bool | None) -> Any:
+    from tqdm import tqdm
+
+    enabled = sys.stderr.isatty() if show is None else show
+    return tqdm(total=total, initial=initial, desc="runs", unit="run", disable=not enabled, dynamic_ncols=True)
+
+
+def run_batch(
+    experiment: str | Path,
+    out: str | Path,
+    executor: str = "serial",
+    workers: int | None = None,
+    scheduler: str | None = None,
+    resume: bool = False,
+    command: Sequence[str] = (),
+    show_progress: bool | None = None,
+) -> BatchResult:
+    """Run (or finish, with ``resume``) every run of an experiment into ``out``.
+
+    A run that raises is recorded in failures.parquet and the batch goes on.
+    ``show_progress`` None shows a bar only on a terminal.
+    """
+    plan = load_plan(experiment)
+    store = Store(out)
+    runner = make_executor(executor, workers, scheduler)
+    store.open(plan, list(command), resume)
+    done = store.complete(plan)
+    todo = [spec for spec in plan.runs() if spec.run_id not in done]
+    by_id = {spec.run_id: spec for spec in todo}
+    failed = 0
+    if todo:
+        with runner, _progress(plan.total_runs, len(done), show_progress) as bar:
+            for answer in runner.imap(_tasks(plan, todo, store, command)):
+                if not answer["ok"]:
+                    failed += 1
+                    store.record_failure(by_id[answer["run_id"]], answer["error"], answer["traceback"])
+                    bar.set_postfix_str(f"{failed} failed")
+                bar.update(1)
+    summary, failures = store.rebuild(plan)
+    labels = [f.label for f in plan.factors]
+    comparison = compare_points(summary, labels, {p.index: p.compare_to for p in plan.points})
+    return BatchResult(Path(out), plan, len(todo), summary, failures, comparison)
+
+
+def batch_command(
+    experiment: str | Path,
+    out: str | Path,
+    executor: str | None,
+    workers: int | None,
+    scheduler: str | None,
+    resume: bool,
+    command: Sequence[str],
+) -> bool:
+    """``undertow batch``: run the batch, print the comparison; False when some runs failed (noted on stderr)."""
+    executor = executor or ("dask" if scheduler else "serial")
+    if scheduler and executor != "dask":
+        raise InputError(f"--scheduler: connects to a Dask cluster; it needs --executor dask, not {executor}")
+    if workers and executor == "serial":
+        raise InputError("--workers: applies to --executor processes or dask")
+    result = run_batch(experiment, out, executor, workers, scheduler, resume, command)
+    done = result.total - result.failed
+    print(f"{result.plan.spec.name}: {done} of {result.total} runs complete ({result.ran} run now) -> {result.out}")
+    print(format_comparison(result.comparison, [f.label for f in result.plan.factors]))
+    if result.failed:
+        print(
+            f"undertow batch: {result.failed} of {result.total} runs failed; errors in {Path(out) / FAILURES_TABLE}",
+            file=sys.stderr,
+        )
+    return not result.failed

@@ -1,0 +1,166 @@
+"""Per-design-point comparison of a batch: means, intervals, paired differences against the baseline.
+
+Common random numbers give replication ``r`` of every design point the same
+seed, so the difference between two points is best judged replication by
+replication: the paired interval is a t-interval on the per-replication
+differences, which is much narrower than comparing the two means as if they
+were independent (Welch) whenever the runs share their randomness.
+"""
+
+from __future__ import annotations
+
+import json
+import math
+from collections.abc import Mapping, Sequence
+from pathlib import Path
+from typing import Any
+
+import numpy as np
+import pandas as pd
+from scipy import stats
+
+from .single import SUMMARY_SOURCES
+
+COMPARED_FIGURES = ("detections", "crossings", "displaced_out", "time_in_port_p95_min", "missed_departure_share")
+CONFIDENCE = 0.95
+
+
+def mean_interval(values: Sequence[float] | np.ndarray, confidence: float = CONFIDENCE) -> tuple[float, float, float]:
+    """Mean and Student-t interval of the mean; the bounds are NaN with fewer than two values."""
+    x = np.asarray(values, dtype=float)
+    x = x[np.isfinite(x)]
+    if x.size == 0:
+        return math.nan, math.nan, math.nan
+    mean = float(x.mean())
+    if x.size < 2:
+        return mean, math.nan, math.nan
+    half = float(stats.t.ppf(0.5 + confidence / 2, x.size - 1) * x.std(ddof=1) / math.sqrt(x.size))
+    return mean, mean - half, mean + half
+
+
+def paired_difference(
+    a: pd.Series, b: pd.Series, confidence: float = CONFIDENCE
+) -> tuple[float, float, float, int]:
+    """Mean of ``a - b`` over the replications both have (series indexed by replication), its interval, pairs."""
+    joined = pd.concat({"a": a.astype(float), "b": b.astype(float)}, axis=1, join="inner").dropna()
+    mean, low, high = mean_interval((joined["a"] - joined["b"]).to_numpy(), confidence)
+    return mean, low, high, len(joined)
+
+
+def unpaired_difference(
+    a: Sequence[float] | np.ndarray, b: Sequence[float] | np.ndarray, confidence: float = CONFIDENCE
+) -> tuple[float, float, float]:
+    """Difference of means with a Welch interval, as if the two samples were independent."""
+    x, y = np.asarray(a, dtype=float), np.asarray(b, dtype=float)
+    x, y = x[np.isfinite(x)], y[np.isfinite(y)]
+    if x.size < 2 or y.size < 2:
+        return float(x.mean() - y.mean()) if x.size and y.size else math.nan, math.nan, math.nan
+    vx, vy = x.var(ddof=1) / x.size, y.var(ddof=1) / y.size
+    diff = float(x.mean() - y.mean())
+    if vx + vy == 0:
+        return diff, diff, diff
+    dof = (vx + vy) ** 2 / (vx**2 / (x.size - 1) + vy**2 / (y.size - 1))
+    half = float(stats.t.ppf(0.5 + confidence / 2, dof) * math.sqrt(vx + vy))
+    return diff, diff - half, diff + half
+
+
+def compare_points(
+    summary: pd.DataFrame,
+    factors: Sequence[str],
+    compare_to: Mapping[int, int | None],
+    figures: Sequence[str] = COMPARED_FIGURES,
+    confidence: float = CONFIDENCE,
+) -> pd.DataFrame:
+    """One row per design point and figure: mean and interval over replications, paired difference vs baseline.
+
+    ``compare_to`` maps a point to the point it is compared with (None: it is a
+    baseline, or the design has none). Points with no completed run are absent.
+    """
+    rows: list[dict[str, Any]] = []
+    by_point = {int(point): group.set_index("replication") for point, group in summary.groupby("point", sort=True)}
+    for point, group in by_point.items():
+        base = compare_to.get(point)
+        reference = by_point.get(base) if base is not None else None
+        for figure in figures:
+            if figure not in group:
+                continue
+            mean, low, high = mean_interval(group[figure].to_numpy(dtype=float), confidence)
+            row: dict[str, Any] = {"point": point}
+            row.update({f: group[f].iloc[0] for f in factors})
+            row.update(
+                {
+                    "figure": figure,
+                    "source": SUMMARY_SOURCES.get(figure, ""),
+                    "runs": int(group[figure].notna().sum()),
+                    "mean": mean,
+                    "low": low,
+                    "high": high,
+                    "compared_with": base,
+                    "difference": math.nan,
+                    "difference_low": math.nan,
+                    "difference_high": math.nan,
+                    "pairs": 0,
+                }
+            )
+            if reference is not None:
+                diff, dlow, dhigh, pairs = paired_difference(group[figure], reference[figure], confidence)
+                row.update({"difference": diff, "difference_low": dlow, "difference_high": dhigh, "pairs": pairs})
+            rows.append(row)
+    columns = [
+        "point", *factors, "figure", "source", "runs", "mean", "low", "high",
+        "compared_with", "difference", "difference_low", "difference_high", "pairs",
+    ]  # fmt: skip
+    table = pd.DataFrame(rows, columns=columns)
+    table["compared_with"] = table["compared_with"].astype("Int64")
+    return table
+
+
+def compare_store(
+    out: str | Path, figures: Sequence[str] = COMPARED_FIGURES, confidence: float = CONFIDENCE
+) -> pd.DataFrame:
+    """The comparison of a finished batch folder (experiment.json and summary.parquet)."""
+    out = Path(out)
+    record = json.loads((out / "experiment.json").read_text(encoding="utf-8"))
+    summary = pd.read_parquet(out / "summary.parquet")
+    factors = [f["label"] for f in record["factors"]]
+    compare_to = {p["point"]: p["compare_to"] for p in record["design"]}
+    return compare_points(summary, factors, compare_to, figures, confidence)
+
+
+def _number(x: Any, signed: bool = False) -> str:
+    if x is None or (isinstance(x, float) and not math.isfinite(x)):
+        return "n/a"
+    size = abs(x)
+    digits = 0 if size >= 1000 else 1 if size >= 10 else 2 if size >= 1 else 4
+    return f"{x:{'+' if signed else ''},.{digits}f}"
+
+
+def format_comparison(table: pd.DataFrame, factors: Sequence[str], confidence: float = CONFIDENCE) -> str:
+    """The comparison as a readable text table, one block per design point."""
+    pct = f"{confidence:.0%}"
+    lines = [
+        f"Per design point: mean and {pct} interval over replications; difference against the compared point,",
+        "paired by replication (common random numbers; t-interval on the per-replication differences).",
+    ]
+    baselines = set(table["compared_with"].dropna().astype(int))
+    for point, block in table.groupby("point", sort=True):
+        first = block.iloc[0]
+        shown = "  ".join(f"{f}={first[f]}" for f in factors) or "(no factors)"
+        base = first["compared_with"]
+        role = "baseline; " if point in baselines else (f"vs p{int(base):03d}; " if not pd.isna(base) else "")
+        lines.append("")
+        lines.append(f"p{int(point):03d}  {shown}  ({role}{int(block['runs'].max())} runs)")
+        header = f"  {'figure':<24}{'mean':>11}  {pct + ' interval':<24}"
+        if not pd.isna(base):
+            header += f"{'difference':>11}  {pct + ' interval'}"
+        lines.append(header.rstrip())
+        for _, row in block.iterrows():
+            interval = f"[{_number(row['low'])}, {_number(row['high'])}]"
+            text = f"  {row['figure']:<24}{_number(row['mean']):>11}  {interval:<24}"
+            if not pd.isna(row["compared_with"]):
+                dint = f"[{_number(row['difference_low'], True)}, {_number(row['difference_high'], True)}]"
+                text += f"{_number(row['difference'], True):>11}  {dint:<24}"
+            lines.append(f"{text.rstrip()}  ({row['source']})" if row["source"] else text.rstrip())
+    lines.append("")
+    lines.append("(truth = simulated ground truth; observed = what an agency would hold. Model estimates, not counts.)")
+    return "\n".join(lines)

@@ -1,0 +1,229 @@
+"""Where runs execute: in this process, in a local process pool, or on a Dask cluster.
+
+Every executor takes the same :class:`~abm.experiment.worker.RunTask` messages
+and yields the same small answers (in completion order), so a run's result
+never depends on where it ran. Only a bounded window of tasks is in flight at
+once: a batch of tens of thousands of runs does not sit in memory as messages.
+
+Workers write run directories themselves, so on a cluster the batch folder
+must be on a file system every worker sees at the same path.
+"""
+
+from __future__ import annotations
+
+import logging
+import multiprocessing
+import os
+import traceback
+import uuid
+from collections import deque
+from collections.abc import Iterable, Iterator
+from concurrent.futures import FIRST_COMPLETED, Future, ProcessPoolExecutor, wait
+from concurrent.futures.process import BrokenProcessPool
+from types import TracebackType
+from typing import Any, Protocol
+
+from ..errors import InputError
+from .worker import RunTask, execute_run, failure
+
+EXECUTORS = ("serial", "processes", "dask")
+# A run in flight when its worker process dies is retried on a fresh pool up to this many attempts in all
+# (the same allowance Dask gives a task whose worker dies).
+MAX_ATTEMPTS = 3
+TASKS_PER_WORKER = 2  # in flight per worker: enough to keep each busy while answers travel back
+
+
+class Executor(Protocol):
+    """Runs tasks and yields their answers as they complete."""
+
+    name: str
+
+    def __enter__(self) -> "Executor": ...
+
+    def __exit__(
+        self, kind: type[BaseException] | None, exc: BaseException | None, tb: TracebackType | None
+    ) -> None: ...
+
+    def imap(self, tasks: Iterable[RunTask]) -> Iterator[dict[str, Any]]: ...
+
+
+def _crash(task: RunTask, exc: BaseException) -> dict[str, Any]:
+    trace = "".join(traceback.format_exception(exc))
+    return failure(task, " ".join(f"{exc.__class__.__name__}: {exc}".split()), trace)
+
+
+class SerialExecutor:
+    """Runs in this process, one after another."""
+
+    name = "serial"
+
+    def __enter__(self) -> "SerialExecutor":
+        return self
+
+    def __exit__(self, *exc: object) -> None:
+        return None
+
+    def imap(self, tasks: Iterable[RunTask]) -> Iterator[dict[str, Any]]:
+        """Answers in task order."""
+        for task in tasks:
+            yield execute_run(task)
+
+
+def _start_method() -> str:
+    # Never fork a process that may hold threads (tqdm, numba); forkserver starts workers cheaply where it exists.
+    return "forkserver" if "forkserver" in multiprocessing.get_all_start_methods() else "spawn"
+
+
+class ProcessExecutor:
+    """A local pool of worker processes (``concurrent.futures``, forkserver or spawn)."""
+
+    name = "processes"
+
+    def __init__(self, workers: int | None = None) -> None:
+        self.workers = workers or os.cpu_count() or 1
+        self._pool: ProcessPoolExecutor | None = None
+
+    def _new_pool(self) -> ProcessPoolExecutor:
+        context = multiprocessing.get_context(_start_method())
+        if context.get_start_method() == "forkserver":
+            # Workers forked from a server that has already imported the engine start in milliseconds.
+            context.set_forkserver_preload(["abm.experiment.worker"])
+        return ProcessPoolExecutor(max_workers=self.workers, mp_context=context)
+
+    def __enter__(self) -> "ProcessExecutor":
+        self._pool = self._new_pool()
+        return self
+
+    def __exit__(self, *exc: object) -> None:
+        if self._pool is not None:
+            self._pool.shutdown(wait=False, cancel_futures=True)
+            self._pool = None
+
+    def imap(self, tasks: Iterable[RunTask]) -> Iterator[dict[str, Any]]:
+        """Answers in completion order; runs lost with a dead worker are retried, then reported as failed."""
+        assert self._pool is not None, "use the executor as a context manager"
+        source = iter(tasks)
+        retry: deque[tuple[RunTask, int]] = deque()
+        in_flight: dict[Future[dict[str, Any]], tuple[RunTask, int]] = {}
+        window = TASKS_PER_WORKER * self.workers
+        while True:
+            while len(in_flight) < window:
+                if retry:
+                    task, attempt = retry.popleft()
+                else:
+                    task, attempt = next(source, None), 1  # type: ignore[assignment]
+                    if task is None:
+                        break
+                in_flight[self._pool.submit(execute_run, task)] = (task, attempt)
+            if not in_flight:
+                return
+            done, _ = wait(in_flight, return_when=FIRST_COMPLETED)
+            lost: list[tuple[RunTask, int]] = []
+            for future in done:
+                task, attempt = in_flight.pop(future)
+                try:
+                    yield future.result()
+                except BrokenProcessPool:
+                    lost.append((task, attempt))
+                except Exception as exc:  # noqa: BLE001 - e.g. a task that cannot be sent; the batch goes on
+                    yield _crash(task, exc)
+            if lost:
+                # A worker died (killed, out of memory): the pool is unusable and every run in it is lost.
+                # Which run killed it is unknown, so each is retried a bounded number of times.
+                for future in wait(in_flight).done:
+                    task, attempt = in_flight.pop(future)
+                    if future.exception() is None:
+                        yield future.result()
+                    else:
+                        lost.append((task, attempt))
+                self._pool.shutdown(wait=True)
+                self._pool = self._new_pool()
+                for task, attempt in sorted(lost, key=lambda item: item[0].run_id):
+                    if attempt >= MAX_ATTEMPTS:
+                        yield failure(task, f"the worker process died during this run ({attempt} attempts)", "")
+                    else:
+                        retry.append((task, attempt + 1))
+
+
+class DaskExecutor:
+    """A Dask ``distributed`` cluster: an existing one at ``scheduler``, or a local one started here."""
+
+    name = "dask"
+
+    def __init__(self, workers: int | None = None, scheduler: str | None = None) -> None:
+        self.workers = workers or os.cpu_count() or 1
+        self.scheduler = scheduler
+        self._cluster: Any = None
+        self._client: Any = None
+
+    def __enter__(self) -> "DaskExecutor":
+        from distributed import Client, LocalCluster
+
+        if self.scheduler:
+            try:
+                self._client = Client(self.scheduler, timeout="20s", set_as_default=False)
+            except (OSError, TimeoutError) as exc:
+                raise InputError(f"--scheduler {self.scheduler}: cannot connect to a Dask scheduler ({exc})") from None
+        else:
+            self._cluster = LocalCluster(
+                n_workers=self.workers,
+                threads_per_worker=1,  # the engine is single-threaded; one run per process
+                processes=True,
+                dashboard_address=None,
+                silence_logs=logging.ERROR,
+            )
+            self._client = Client(self._cluster, set_as_default=False)
+        return self
+
+    def __exit__(self, *exc: object) -> None:
+        if self._client is not None:
+            self._client.close()
+        if self._cluster is not None:
+            self._cluster.close()
+        self._client = self._cluster = None
+
+    def imap(self, tasks: Iterable[RunTask]) -> Iterator[dict[str, Any]]:
+        """Answers in completion order; a run whose workers kept dying comes back as a failure."""
+        from distributed import as_completed
+
+        client = self._client
+        assert client is not None, "use the executor as a context manager"
+        source = iter(tasks)
+        by_key: dict[str, RunTask] = {}
+        pending = as_completed(loop=client.loop)
+
+        def submit() -> None:
+            task = next(source, None)
+            if task is not None:
+                # A fresh key per submission: a long-lived cluster must never hand back another batch's result.
+                future = client.submit(execute_run, task, key=f"undertow-{task.run_id}-{uuid.uuid4().hex}", pure=False)
+                by_key[future.key] = task
+                pending.add(future)
+
+        threads = sum(client.nthreads().values()) or self.workers
+        for _ in range(TASKS_PER_WORKER * threads):
+            submit()
+        try:
+            for future in pending:
+                task = by_key.pop(future.key)
+                try:
+                    answer = future.result()
+                except Exception as exc:  # noqa: BLE001 - e.g. KilledWorker: recorded, the batch goes on
+                    answer = _crash(task, exc)
+                future.release()
+                submit()
+                yield answer
+        finally:
+            if by_key:
+                client.cancel(list(pending.futures))
+
+
+def make_executor(name: str, workers: int | None = None, scheduler: str | None = None) -> Executor:
+    """The executor called ``name`` (one of :data:`EXECUTORS`)."""
+    if name == "serial":
+        return SerialExecutor()
+    if name == "processes":
+        return ProcessExecutor(workers)
+    if name == "dask":
+        return DaskExecutor(workers, scheduler)
+    raise InputError(f"unknown executor '{name}'; expected one of {', '.join(EXECUTORS)}")

@@ -1,0 +1,106 @@
+"""The typed schema of an experiment file.
+
+An experiment names a world file, how long each run lasts, how many
+replications each design point gets, a root seed, a design and its factors::
+
+    kind: experiment              # optional marker (a top-level `world:` also marks one)
+    name: Kestrel Quay policies (illustrative)
+    world: world.yaml             # relative to the experiment file
+    days: 30                      # days summarised, after the warm-up
+    warmup_days: 7
+    replications: 5
+    seed: 20240611
+    design: full_factorial        # | one_at_a_time | latin_hypercube | sobol
+    factors:
+      - name: policy              # a factor of named bundles of changes
+        baseline: current
+        levels:
+          - {name: current, set: {}}
+          - name: night_surge
+            set: {roster.teams.night_shift.lanes.gate_imaging: 4}
+      - path: adversary.attempt_chance   # a factor of values at one dotted path
+        levels: [0.4, 0.6]
+      # sampled designs give ranges instead of levels (whole-number bounds: whole-number values)
+      # - path: stations.gate_imaging.selection.fraction
+      #   range: [0.1, 0.5]
+
+Every model forbids unknown keys. The rules between keys, and those that need
+the world (paths, level values), are checked in :mod:`abm.experiment.design`
+so each error can name its key.
+"""
+
+from __future__ import annotations
+
+from typing import Annotated, Any, Literal
+
+from pydantic import BaseModel, BeforeValidator, ConfigDict, Field
+
+from ..world.schema import Name
+
+SAMPLED_DESIGNS = ("latin_hypercube", "sobol")
+
+
+def _number_only(value: Any) -> Any:
+    """Refuse true/false and text where a number belongs (lax mode would read ``true`` as 1)."""
+    if isinstance(value, bool):
+        raise ValueError(f"expected a number, got {str(value).lower()}")
+    if isinstance(value, str):
+        raise ValueError(f"expected a number, got the text {value!r}")
+    return value
+
+
+_Number = BeforeValidator(_number_only)
+WholeNumber = Annotated[int, Field(ge=0), _Number]
+AtLeastOne = Annotated[int, Field(ge=1), _Number]
+Bound = Annotated[int | float, _Number]
+
+
+class Strict(BaseModel):
+    """Unknown keys are errors; infinity and NaN are refused."""
+
+    model_config = ConfigDict(extra="forbid", frozen=True, allow_inf_nan=False)
+
+
+class Bundle(Strict):
+    """A named level that changes several dotted paths of the world together (a policy bundle)."""
+
+    name: Name
+    note: str = ""
+    set: dict[str, Any] = Field(default_factory=dict, description="dotted path -> value; empty = the world as it is")
+
+
+class Factor(Strict):
+    """One thing the experiment varies.
+
+    Either ``path`` with ``levels`` (values at that path) or ``range`` (sampled
+    designs), or no path and ``levels`` that are named bundles. ``baseline``
+    names the level other points are compared with (a value, or a bundle name).
+    """
+
+    name: Name | None = Field(None, description="column name; defaults to the path")
+    path: str | None = Field(None, description="dotted path into the world, e.g. stations.gate_imaging.lanes")
+    levels: list[Any] | None = None
+    range: tuple[Bound, Bound] | None = Field(None, description="[low, high] for sampled designs")
+    baseline: Any = None
+
+    @property
+    def label(self) -> str:
+        """The factor's column name."""
+        return self.name or str(self.path)
+
+
+class Experiment(Strict):
+    """A whole experiment file."""
+
+    kind: Literal["experiment"] = "experiment"
+    name: str = Field(min_length=1, max_length=200)
+    note: str = ""
+    world: str = Field(min_length=1, description="world file, relative to the experiment file")
+    days: AtLeastOne = Field(description="days each run summarises, after the warm-up")
+    warmup_days: WholeNumber = Field(0, description="days simulated first and left out of the summary")
+    replications: AtLeastOne
+    seed: WholeNumber = Field(description="root seed: replication seeds and sampled designs derive from it")
+    design: Literal["full_factorial", "one_at_a_time", "latin_hypercube", "sobol"] = "full_factorial"
+    samples: AtLeastOne | None = Field(None, description="design points of a sampled design")
+    factors: list[Factor] = Field(default_factory=list)
+

@@ -1,0 +1,223 @@
+"""The batch store: one output folder holding a whole experiment's runs and tables.
+
+Layout of ``OUT``::
+
+    experiment.json    the experiment, its digest, the design points, package versions, the command
+    runs/<run-id>/     one run directory per run (the layout of abm.experiment.single)
+    failed/<run-id>.json  the error and traceback of a run that raised (until it is redone)
+    summary.parquet    one row per completed run, sorted by run id
+    failures.parquet   one row per failed run, sorted by run id
+
+Run directories appear by rename only when complete, so a run either exists
+whole or not at all; the tables are rebuilt from the run directories, so they
+do not depend on the order runs finished in, on the executor, or on how many
+times the batch was interrupted and resumed.
+"""
+
+from __future__ import annotations
+
+import json
+import shutil
+from collections.abc import Callable, Mapping
+from pathlib import Path
+from typing import Any
+
+import pandas as pd
+
+from ..errors import InputError
+from ..records import write_json, write_parquet
+from .design import Plan, PlannedFactor, RunSpec
+from .single import SUMMARY_SOURCES, package_versions
+from .worker import SUMMARY_FILE, is_complete
+
+EXPERIMENT_FILE = "experiment.json"
+RUNS_DIR = "runs"
+FAILED_DIR = "failed"
+SUMMARY_TABLE = "summary.parquet"
+FAILURES_TABLE = "failures.parquet"
+RUN_COLUMNS = ("run_id", "point", "replication")
+FAILURE_COLUMNS = {
+    "run_id": "string",
+    "point": "int64",
+    "replication": "int64",
+    "seed": "int64",
+    "error": "string",
+    "traceback": "string",
+}
+
+# Extra summary columns computed from a completed run directory (e.g. estimator results). Each function
+# takes the run directory and returns {column: value}; the store adds the columns to every row.
+SummaryExtension = Callable[[Path], Mapping[str, Any]]
+SUMMARY_EXTENSIONS: list[SummaryExtension] = []
+
+
+class StoreError(InputError):
+    """An output folder that cannot take this batch."""
+
+
+def register_summary_extension(extension: SummaryExtension) -> SummaryExtension:
+    """Add columns to every summary row from now on (usable as a decorator)."""
+    SUMMARY_EXTENSIONS.append(extension)
+    return extension
+
+
+class Store:
+    """The output folder of one batch."""
+
+    def __init__(self, out: str | Path) -> None:
+        self.out = Path(out)
+        self.runs = self.out / RUNS_DIR
+        self.failed = self.out / FAILED_DIR
+
+    def run_dir(self, run_id: str) -> Path:
+        return self.runs / run_id
+
+    def open(self, plan: Plan, command: list[str], resume: bool) -> None:
+        """Start a new batch in OUT, or (``resume``) take up the same experiment's batch found there."""
+        record = self.out / EXPERIMENT_FILE
+        if self.out.exists() and not self.out.is_dir():
+            raise StoreError(f"{self.out}: is a file; --out needs a folder")
+        if record.is_file():
+            if not resume:
+                raise StoreError(
+                    f"{self.out}: already holds a batch; pass --resume to finish it, or choose another --out "
+                    "(nothing was overwritten)"
+                )
+            held = json.loads(record.read_text(encoding="utf-8")).get("experiment_sha256")
+            if held != plan.digest():
+                raise StoreError(
+                    f"{self.out}: holds a batch of a different experiment (the experiment or its world changed "
+                    "since it started); choose another --out (nothing was overwritten)"
+                )
+            self._tidy()
+            return
+        if self.out.is_dir() and any(self.out.iterdir()):
+            raise StoreError(
+                f"{self.out}: is not empty and holds no batch; choose another --out (nothing was overwritten)"
+            )
+        self.runs.mkdir(parents=True, exist_ok=True)
+        write_json(
+            {
+                "experiment": plan.spec.model_dump(mode="json"),
+                "experiment_file": str(plan.source),
+                "experiment_sha256": plan.digest(),
+                "world_file": str(plan.world_path),
+                "world_sha256": plan.world_sha256,
+                "factors": [_factor_record(f) for f in plan.factors],
+                "design": plan.design_table(),
+                "seeds": list(plan.seeds),
+                "runs": plan.total_runs,
+                "packages": package_versions(),
+                "command": command,
+            },
+            record,
+        )
+
+    def _tidy(self) -> None:
+        """Before resuming: partial runs are redone from scratch, and so are failed ones."""
+        self.runs.mkdir(parents=True, exist_ok=True)
+        for entry in self.runs.iterdir():
+            if entry.name.startswith(".") and entry.is_dir():
+                shutil.rmtree(entry)
+        if self.failed.is_dir():
+            shutil.rmtree(self.failed)
+
+    def complete(self, plan: Plan) -> set[str]:
+        """Run ids of the plan whose run directories are complete."""
+        return {spec.run_id for spec in plan.runs() if is_complete(self.run_dir(spec.run_id))}
+
+    def record_failure(self, spec: RunSpec, error: str, trace: str) -> None:
+        """Keep a failed run's error until the batch is rebuilt (or the run is redone)."""
+        write_json(
+            {
+                "run_id": spec.run_id,
+                "point": spec.point,
+                "replication": spec.replication,
+                "seed": spec.seed,
+                "error": error,
+                "traceback": trace,
+            },
+            self.failed / f"{spec.run_id}.json",
+        )
+
+    def rebuild(self, plan: Plan) -> tuple[pd.DataFrame, pd.DataFrame]:
+        """Write summary.parquet and failures.parquet from the run directories; return both tables."""
+        for entry in self.runs.iterdir() if self.runs.is_dir() else ():
+            if entry.name.startswith(".") and entry.is_dir():
+                shutil.rmtree(entry)  # left by a run that raised while writing
+        summary_rows: list[dict[str, Any]] = []
+        failure_rows: list[dict[str, Any]] = []
+        values = {p.index: p.values for p in plan.points}
+        for spec in plan.runs():
+            run_dir = self.run_dir(spec.run_id)
+            if is_complete(run_dir):
+                summary_rows.append(_summary_row(spec, values[spec.point], run_dir))
+            elif (self.failed / f"{spec.run_id}.json").is_file():
+                failure_rows.append(json.loads((self.failed / f"{spec.run_id}.json").read_text(encoding="utf-8")))
+        summary = _summary_frame(summary_rows, plan.factors)
+        failures = pd.DataFrame(failure_rows, columns=list(FAILURE_COLUMNS)).astype(FAILURE_COLUMNS)
+        write_parquet(summary, self.out / SUMMARY_TABLE)
+        write_parquet(failures, self.out / FAILURES_TABLE)
+        return summary, failures
+
+
+def _factor_record(factor: PlannedFactor) -> dict[str, Any]:
+    record: dict[str, Any] = {"label": factor.label, "key": factor.key, "path": factor.path}
+    if factor.levels:
+        record["levels"] = [level.label for level in factor.levels]
+        record["baseline"] = None if factor.baseline is None else factor.levels[factor.baseline].label
+    else:
+        record["range"] = [factor.low, factor.high]
+    return record
+
+
+def _summary_row(spec: RunSpec, values: Mapping[str, Any], run_dir: Path) -> dict[str, Any]:
+    summary = json.loads((run_dir / SUMMARY_FILE).read_text(encoding="utf-8"))
+    manifest = json.loads((run_dir / "manifest.json").read_text(encoding="utf-8"))
+    row: dict[str, Any] = {"run_id": spec.run_id, "point": spec.point, "replication": spec.replication}
+    row.update(values)
+    row["seed"] = int(manifest["seed"])  # as the run recorded it
+    row.update({key: value for key, value in summary.items() if key != "sources"})
+    for extension in SUMMARY_EXTENSIONS:
+        row.update(extension(run_dir))
+    return row
+
+
+def _figure_order(keys: set[str]) -> list[str]:
+    known = ["days", "warmup_days", *SUMMARY_SOURCES]
+    return [k for k in known if k in keys] + sorted(keys - set(known))
+
+
+def _factor_dtype(factor: PlannedFactor) -> str:
+    """One column type per factor, whatever values its levels take."""
+    if not factor.levels:
+        return "int64" if factor.integer else "float64"
+    labels = [level.label for level in factor.levels]
+    if all(isinstance(v, bool) for v in labels):
+        return "bool"
+    if any(isinstance(v, bool) for v in labels):
+        return "string"
+    if all(isinstance(v, int) for v in labels):
+        return "int64"
+    if all(isinstance(v, (int, float)) for v in labels):
+        return "float64"
+    return "string"
+
+
+def _summary_frame(rows: list[dict[str, Any]], factors: tuple[PlannedFactor, ...]) -> pd.DataFrame:
+    labels = [f.label for f in factors]
+    fixed = [*RUN_COLUMNS, *labels, "seed"]
+    extra = set().union(*(row.keys() for row in rows)) - set(fixed) if rows else set()
+    frame = pd.DataFrame(rows, columns=fixed + _figure_order(extra))
+    types: dict[str, str] = {"run_id": "string", "point": "int64", "replication": "int64", "seed": "int64"}
+    for factor in factors:
+        types[factor.label] = _factor_dtype(factor)
+        if types[factor.label] == "string":
+            frame[factor.label] = [v if isinstance(v, str) else json.dumps(v) for v in frame[factor.label]]
+    for column in frame.columns[len(fixed) :]:
+        present = [v for v in frame[column] if v is not None]
+        if all(isinstance(v, int) and not isinstance(v, bool) for v in present) and len(present) == len(frame):
+            types[column] = "int64"
+        elif all(isinstance(v, (int, float)) and not isinstance(v, bool) for v in present):
+            types[column] = "float64"
+    return frame.astype(types)

@@ -1,0 +1,77 @@
+"""What a worker does with one run: the task message, and its small answer.
+
+A task is small and self-contained: the design point's world as plain data,
+the seed, the days and where to write. The worker writes the run directory
+itself (atomically, through :func:`abm.experiment.single.run_to_directory`);
+only the run's summary, or its error, travels back.
+"""
+
+from __future__ import annotations
+
+import json
+import traceback
+from dataclasses import dataclass, field
+from pathlib import Path
+from typing import Any
+
+from ..world import parse_world
+from .single import run_to_directory
+
+SUMMARY_FILE = "summary.json"
+
+
+@dataclass(frozen=True)
+class RunTask:
+    """One run to do."""
+
+    run_id: str
+    point: int
+    replication: int
+    seed: int
+    days: int
+    warmup: int
+    world: dict[str, Any]
+    world_sha256: str
+    out: str  # the run directory to create (absolute, so any worker can reach it)
+    command: tuple[str, ...] = ()
+    values: dict[str, Any] = field(default_factory=dict)  # factor label -> value, for the manifest
+
+
+def is_complete(run_dir: Path) -> bool:
+    """A run directory is complete once it exists: it appears by rename only after everything is written."""
+    return (run_dir / SUMMARY_FILE).is_file()
+
+
+def failure(task: RunTask, error: str, trace: str) -> dict[str, Any]:
+    """The answer for a run that could not be done."""
+    return {"run_id": task.run_id, "ok": False, "error": error, "traceback": trace}
+
+
+def execute_run(task: RunTask) -> dict[str, Any]:
+    """Do one run; never raises for a fault of the run itself, so the batch goes on."""
+    out = Path(task.out)
+    try:
+        world = parse_world(task.world, f"design point {task.point}")
+        summary = run_to_directory(
+            world,
+            task.world_sha256,
+            task.days,
+            task.seed,
+            out,
+            command=list(task.command),
+            warmup=task.warmup,
+            manifest_extra={
+                "experiment_run": {
+                    "run_id": task.run_id,
+                    "point": task.point,
+                    "replication": task.replication,
+                    "values": task.values,
+                }
+            },
+        )
+    except Exception as exc:  # noqa: BLE001 - any fault of one run is recorded, not fatal to the batch
+        if is_complete(out):
+            # A straggler from an interrupted batch finished this very run first; runs are deterministic.
+            return {"run_id": task.run_id, "ok": True, "summary": json.loads((out / SUMMARY_FILE).read_text())}
+        return failure(task, " ".join(f"{exc.__class__.__name__}: {exc}".split()), traceback.format_exc())
+    return {"run_id": task.run_id, "ok": True, "summary": summary}

@@ -1,0 +1,120 @@
+"""Benchmark of batches: executors against each other, and what the store costs per run.
+
+    .venv/bin/python bench/batch.py [--runs 200] [--days 30] [--workers 2]
+
+The same batch (the demo world, two policies, common random numbers) runs
+serially, in a local process pool and on a local Dask cluster; the same runs
+are also done directly with ``run_to_directory`` in a loop, without the
+store. Reported, as ratios measured in this one sitting:
+
+- processes vs serial: speed-up (target >= 1.8x with 2 workers);
+- Dask vs processes: wall-time ratio (target within 15%);
+- the store's overhead per run: batch time per run over the direct loop's,
+  both serial (target under 5% of run time).
+
+Wall times include starting the pool or cluster, as a user waits for them.
+"""
+
+from __future__ import annotations
+
+import argparse
+import shutil
+import tempfile
+import time
+from pathlib import Path
+
+import yaml
+
+ROOT = Path(__file__).resolve().parent.parent
+DEMO_WORLD = ROOT / "worlds" / "kestrel_quay" / "world.yaml"
+
+
+def write_experiment(folder: Path, runs: int, days: int) -> Path:
+    """Two policies x runs/2 replications of the demo world (numbers illustrative)."""
+    data = {
+        "kind": "experiment",
+        "name": "batch benchmark (illustrative)",
+        "world": str(DEMO_WORLD),
+        "days": days,
+        "replications": runs // 2,
+        "seed": 2024,
+        "factors": [
+            {
+                "name": "policy",
+                "baseline": "current",
+                "levels": [
+                    {"name": "current", "set": {}},
+                    {"name": "double_imaging", "set": {"stations.gate_imaging.selection.fraction": 0.4}},
+                ],
+            }
+        ],
+    }
+    path = folder / "experiment.yaml"
+    path.write_text(yaml.safe_dump(data, sort_keys=False), encoding="utf-8")
+    return path
+
+
+def timed_batch(path: Path, out: Path, executor: str, workers: int | None) -> float:
+    from abm.experiment.batch import run_batch
+
+    start = time.perf_counter()
+    result = run_batch(path, out, executor=executor, workers=workers, show_progress=False)
+    elapsed = time.perf_counter() - start
+    assert result.failed == 0, result.failures
+    return elapsed
+
+
+def timed_direct(path: Path, out: Path) -> float:
+    """The same runs without the store: build each point's world, run, write its directory."""
+    from abm.experiment.design import load_plan
+    from abm.experiment.single import run_to_directory
+    from abm.world import parse_world
+
+    plan = load_plan(path)
+    worlds = {p.index: parse_world(plan.world_for(p.index)) for p in plan.points}
+    out.mkdir(parents=True)
+    start = time.perf_counter()
+    for spec in plan.runs():
+        run_to_directory(worlds[spec.point], plan.world_sha256, plan.spec.days, spec.seed, out / spec.run_id)
+    return time.perf_counter() - start
+
+
+def main() -> None:
+    parser = argparse.ArgumentParser(description=__doc__.splitlines()[0])
+    parser.add_argument("--runs", type=int, default=200)
+    parser.add_argument("--days", type=int, default=30)
+    parser.add_argument("--workers", type=int, default=2)
+    args = parser.parse_args()
+
+    folder = Path(tempfile.mkdtemp(prefix="undertow-bench-"))
+    try:
+        path = write_experiment(folder, args.runs, args.days)
+        runs = 2 * (args.runs // 2)
+        (folder / "warm").mkdir()
+        # compiled code and file caches warm before anything is timed
+        timed_direct(write_experiment(folder / "warm", 2, args.days), folder / "warm-out")
+        direct = timed_direct(path, folder / "direct")
+        serial = timed_batch(path, folder / "serial", "serial", None)
+        processes = timed_batch(path, folder / "processes", "processes", args.workers)
+        dask = timed_batch(path, folder / "dask", "dask", args.workers)
+        same = all(
+            (folder / name / "summary.parquet").read_bytes() == (folder / "serial" / "summary.parquet").read_bytes()
+            for name in ("processes", "dask")
+        )
+        overhead = (serial - direct) / runs
+        print(f"batch benchmark: {runs} runs of {args.days} days of the demo world, {args.workers} workers")
+        print(f"  direct loop (no store)   {direct:8.1f} s   {1000 * direct / runs:7.1f} ms/run")
+        print(f"  serial batch             {serial:8.1f} s   {1000 * serial / runs:7.1f} ms/run")
+        print(f"  processes batch          {processes:8.1f} s")
+        print(f"  dask local batch         {dask:8.1f} s")
+        print(f"  processes vs serial      {serial / processes:8.2f}x speed-up   (target >= 1.8x)")
+        print(f"  dask vs processes        {dask / processes:8.2f}x wall time  (target <= 1.15x)")
+        share = 100 * overhead / (direct / runs)
+        print(f"  store overhead per run   {1000 * overhead:8.1f} ms = {share:.1f}% of run time   (target < 5%)")
+        print(f"  summary tables identical across executors: {same}")
+    finally:
+        shutil.rmtree(folder, ignore_errors=True)
+
+
+if __name__ == "__main__":
+    main()

@@ -1,0 +1,1 @@
+"""Tests of experiments: designs, seeds, executors, the batch store, comparisons."""

@@ -1,0 +1,85 @@
+"""Comparisons: t-intervals as scipy computes them, and paired differences tighter than unpaired under CRN."""
+
+from __future__ import annotations
+
+from collections.abc import Callable
+from pathlib import Path
+
+import numpy as np
+import pandas as pd
+import pytest
+from scipy import stats
+
+from abm.experiment.batch import run_batch
+from abm.experiment.compare import (
+    COMPARED_FIGURES,
+    compare_store,
+    format_comparison,
+    mean_interval,
+    paired_difference,
+    unpaired_difference,
+)
+
+from .helpers import experiment, write_yaml
+
+
+def test_mean_interval_is_the_student_t_interval() -> None:
+    x = np.array([3.0, 5.0, 4.0, 8.0, 6.0])
+    # scipy.stats.t.interval with the standard error of the mean is the textbook interval
+    low, high = stats.t.interval(0.95, len(x) - 1, loc=x.mean(), scale=stats.sem(x))
+    assert mean_interval(x) == pytest.approx((x.mean(), low, high))
+    assert np.isnan(mean_interval([1.0])[1])
+
+
+def test_unpaired_difference_is_welch_and_paired_is_the_paired_t() -> None:
+    a, b = np.array([1.0, 2.0, 4.0, 7.0]), np.array([2.0, 2.5, 3.0])
+    welch = stats.ttest_ind(a, b, equal_var=False).confidence_interval(0.95)
+    assert unpaired_difference(a, b) == pytest.approx((a.mean() - b.mean(), welch.low, welch.high))
+    x = pd.Series([10.0, 12.0, 9.0, 14.0], index=[0, 1, 2, 3])
+    y = pd.Series([8.0, 11.5, 7.0, 12.0, 99.0], index=[0, 1, 2, 3, 4])  # replication 4 has no pair
+    paired = stats.ttest_rel(x.to_numpy(), y.to_numpy()[:4]).confidence_interval(0.95)
+    assert paired_difference(x, y) == pytest.approx(((x - y[:4]).mean(), paired.low, paired.high, 4))
+
+
+@pytest.fixture(scope="module")
+def crn_batch(tmp_path_factory: pytest.TempPathFactory) -> Path:
+    folder = tmp_path_factory.mktemp("crn")
+    path = write_yaml(folder / "experiment.yaml", experiment(days=6, replications=5))
+    run_batch(path, folder / "out", show_progress=False)
+    return folder / "out"
+
+
+def test_paired_intervals_are_narrower_than_unpaired_under_common_random_numbers(crn_batch: Path) -> None:
+    summary = pd.read_parquet(crn_batch / "summary.parquet")
+    base = summary[summary["point"] == 0].set_index("replication")
+    narrower = []
+    for point in (1, 2):
+        policy = summary[summary["point"] == point].set_index("replication")
+        for figure in ("time_in_port_p95_min", "checks", "vehicles"):
+            _, plow, phigh, pairs = paired_difference(policy[figure], base[figure])
+            _, ulow, uhigh = unpaired_difference(policy[figure].to_numpy(), base[figure].to_numpy())
+            assert pairs == 5
+            narrower.append((phigh - plow) < (uhigh - ulow))
+    assert all(narrower)
+
+
+def test_comparison_table_has_every_point_and_figure(crn_batch: Path) -> None:
+    table = compare_store(crn_batch)
+    assert len(table) == 3 * len(COMPARED_FIGURES)
+    assert list(table.columns[:3]) == ["point", "policy", "figure"]
+    baseline = table[table["point"] == 0]
+    assert baseline["compared_with"].isna().all() and baseline["difference"].isna().all()
+    others = table[table["point"] > 0]
+    assert (others["compared_with"] == 0).all() and (others["pairs"] == 5).all()
+    assert (others["difference_low"] <= others["difference"]).all()
+    assert (others["difference"] <= others["difference_high"]).all()
+    text = format_comparison(table, ["policy"])
+    assert "p000  policy=current  (baseline; 5 runs)" in text
+    assert "p002  policy=night_surge  (vs p000; 5 runs)" in text
+    assert "(truth)" in text and "(observed)" in text
+
+
+def test_factorless_experiment_is_just_replications(tmp_path: Path, make_experiment: Callable[..., Path]) -> None:
+    result = run_batch(make_experiment(experiment(days=2, factors=[])), tmp_path / "out", show_progress=False)
+    assert len(result.summary) == 2 and result.comparison["compared_with"].isna().all()
+    assert "(no factors)" in format_comparison(result.comparison, [])

@@ -129,9 +129,12 @@ def cmd_estimate(args: argparse.Namespace) -> int:
 
 def cmd_batch(args: argparse.Namespace) -> int:
     """Run every run of an experiment into a batch folder; print the per-design-point comparison."""
+    from .analysis.estimator_check import cached_estimates
     from .experiment.batch import batch_command
+    from .experiment.store import register_summary_extension
 
-    command = ["undertow", *sys.argv[1:]]
+    register_summary_extension(cached_estimates)  # estimator results become summary columns
+    command = ["undertow", *args.argv]
     try:
         ok = batch_command(args.experiment, args.out, args.executor, args.workers, args.scheduler, args.resume, command)
     except KeyboardInterrupt:

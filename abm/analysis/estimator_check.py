@@ -103,7 +103,7 @@ from ..estimate.report import relative_sensitivities, run_all
 from ..estimate.results import DEFAULT_LEVEL, EstimateResult, EstimatorCannotRun, z_value
 from ..estimate.twosample import CHAPMAN
 from ..estimate.windows import Window, check_window
-from ..records import read_truth
+from ..records import read_truth, write_json
 from ..world import parse_world
 from ..world.loader import policy_after
 from ..world.schema import World
@@ -845,6 +845,24 @@ def estimates_for_run(
         out[f"est_{slug}_lo"] = _finite(result.ci_low)
         out[f"est_{slug}_hi"] = _finite(result.ci_high)
     return dict(sorted(out.items()))
+
+
+ESTIMATES_CACHE = "estimates_summary.json"
+
+
+def cached_estimates(run_dir: str | Path) -> dict[str, float | None]:
+    """:func:`estimates_for_run` with the run's defaults, kept in ``RUN_DIR/estimates_summary.json``.
+
+    A batch store calls this for every run each time it rebuilds its summary;
+    the cache is derived from the run's own observed records, written
+    atomically, and recomputed whenever it is missing.
+    """
+    path = Path(run_dir) / ESTIMATES_CACHE
+    if path.is_file():
+        return json.loads(path.read_text(encoding="utf-8"))
+    values = estimates_for_run(run_dir)
+    write_json(values, path)
+    return values
 
 
 def truth_for_run(run_dir: str | Path, window: Window = None) -> dict[str, int | None]:

@@ -2,9 +2,11 @@
 
 ``truth/`` holds every attempt with its outcome, every group's arrival and every
 exit from the system. ``observed/`` follows :mod:`abm.observed` and holds only
-what an agency could know. ``daily.parquet`` carries daily KPIs; columns that
-come from truth are prefixed ``truth_``. All people counts are persons (a group
-of three attempting once is three person-attempts).
+what an agency could know. ``daily.parquet`` carries daily KPIs and
+``methods.parquet`` checks per operating day, method and cargo type with the
+day's weather; in both, columns that come from truth are prefixed ``truth_``.
+All people counts are persons (a group of three attempting once is three
+person-attempts); method counts are vehicles checked.
 
 Writing is atomic per file (temporary name, then rename), and the byte content
 depends only on the world and the seed.
@@ -48,6 +50,26 @@ TRUTH_COLUMNS: dict[str, dict[str, str]] = {
     "exits": {"agent_id": "int64", "day": "int64", "state": "string", "persons": "int64", "encounters": "int64"},
 }
 
+METHODS_FILE = "methods.parquet"
+# One row per operating day, method and cargo type. Observed: the day's weather, checks, alarms, alarms
+# logged false (nothing found after them) and minutes spent checking. Truth: checks of occupied vehicles,
+# checks that found people, alarms on vehicles with and without people aboard. Weather and cargo are ""
+# where a world does not state them.
+METHOD_COLUMNS: dict[str, str] = {
+    "day": "int64",
+    "weather": "string",
+    "method": "string",
+    "cargo": "string",
+    "checks": "int64",
+    "alarms": "int64",
+    "false_alarms": "int64",
+    "check_minutes": "float64",
+    "truth_occupied_checks": "int64",
+    "truth_found": "int64",
+    "truth_true_alarms": "int64",
+    "truth_false_alarms": "int64",
+}
+
 
 def _calendar(minute: np.ndarray) -> tuple[np.ndarray, np.ndarray]:
     """Absolute minutes to (calendar day, minute of that day)."""
@@ -66,6 +88,7 @@ class RecordBook:
     _encounters: list[dict[str, Any]] = field(default_factory=list)
     _checks: list[dict[str, np.ndarray]] = field(default_factory=list)
     _false_alarms: list[pd.DataFrame] = field(default_factory=list)
+    _methods: list[tuple[int, str, dict[str, np.ndarray]]] = field(default_factory=list)
     _daily: list[dict[str, Any]] = field(default_factory=list)
     _time_in_port: list[np.ndarray] = field(default_factory=list)
     _missed: list[np.ndarray] = field(default_factory=list)
@@ -148,6 +171,7 @@ class RecordBook:
                 }
             )
         )
+        self._methods.append((result.day, result.weather, result.method_rows))
         self._time_in_port.append(result.time_in_port.astype(np.float32))
         self._missed.append(result.missed)
         for s, w in result.queue_wait.items():
@@ -227,6 +251,17 @@ class RecordBook:
         """Daily KPIs; ``truth_`` columns come from simulated truth."""
         return pd.DataFrame(self._daily)
 
+    def methods_table(self) -> pd.DataFrame:
+        """Checks per operating day, method and cargo type; ``truth_`` columns come from simulated truth."""
+        if not self._methods:
+            return pd.DataFrame({col: pd.Series(dtype=dtype) for col, dtype in METHOD_COLUMNS.items()})
+        size = [rows["checks"].shape[0] for _, _, rows in self._methods]
+        table = {k: np.concatenate([rows[k] for _, _, rows in self._methods]) for k in self._methods[0][2]}
+        table["method"] = np.array(self.layout.world.method_names, dtype=object)[table["method"]]
+        table["day"] = np.repeat([day for day, _, _ in self._methods], size)
+        table["weather"] = np.repeat(np.array([w for _, w, _ in self._methods], dtype=object), size)
+        return pd.DataFrame(table)[list(METHOD_COLUMNS)].astype(METHOD_COLUMNS)
+
     def time_in_port(self) -> np.ndarray:
         return np.concatenate(self._time_in_port) if self._time_in_port else np.zeros(0, dtype=np.float32)
 
@@ -259,12 +294,13 @@ def write_json(data: Any, path: Path) -> None:
 
 
 def write_records(book: RecordBook, out: Path) -> None:
-    """Write truth/, observed/ and daily.parquet under ``out``."""
+    """Write truth/, observed/, daily.parquet and methods.parquet under ``out``."""
     for name, frame in book.truth_tables().items():
         write_parquet(frame, out / TRUTH_DIR / f"{name}.parquet")
     for name, frame in book.observed_tables().items():
         write_parquet(frame, out / OBSERVED_DIR / f"{name}.parquet")
     write_parquet(book.daily_table(), out / "daily.parquet")
+    write_parquet(book.methods_table(), out / METHODS_FILE)
 
 
 def read_truth(run_dir: str | Path) -> dict[str, pd.DataFrame]:

@@ -23,6 +23,7 @@ from pathlib import Path
 from typing import Any
 
 import numpy as np
+import pandas as pd
 
 from ..errors import InputError
 from ..model import PortModel
@@ -50,6 +51,15 @@ SUMMARY_SOURCES: dict[str, str] = {
     "time_in_port_p50_min": "observed",
     "time_in_port_p95_min": "observed",
     "missed_departure_share": "observed",
+}
+
+# Per-method figures, as method_<name>_<figure>: counts are vehicles checked, found counts persons.
+METHOD_SUMMARY_SOURCES: dict[str, str] = {
+    "checks": "observed",
+    "alarms": "observed",
+    "false_alarms": "observed",  # alarms after which nothing was found
+    "found": "observed",  # persons detected by the method
+    "sensitivity": "truth",  # occupied vehicles checked in which people were found / occupied vehicles checked
 }
 
 PACKAGES = ("undertow", "mesa", "numpy", "pandas", "scipy", "pyarrow", "numba", "pydantic")
@@ -117,10 +127,38 @@ def summarise(book: RecordBook, days: int, warmup: int = 0) -> dict[str, Any]:
         # a crossing without sailings (a land border) has no departures to miss
         "missed_departure_share": float(missed.mean()) if missed.size and book.layout.world.departures else None,
     }
+    method_sources = _add_method_figures(summary, book, attempts, warmup)
     if warmup:
         summary["warmup_days"] = warmup
     summary["sources"] = {key: SUMMARY_SOURCES[key] for key in summary if key in SUMMARY_SOURCES}
+    summary["sources"].update(method_sources)
     return summary
+
+
+def _add_method_figures(
+    summary: dict[str, Any], book: RecordBook, attempts: pd.DataFrame, warmup: int
+) -> dict[str, str]:
+    """Add method_<name>_<figure> to ``summary`` (days from ``warmup`` on); return their sources."""
+    methods = book.methods_table()
+    methods = methods[methods["day"] >= warmup]
+    totals = methods.groupby("method").sum(numeric_only=True)
+    found = attempts[attempts["outcome"] == "detected"].groupby("method")["persons"].sum()
+    sources = {}
+    for name in book.layout.world.method_names:
+        row = totals.loc[name] if name in totals.index else None
+        occupied = int(row["truth_occupied_checks"]) if row is not None else 0
+        figures = {
+            "checks": int(row["checks"]) if row is not None else 0,
+            "alarms": int(row["alarms"]) if row is not None else 0,
+            "false_alarms": int(row["false_alarms"]) if row is not None else 0,
+            "found": int(found.get(name, 0)),
+            "sensitivity": int(row["truth_found"]) / occupied if occupied else None,
+        }
+        for figure, value in figures.items():
+            key = f"method_{name}_{figure}"
+            summary[key] = value
+            sources[key] = METHOD_SUMMARY_SOURCES[figure]
+    return sources
 
 
 def simulate(world: World, days: int, seed: int, progress: Callable[[int], None] | None = None) -> PortModel:

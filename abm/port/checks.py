@@ -3,6 +3,8 @@
 Every station draws the same arrays for every vehicle of the day, checked or
 not, so the random numbers a vehicle meets do not depend on the policy: with
 common random numbers a changed selection rule changes only what it should.
+Durations of the method a station uses while its own is suspended come from a
+second per-station stream, so configuring one shifts none of the numbers above.
 """
 
 from __future__ import annotations
@@ -43,18 +45,31 @@ class StationDraws:
     fallback_service: np.ndarray
     u_detect: np.ndarray
     u_false: np.ndarray
+    suspended_service: np.ndarray  # durations with the station's replacement method (``service`` when it has none)
 
 
-def draw_for_station(layout: Layout, station: int, n: int, rng: np.random.Generator) -> StationDraws:
-    """Draw a station's per-vehicle numbers for a day of n vehicles (fixed consumption per n)."""
+def draw_for_station(
+    layout: Layout, station: int, n: int, rng: np.random.Generator, conditions_rng: np.random.Generator | None = None
+) -> StationDraws:
+    """Draw a station's per-vehicle numbers for a day of n vehicles (fixed consumption per n).
+
+    ``conditions_rng`` supplies the replacement method's durations; it is drawn
+    every day, whatever the weather, so its consumption is fixed too. Without
+    it (a caller that never suspends, such as a bare queue replay) they stay ``service``.
+    """
     service = sample_service(layout, layout.station_method[station], n, rng)
     fallback = layout.station_fallback[station]
     fallback_service = sample_service(layout, fallback, n, rng) if fallback >= 0 else service
-    return StationDraws(
+    draws = StationDraws(
         u_select=rng.random(n),
         risk_noise=rng.standard_normal(n),
         service=service,
         fallback_service=fallback_service,
         u_detect=rng.random(n),
         u_false=rng.random(n),
+        suspended_service=service,
     )
+    replacement = layout.station_suspended_method[station]
+    if replacement >= 0 and conditions_rng is not None:
+        draws.suspended_service = sample_service(layout, replacement, n, conditions_rng)
+    return draws

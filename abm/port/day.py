@@ -13,6 +13,29 @@ Lanes carry their state between days, so a vehicle still queueing at midnight
 is served by the next day's lanes: vehicles carry over. The only approximation
 is at that boundary: a late vehicle of one day is queued ahead of every vehicle
 of the next day at each station.
+
+Conditions of the day and of each vehicle change how methods work:
+
+* weather: one state a day (from the month's distribution) sets each method's
+  false-alarm chance; in states that suspend outdoor methods, a station whose
+  method is outdoor uses its ``suspended_method`` or, without one, stands down
+  (its vehicles pass unchecked, queue-aware fallback included). The day's
+  weather holds for every vehicle of the day, also those checked after midnight;
+* cargo: each vehicle's cargo type multiplies detection and false-alarm chances
+  and, with the vehicle class, the check's duration;
+* depth: a vehicle carries the deepest depth level of the people still hidden in
+  it (levels are listed shallowest first); a method's depth factor multiplies
+  its detection chance;
+* fatigue: a station whose method in use has a fatigue rule rests its lanes by
+  that rule (see :mod:`abm.port.queues`); a check by a method with a fatigue
+  curve finds people with its chance times exp(-minutes worked / decay). Lanes of
+  a station whose method in use has no rule do not track work.
+
+Their random numbers come from streams of their own (weather and cargo from
+children of the traffic stream, replacement-method durations from a second
+child per station of the detection stream), each spawned after the existing
+children and drawn in fixed amounts, so a world that configures none of them
+draws exactly the numbers it drew before.
 """
 
 from __future__ import annotations
@@ -22,8 +45,8 @@ from dataclasses import dataclass, field
 import numpy as np
 
 from ..errors import InputError
-from .checks import draw_for_station
-from .layout import DEPARTURE, RULES, Layout
+from .checks import StationDraws, draw_for_station
+from .layout import DEPARTURE, MONTH_OF_YEAR_DAY, RULES, Layout
 from .queues import board_sailings, serve_fifo
 from .traffic import MINUTES_PER_DAY, DayTraffic, generate_traffic
 
@@ -40,12 +63,21 @@ class StationUnservable(InputError):
 
 @dataclass
 class Attempts:
-    """The day's boarding attempts, one row per group, chosen by the concealment agents."""
+    """The day's boarding attempts, one row per group, chosen by the concealment agents.
+
+    ``depth`` is an index into the world's depth levels; left out, every group
+    hides at the first (shallowest) level.
+    """
 
     point: np.ndarray
     band: np.ndarray
     vehicle_class: np.ndarray
     size: np.ndarray
+    depth: np.ndarray | None = None
+
+    def __post_init__(self) -> None:
+        if self.depth is None:
+            self.depth = np.zeros(self.point.shape[0], dtype=np.int64)
 
     @classmethod
     def empty(cls) -> "Attempts":
@@ -90,6 +122,8 @@ class DayResult:
     false_alarms: dict[str, np.ndarray]  # one row per alarm after which nothing was found
     time_in_port: np.ndarray  # minutes, per vehicle
     missed: np.ndarray  # bool per vehicle: left on a later sailing than booked
+    weather: str  # the day's weather state ("" in a world without weather)
+    method_rows: dict[str, np.ndarray]  # per method and cargo type: checks, alarms, and what truth says of them
     queue_wait: dict[int, np.ndarray] = field(default_factory=dict)  # station -> waits of checked vehicles
 
 
@@ -104,24 +138,33 @@ class DayEngine:
         detection_seq: np.random.SeedSequence,
     ) -> None:
         arrivals_seq, stop_seq = traffic_seq.spawn(2)
+        # spawned after the children above, which therefore stay what they were
+        weather_seq, cargo_seq = traffic_seq.spawn(2)
         self.layout = layout
         self.traffic_rng = np.random.default_rng(arrivals_seq)
         self.stop_rng = np.random.default_rng(stop_seq)
+        self.weather_rng = np.random.default_rng(weather_seq)
+        self.cargo_rng = np.random.default_rng(cargo_seq)
         self.boarding_rng = np.random.default_rng(boarding_seq)
         # one stream per station, so adding or changing one station leaves the others' numbers alone
-        self.station_rngs = [np.random.default_rng(s) for s in detection_seq.spawn(len(layout.station_method))]
+        n_s = len(layout.station_method)
+        self.station_rngs = [np.random.default_rng(s) for s in detection_seq.spawn(n_s)]
+        self.condition_rngs = [np.random.default_rng(s) for s in detection_seq.spawn(n_s)]
         self.free = [np.full(int(lanes), -np.inf) for lanes in layout.station_lanes]
+        self.worked = [np.zeros(int(lanes)) for lanes in layout.station_lanes]  # minutes since each lane's rest
         self.sailing_left: dict[int, np.ndarray] = {}
 
     def change_layout(self, layout: Layout) -> None:
         """Take a changed policy (same stations and points); lanes keep their state, new lanes start free."""
         for s, lanes in enumerate(layout.station_lanes):
-            free = self.free[s]
+            free, worked = self.free[s], self.worked[s]
             if lanes > free.shape[0]:
                 self.free[s] = np.concatenate([free, np.full(int(lanes) - free.shape[0], -np.inf)])
+                self.worked[s] = np.concatenate([worked, np.zeros(int(lanes) - free.shape[0])])
             elif lanes < free.shape[0]:
                 # removed lanes are the last ones: the recursion puts lanes above the staffed count off duty
                 self.free[s] = free[: int(lanes)]
+                self.worked[s] = worked[: int(lanes)]
         self.layout = layout
 
     # -- helpers -------------------------------------------------------------------------
@@ -144,14 +187,39 @@ class DayEngine:
         self.sailing_left.pop(day - 1, None)
         return np.concatenate(times), np.concatenate(left), spans
 
+    def _weather(self, day: int) -> int:
+        """The day's weather state: one uniform a day against the month's cumulative shares."""
+        lay = self.layout
+        u = self.weather_rng.random()
+        month = MONTH_OF_YEAR_DAY[(lay.weather_start_day + day) % MONTH_OF_YEAR_DAY.shape[0]]
+        return int(np.searchsorted(lay.weather_cum[month], u, side="right"))
+
+    def _methods_today(self, s: int, suspended: np.ndarray, d: StationDraws) -> tuple[int, int, np.ndarray, np.ndarray]:
+        """Station ``s``'s method and busy method today, with their duration draws; method -1: it stands down."""
+        lay = self.layout
+        main, service = int(lay.station_method[s]), d.service
+        if suspended[main]:
+            main, service = int(lay.station_suspended_method[s]), d.suspended_service
+        fallback = int(lay.station_fallback[s])
+        if fallback >= 0 and not suspended[fallback]:
+            return main, fallback, service, d.fallback_service
+        return main, main, service, service
+
     # -- the day -----------------------------------------------------------------------
     def run_day(self, day: int, attempts: Attempts, staffing: Staffing) -> DayResult:
         """Simulate one operating day."""
         lay = self.layout
-        traffic = generate_traffic(lay, day, self.traffic_rng, self.stop_rng)
+        if len(attempts) and int(attempts.depth.max()) >= len(lay.depth_names):
+            raise ValueError(f"an attempt's depth index exceeds the world's {len(lay.depth_names)} depth level(s)")
+        traffic = generate_traffic(lay, day, self.traffic_rng, self.stop_rng, self.cargo_rng)
         n, origin = traffic.size, day * MINUTES_PER_DAY
-        cls = traffic.vehicle_class
-        draws = [draw_for_station(lay, s, n, rng) for s, rng in enumerate(self.station_rngs)]
+        cls, cargo = traffic.vehicle_class, traffic.cargo
+        weather = self._weather(day)
+        suspended = lay.method_outdoor & lay.weather_suspends[weather]
+        draws = [
+            draw_for_station(lay, s, n, rng, crng)
+            for s, (rng, crng) in enumerate(zip(self.station_rngs, self.condition_rngs, strict=True))
+        ]
 
         a_n = len(attempts)
         result = AttemptResult(
@@ -164,6 +232,7 @@ class DayEngine:
         self._interdict(day, attempts, staffing, result)
 
         aboard = np.zeros(n, dtype=np.int64)  # people aboard and not yet found
+        depth = np.zeros(n, dtype=np.int64)  # deepest depth level of those people
         ready = traffic.arrival.copy()  # minute the vehicle leaves its last position
         referred = np.full(n, -1, dtype=np.int64)  # secondary station a vehicle is heading to
         alarm_station = np.full(n, -1, dtype=np.int64)
@@ -171,6 +240,7 @@ class DayEngine:
         alarm_hit = np.zeros(n, dtype=bool)
         check_parts: list[tuple[np.ndarray, ...]] = []
         false_parts: list[tuple[np.ndarray, ...]] = []
+        method_parts: list[tuple[np.ndarray, ...]] = []
         waits: dict[int, np.ndarray] = {}
 
         for s in range(lay.station_method.shape[0]):
@@ -178,7 +248,7 @@ class DayEngine:
             rows = np.flatnonzero(referred == s) if secondary else np.flatnonzero(referred == -1)
             arrive = ready[rows] + lay.station_travel[s]
             if not secondary:
-                self._board(attempts, result, np.flatnonzero(lay.point_station == s), rows, arrive, cls, aboard, traffic)
+                self._board(attempts, result, np.flatnonzero(lay.point_station == s), rows, arrive, cls, aboard, depth, traffic)
             order = np.argsort(arrive, kind="stable")
             rows, arrive = rows[order], arrive[order]
             d = draws[s]
@@ -193,11 +263,15 @@ class DayEngine:
                 p_normal = lay.station_fraction[s, hour, cls[rows]]
             queue_aware = rule == "queue_aware" and not secondary
             p_busy = lay.station_busy_fraction[s, hour, cls[rows]] if queue_aware else p_normal
+            main, busy_method, service, busy_service = self._methods_today(s, suspended, d)
+            if main < 0:  # suspended without a replacement: every vehicle passes unchecked
+                main = busy_method = int(lay.station_method[s])
+                p_normal = p_busy = np.zeros(rows.shape[0])
             staffed = np.minimum(staffing.lanes[s], lay.station_lanes[s]).astype(np.int64)
-            start, end, checked, busy = serve_fifo(
+            queue_args = (
                 arrive,
-                d.service[rows],
-                d.fallback_service[rows],
+                service[rows] * lay.method_service_factor[main, cls[rows], cargo[rows]],
+                busy_service[rows] * lay.method_service_factor[busy_method, cls[rows], cargo[rows]],
                 d.u_select[rows],
                 p_normal,
                 p_busy,
@@ -206,21 +280,36 @@ class DayEngine:
                 origin,
                 self.free[s],
             )
+            worked = np.zeros(rows.shape[0])  # minutes the lane had worked when each check started
+            if np.isfinite(lay.method_work_minutes[main]):
+                rest = (self.worked[s], lay.method_work_minutes[main], lay.method_rest_minutes[main], worked)
+                start, end, checked, busy = serve_fifo(*queue_args, *rest)
+            else:
+                start, end, checked, busy = serve_fifo(*queue_args)
             if np.isinf(start).any():
                 name = lay.world.stations[s].name
                 raise StationUnservable(f"station '{name}' selected a vehicle on day {day} that no staffed lane can check")
-            fallback = lay.station_fallback[s]
-            method = np.where(busy & (fallback >= 0), fallback, lay.station_method[s])
+            method = np.where(busy, busy_method, main)
+            vcargo = cargo[rows]
             occupied = aboard[rows] > 0
-            hit = checked & occupied & (d.u_detect[rows] < lay.method_detect[method, cls[rows]])
+            p_detect = (
+                lay.method_detect[method, cls[rows]]
+                * lay.method_cargo_detect[method, vcargo]
+                * lay.method_depth_detect[method, depth[rows]]
+                * np.exp(-worked / lay.method_fatigue_decay[method])
+            )
+            hit = checked & occupied & (d.u_detect[rows] < np.minimum(p_detect, 1.0))
             if secondary:
                 alarm = hit
                 # nothing found after the alarm that sent the vehicle here: the agency logs a false alarm
                 empty = ~hit & ~alarm_hit[rows]
-                false_parts.append((end[empty], alarm_station[rows][empty], alarm_method[rows][empty], cls[rows][empty]))
+                false_parts.append(
+                    (end[empty], alarm_station[rows][empty], alarm_method[rows][empty], cls[rows][empty], vcargo[empty])
+                )
                 referred[rows] = -1
             else:
-                alarm = checked & (hit | (d.u_false[rows] < lay.method_false_alarm[method]))
+                p_false = lay.method_false_alarm_weather[method, weather] * lay.method_cargo_false[method, vcargo]
+                alarm = checked & (hit | (d.u_false[rows] < np.minimum(p_false, 1.0)))
                 target = lay.station_refer[s]
                 if target >= 0:
                     sent = rows[alarm]
@@ -228,8 +317,14 @@ class DayEngine:
                     alarm_station[sent], alarm_method[sent], alarm_hit[sent] = s, method[alarm], hit[alarm]
                 else:
                     empty = alarm & ~hit
-                    false_parts.append((end[empty], np.full(int(empty.sum()), s), method[empty], cls[rows][empty]))
-            self._found(result, rows[hit], s, method[hit], end[hit], aboard)
+                    false_parts.append(
+                        (end[empty], np.full(int(empty.sum()), s), method[empty], cls[rows][empty], vcargo[empty])
+                    )
+            minutes = end - start
+            method_parts.append(
+                (method[checked], vcargo[checked], alarm[checked], occupied[checked], hit[checked], minutes[checked])
+            )
+            self._found(result, rows[hit], s, method[hit], end[hit], aboard, depth)
             ready[rows] = end
             # rows are keyed by arrival at the station, so vehicles passing per hour do not depend on policy
             check_parts.append((arrive, np.full(rows.shape[0], s), cls[rows], method, checked, alarm))
@@ -237,7 +332,7 @@ class DayEngine:
 
         departure_points = np.flatnonzero(lay.point_station == DEPARTURE)
         every = np.arange(n)
-        self._board(attempts, result, departure_points, every, ready, cls, aboard, traffic)
+        self._board(attempts, result, departure_points, every, ready, cls, aboard, depth, traffic)
         leave, missed = self._depart(day, traffic, ready)
         crossed = (result.outcome == PENDING) & (result.vehicle >= 0)
         result.outcome[crossed] = CROSSED
@@ -250,6 +345,8 @@ class DayEngine:
             false_alarms=_false_alarm_rows(false_parts),
             time_in_port=leave - traffic.arrival,
             missed=missed,
+            weather=lay.weather_names[weather],
+            method_rows=_method_rows(method_parts, false_parts, lay),
             queue_wait=waits,
         )
 
@@ -276,6 +373,7 @@ class DayEngine:
         next_arrival: np.ndarray,
         cls: np.ndarray,
         aboard: np.ndarray,
+        depth: np.ndarray,
         traffic: DayTraffic,
     ) -> None:
         """Board pending attempts at ``points`` onto vehicles ``rows`` passing them.
@@ -283,6 +381,7 @@ class DayEngine:
         A vehicle is at a point ``lead`` minutes before it reaches the next station
         (``next_arrival``); it must stop there, be of the chosen class, pass in the
         chosen band and have room for the whole group. One such vehicle is taken at random.
+        The vehicle's depth becomes the deeper of its own and the group's.
         """
         lay = self.layout
         todo = np.flatnonzero((result.outcome == PENDING) & np.isin(attempts.point, points))
@@ -302,11 +401,20 @@ class DayEngine:
                     continue
                 pick = choices[self.boarding_rng.integers(choices.shape[0])]
                 aboard[rows[pick]] += attempts.size[a]
+                depth[rows[pick]] = max(depth[rows[pick]], attempts.depth[a])
                 result.vehicle[a] = rows[pick]
                 result.minute[a] = at_point[pick]
 
     @staticmethod
-    def _found(result: AttemptResult, vehicles: np.ndarray, station: int, methods: np.ndarray, when: np.ndarray, aboard: np.ndarray) -> None:
+    def _found(
+        result: AttemptResult,
+        vehicles: np.ndarray,
+        station: int,
+        methods: np.ndarray,
+        when: np.ndarray,
+        aboard: np.ndarray,
+        depth: np.ndarray,
+    ) -> None:
         """Everyone aboard a vehicle whose check found people is found (detected)."""
         if vehicles.shape[0] == 0:
             return
@@ -319,6 +427,7 @@ class DayEngine:
             result.method[a] = methods[i]
             result.minute[a] = when[i]
         aboard[vehicles] = 0
+        depth[vehicles] = 0
 
     def _depart(self, day: int, traffic: DayTraffic, ready: np.ndarray) -> tuple[np.ndarray, np.ndarray]:
         """Minute each vehicle leaves the port and whether it missed its booked sailing."""
@@ -370,10 +479,47 @@ def _aggregate_checks(parts: list[tuple[np.ndarray, ...]], lay: Layout) -> dict[
 def _false_alarm_rows(parts: list[tuple[np.ndarray, ...]]) -> dict[str, np.ndarray]:
     if not parts:
         z = np.zeros(0)
-        return {"minute": z, "station": z.astype(np.int64), "method": z.astype(np.int64), "vehicle_class": z.astype(np.int64)}
+        i = z.astype(np.int64)
+        return {"minute": z, "station": i, "method": i.copy(), "vehicle_class": i.copy(), "cargo": i.copy()}
     return {
         "minute": np.concatenate([p[0] for p in parts]),
         "station": np.concatenate([p[1] for p in parts]).astype(np.int64),
         "method": np.concatenate([p[2] for p in parts]).astype(np.int64),
         "vehicle_class": np.concatenate([p[3] for p in parts]).astype(np.int64),
+        "cargo": np.concatenate([p[4] for p in parts]).astype(np.int64),
+    }
+
+
+def _method_rows(
+    parts: list[tuple[np.ndarray, ...]], false_parts: list[tuple[np.ndarray, ...]], lay: Layout
+) -> dict[str, np.ndarray]:
+    """Sum the day's checks per method and cargo type (every pair, so a method that stood down shows zero).
+
+    ``false_alarms`` are the alarms the agency logged as false (nothing found
+    after them), by the method that raised them; ``truth_false_alarms`` are
+    alarms on vehicles with nobody aboard, ``truth_true_alarms`` on vehicles
+    with people aboard, ``truth_found`` checks that found them.
+    """
+    n_k = len(lay.cargo_names)
+    size = lay.method_dist.shape[0] * n_k
+
+    def count(key: np.ndarray, weights: np.ndarray | None = None) -> np.ndarray:
+        return np.bincount(key, weights=weights, minlength=size)
+
+    method = np.concatenate([p[0] for p in parts])
+    key = method * n_k + np.concatenate([p[1] for p in parts])
+    alarm, occupied, hit = (np.concatenate([p[j] for p in parts]) for j in (2, 3, 4))
+    false_key = np.concatenate([p[2] * n_k + p[4] for p in false_parts]) if false_parts else np.zeros(0, dtype=np.int64)
+    m, k = np.divmod(np.arange(size), n_k)
+    return {
+        "method": m,
+        "cargo": np.array(lay.cargo_names, dtype=object)[k],
+        "checks": count(key).astype(np.int64),
+        "alarms": count(key, alarm).astype(np.int64),
+        "false_alarms": count(false_key.astype(np.int64)).astype(np.int64),
+        "check_minutes": count(key, np.concatenate([p[5] for p in parts])),
+        "truth_occupied_checks": count(key, occupied).astype(np.int64),
+        "truth_found": count(key, hit).astype(np.int64),
+        "truth_true_alarms": count(key, alarm & occupied).astype(np.int64),
+        "truth_false_alarms": count(key, alarm & ~occupied).astype(np.int64),
     }

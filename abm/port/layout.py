@@ -3,6 +3,10 @@
 Classes, bands, points, stations and methods become integer indices; per-class
 and per-band tables become numpy arrays. Everything here is derived from the
 validated :class:`~abm.world.schema.World` and is read-only.
+
+Conditions that change how methods work (weather, cargo, concealment depth,
+fatigue) become factor tables that are exactly 1 (or the method's own value)
+where a world configures nothing, so such a world runs as if they did not exist.
 """
 
 from __future__ import annotations
@@ -12,11 +16,14 @@ from dataclasses import dataclass
 import numpy as np
 
 from ..world.references import hours_of
-from ..world.schema import DEFAULT_KEY, World
+from ..world.schema import DEFAULT_KEY, MONTHS, World
 
 RULES = ("all", "fraction", "targeted", "queue_aware")
 DISTS = ("exponential", "deterministic", "lognormal", "gamma", "uniform")
 DEPARTURE = -1  # a boarding point after every station
+UNSTATED = ""  # the weather of a world without weather, the cargo of a class without cargo shares
+MONTH_DAYS = (31, 28, 31, 30, 31, 30, 31, 31, 30, 31, 30, 31)
+MONTH_OF_YEAR_DAY = np.repeat(np.arange(12), MONTH_DAYS)  # (365,) month index of each day of the year
 
 
 @dataclass(frozen=True)
@@ -64,11 +71,61 @@ class Layout:
     sailing_capacity: np.ndarray  # (K,)
     cutoff: float
     planned: float
+    # conditions of the day
+    weather_names: tuple[str, ...]  # (W,)
+    weather_cum: np.ndarray  # (12, W) cumulative share of days per month
+    weather_start_day: int  # day of the 365-day year that day 0 is
+    weather_suspends: np.ndarray  # (W,) bool: outdoor methods stop
+    method_outdoor: np.ndarray  # (M,) bool
+    method_false_alarm_weather: np.ndarray  # (M, W)
+    # cargo
+    cargo_names: tuple[str, ...]  # (K,)
+    class_cargo_cum: np.ndarray  # (C, K) cumulative cargo shares per class
+    method_cargo_detect: np.ndarray  # (M, K) detection multiplier
+    method_cargo_false: np.ndarray  # (M, K) false-alarm multiplier
+    method_service_factor: np.ndarray  # (M, C, K) service-time multiplier
+    # concealment depth
+    depth_names: tuple[str, ...]  # (D,)
+    depth_hazard: np.ndarray  # (D,) hazard added for hiding at this depth (for the behaviour layer)
+    method_depth_detect: np.ndarray  # (M, D) detection multiplier
+    # fatigue (inf where a method has none)
+    method_fatigue_decay: np.ndarray  # (M,) minutes
+    method_work_minutes: np.ndarray  # (M,)
+    method_rest_minutes: np.ndarray  # (M,)
+    station_suspended_method: np.ndarray  # (S,) method index or -1 (vehicles pass unchecked)
 
 
 def _per_class(table: dict[str, float], classes: list[str], fallback: float) -> np.ndarray:
     default = table.get(DEFAULT_KEY, fallback)
     return np.array([table.get(c, default) for c in classes], dtype=float)
+
+
+def _weather_tables(world: World) -> tuple[tuple[str, ...], np.ndarray, int, np.ndarray]:
+    """Weather state names, cumulative shares per month, day of year of day 0, suspending states."""
+    weather = world.weather
+    if weather is None:
+        return (UNSTATED,), np.ones((12, 1)), 0, np.zeros(1, dtype=bool)
+    states = weather.states
+    default = weather.months.get(DEFAULT_KEY, {})
+    shares = np.array([[weather.months.get(m, default).get(w, 0.0) for w in states] for m in MONTHS])
+    cum = np.cumsum(shares, axis=1)
+    cum[:, -1] = 1.0  # shares sum to 1 within 1e-6: no uniform draw may fall past the last state
+    start = int(sum(MONTH_DAYS[: weather.start_month - 1]))
+    suspends = np.array([w in weather.suspend_outdoor for w in states])
+    return tuple(states), cum, start, suspends
+
+
+def _cargo_tables(world: World, cargo: list[str]) -> np.ndarray:
+    """Cumulative cargo shares per class; a class without shares carries unstated cargo (the last column)."""
+    shares = np.zeros((len(world.vehicle_classes), len(cargo)))
+    for c, vclass in enumerate(world.vehicle_classes):
+        if vclass.cargo:
+            shares[c] = [vclass.cargo.get(k, 0.0) for k in cargo]
+        else:
+            shares[c, cargo.index(UNSTATED)] = 1.0
+    cum = np.cumsum(shares, axis=1)
+    cum[:, -1] = 1.0
+    return cum
 
 
 def build_layout(world: World) -> Layout:
@@ -104,6 +161,32 @@ def build_layout(world: World) -> Layout:
     interdiction = np.array([[p.interdiction.get(b, p.interdiction.get(DEFAULT_KEY, 0.0)) for b in bands] for p in points])
     dep = world.departures
     sailings = dep.sailings if dep else []
+
+    weather_names, weather_cum, weather_start, weather_suspends = _weather_tables(world)
+    cargo = world.cargo_names
+    if not cargo or any(not c.cargo for c in world.vehicle_classes):
+        cargo = cargo + [UNSTATED]
+    depths = [d.name for d in world.depths]
+    n_m = len(methods)
+    false_weather = np.array(
+        [[m.weather[w].false_alarm if w in m.weather else m.false_alarm for w in weather_names] for m in methods]
+    )
+    cargo_detect = np.ones((n_m, len(cargo)))
+    cargo_false = np.ones((n_m, len(cargo)))
+    service_factor = np.ones((n_m, n_c, len(cargo)))
+    for i, m in enumerate(methods):
+        for k, name in enumerate(cargo):
+            if name in m.cargo:
+                cargo_detect[i, k] = m.cargo[name].detection_factor
+                cargo_false[i, k] = m.cargo[name].false_alarm_factor
+        by_class = _per_class(m.service.class_factor, classes, 1.0)
+        cargo_default = m.service.cargo_factor.get(DEFAULT_KEY, 1.0)
+        by_cargo = np.array([m.service.cargo_factor.get(k, cargo_default) for k in cargo])
+        service_factor[i] = by_class[:, None] * by_cargo[None, :]
+    fatigue = [
+        (m.fatigue.decay_minutes, m.fatigue.work_minutes, m.fatigue.rest_minutes) if m.fatigue else (np.inf,) * 3
+        for m in methods
+    ]
     return Layout(
         world=world,
         n_classes=n_c,
@@ -148,4 +231,24 @@ def build_layout(world: World) -> Layout:
         sailing_capacity=np.array([s.capacity for s in sailings], dtype=np.int64),
         cutoff=dep.cutoff_minutes if dep else 0.0,
         planned=dep.planned_minutes if dep else 0.0,
+        weather_names=weather_names,
+        weather_cum=weather_cum,
+        weather_start_day=weather_start,
+        weather_suspends=weather_suspends,
+        method_outdoor=np.array([m.outdoor for m in methods]),
+        method_false_alarm_weather=false_weather.reshape(n_m, len(weather_names)),
+        cargo_names=tuple(cargo),
+        class_cargo_cum=_cargo_tables(world, cargo),
+        method_cargo_detect=cargo_detect,
+        method_cargo_false=cargo_false,
+        method_service_factor=service_factor,
+        depth_names=tuple(depths),
+        depth_hazard=np.array([d.hazard for d in world.depths]),
+        method_depth_detect=np.array([[m.depth_factor.get(d, 1.0) for d in depths] for m in methods]),
+        method_fatigue_decay=np.array([f[0] for f in fatigue]),
+        method_work_minutes=np.array([f[1] for f in fatigue]),
+        method_rest_minutes=np.array([f[2] for f in fatigue]),
+        station_suspended_method=np.array(
+            [m_index[s.suspended_method] if s.suspended_method else -1 for s in world.stations], dtype=np.int64
+        ),
     )

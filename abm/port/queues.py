@@ -9,6 +9,14 @@ in arrival order (strict FIFO: nobody overtakes the head of the queue).
 Selection happens inside the recursion because the queue-aware rule needs the
 queue length (vehicles waiting, not yet in a check) at each arrival.
 
+Lanes may also tire (dog teams): each lane keeps the minutes it has worked
+since its last rest. A lane that has worked ``work_limit`` minutes or more when
+a check ends rests ``rest_minutes`` before its next check (a check in progress
+is finished, not split); any gap of ``rest_minutes`` or more between a lane's
+checks (idle or off duty) also counts as a rest. The minutes worked at the
+start of each check are returned so the caller can set that check's sensitivity.
+With infinite limits (the default) nothing rests and the queue is the plain one.
+
 Compiled with numba: a plain-Python loop costs about as much as a generic
 event simulator, which would dominate a simulated year.
 """
@@ -46,7 +54,6 @@ def earliest_fit(t: float, duration: float, lane: int, staffed: np.ndarray, orig
     return np.inf
 
 
-@numba.njit(cache=True)
 def serve_fifo(
     arrival: np.ndarray,
     service: np.ndarray,
@@ -58,6 +65,10 @@ def serve_fifo(
     staffed: np.ndarray,
     origin: float,
     free: np.ndarray,
+    worked: np.ndarray | None = None,
+    work_limit: float = np.inf,
+    rest_minutes: float = np.inf,
+    worked_at_start: np.ndarray | None = None,
 ) -> tuple[np.ndarray, np.ndarray, np.ndarray, np.ndarray]:
     """Run one station's queue for a day's arrivals (sorted ascending).
 
@@ -67,9 +78,43 @@ def serve_fifo(
     ``free`` (one entry per physical lane, absolute minutes) carries the lanes'
     state between days and is updated in place; ``staffed`` is the day's 24-hour roster.
 
+    Resting lanes: ``worked`` (minutes per lane since its last rest, updated in
+    place like ``free``), ``work_limit`` and ``rest_minutes`` as in the module
+    docstring; ``worked_at_start`` (one entry per vehicle) receives, for each
+    checked vehicle, its lane's minutes worked when the check starts.
+
     Returns start, end (both equal to arrival for unchecked vehicles), a checked
     flag and a busy flag. An unservable vehicle (no lane ever fits) gets start inf.
     """
+    # A plain entry point with four results: callers (and tests that wrap it) stay as they were.
+    if worked is None:
+        worked = np.zeros(free.shape[0])
+    if worked_at_start is None:
+        worked_at_start = np.zeros(arrival.shape[0])
+    return _serve(
+        arrival, service, busy_service, u_select, p_normal, p_busy, queue_threshold, staffed, origin, free,
+        worked, float(work_limit), float(rest_minutes), worked_at_start,
+    )  # fmt: skip
+
+
+@numba.njit(cache=True)
+def _serve(
+    arrival: np.ndarray,
+    service: np.ndarray,
+    busy_service: np.ndarray,
+    u_select: np.ndarray,
+    p_normal: np.ndarray,
+    p_busy: np.ndarray,
+    queue_threshold: int,
+    staffed: np.ndarray,
+    origin: float,
+    free: np.ndarray,
+    worked: np.ndarray,
+    work_limit: float,
+    rest_minutes: float,
+    worked_at_start: np.ndarray,
+) -> tuple[np.ndarray, np.ndarray, np.ndarray, np.ndarray]:
+    """The compiled recursion behind :func:`serve_fifo` (same arguments, all given)."""
     n = arrival.shape[0]
     start = arrival.copy()
     end = arrival.copy()
@@ -102,7 +147,15 @@ def serve_fifo(
         start[i] = best_t
         end[i] = best_t + duration
         if best_lane >= 0:
+            # a long enough gap since the lane's last check was a rest
+            done = 0.0 if best_t - free[best_lane] >= rest_minutes else worked[best_lane]
+            worked_at_start[i] = done
+            done += duration
             free[best_lane] = best_t + duration
+            if done >= work_limit:
+                free[best_lane] += rest_minutes
+                done = 0.0
+            worked[best_lane] = done
             last_start = best_t
         starts[n_checked] = best_t
         n_checked += 1

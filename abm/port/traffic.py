@@ -1,4 +1,4 @@
-"""One day's vehicles: a non-homogeneous Poisson arrival stream with classes and stops."""
+"""One day's vehicles: a non-homogeneous Poisson arrival stream with classes, stops and cargo."""
 
 from __future__ import annotations
 
@@ -19,17 +19,25 @@ class DayTraffic:
     arrival: np.ndarray  # absolute minute (day * 1440 + minute of day), ascending
     vehicle_class: np.ndarray  # class index
     stops: np.ndarray  # (P, n) bool: the vehicle stops at boarding point p
+    cargo: np.ndarray | None = None  # cargo index (Layout.cargo_names); None when drawn without a cargo stream
 
     @property
     def size(self) -> int:
         return int(self.arrival.shape[0])
 
 
-def generate_traffic(layout: Layout, day: int, traffic_rng: np.random.Generator, stop_rng: np.random.Generator) -> DayTraffic:
+def generate_traffic(
+    layout: Layout,
+    day: int,
+    traffic_rng: np.random.Generator,
+    stop_rng: np.random.Generator,
+    cargo_rng: np.random.Generator | None = None,
+) -> DayTraffic:
     """Draw a day's arrivals: Poisson counts per hour, uniform minutes within the hour.
 
     Hourly counts with uniform times inside each hour are exactly a Poisson
-    process with a piecewise-constant rate. Day 0 is a Monday.
+    process with a piecewise-constant rate. Day 0 is a Monday. With
+    ``cargo_rng`` each vehicle also gets a cargo type from its class's shares.
     """
     rate = layout.hourly_rate * layout.weekday_factor[day % 7]
     counts = traffic_rng.poisson(rate)
@@ -39,4 +47,12 @@ def generate_traffic(layout: Layout, day: int, traffic_rng: np.random.Generator,
     classes = traffic_rng.choice(layout.n_classes, size=n, p=layout.class_share)
     # Stop draws come from their own stream so that traffic does not depend on boarding geography.
     stops = stop_rng.random((layout.point_stop_share.shape[0], n)) < layout.point_stop_share[:, classes]
-    return DayTraffic(day=day, arrival=day * MINUTES_PER_DAY + minute, vehicle_class=classes, stops=stops)
+    cargo = draw_cargo(layout, classes, cargo_rng) if cargo_rng is not None else None
+    return DayTraffic(day=day, arrival=day * MINUTES_PER_DAY + minute, vehicle_class=classes, stops=stops, cargo=cargo)
+
+
+def draw_cargo(layout: Layout, vehicle_class: np.ndarray, rng: np.random.Generator) -> np.ndarray:
+    """One uniform per vehicle (fixed consumption) turned into a cargo type by its class's cumulative shares."""
+    u = rng.random(vehicle_class.shape[0])
+    cum = layout.class_cargo_cum[vehicle_class]
+    return np.minimum((u[:, None] >= cum).sum(axis=1), cum.shape[1] - 1).astype(np.int64)

@@ -9,7 +9,7 @@ from __future__ import annotations
 import difflib
 from collections.abc import Iterable
 
-from .schema import DEFAULT_KEY, World
+from .schema import DEFAULT_KEY, MONTHS, World
 
 
 class ReferenceProblem(ValueError):
@@ -53,7 +53,9 @@ def check_references(world: World) -> None:
     _unique(world.station_names, "stations", "station")
     _unique(world.point_names, "boarding_points", "boarding point")
     _unique([t.name for t in world.roster.teams], "roster.teams", "team")
+    _unique([d.name for d in world.depths], "depths", "depth level")
     _check_bands(world)
+    _check_weather(world)
     classes, bands = world.class_names, world.band_names
 
     for i, method in enumerate(world.methods):
@@ -66,6 +68,7 @@ def check_references(world: World) -> None:
                 f"methods[{i}].detection",
                 f"no detection chance for class '{missing[0]}': give it or a 'default'",
             )
+        _check_method_conditions(world, i)
 
     names = world.station_names
     for i, station in enumerate(world.stations):
@@ -78,6 +81,8 @@ def check_references(world: World) -> None:
             _require(key, classes, f"{path}.selection.class_factor.{key}", "vehicle class")
         if sel.fallback_method is not None:
             _require(sel.fallback_method, world.method_names, f"{path}.selection.fallback_method", "check method")
+        if station.suspended_method is not None:
+            _check_suspended_method(world, i)
         if station.refer_to is not None:
             _require(station.refer_to, names, f"{path}.refer_to", "station")
             target = names.index(station.refer_to)
@@ -150,6 +155,65 @@ def check_references(world: World) -> None:
         _require(key, bands, f"adversary.static.band_shares.{key}", "time band")
     for key in static.class_shares:
         _require(key, classes, f"adversary.static.class_shares.{key}", "vehicle class")
+
+
+def _check_weather(world: World) -> None:
+    """Weather states are unique, every month has a distribution over known states."""
+    weather = world.weather
+    if weather is None:
+        return
+    _unique_names(weather.states, "weather.states", "weather state")
+    for month, shares in weather.months.items():
+        if month != DEFAULT_KEY:
+            _require(month, MONTHS, f"weather.months.{month}", "month")
+        for state in shares:
+            _require(state, weather.states, f"weather.months.{month}.{state}", "weather state")
+    if DEFAULT_KEY not in weather.months:
+        missing = [m for m in MONTHS if m not in weather.months]
+        if missing:
+            raise ReferenceProblem("weather.months", f"no weather shares for '{missing[0]}': give it or a 'default'")
+    for j, state in enumerate(weather.suspend_outdoor):
+        _require(state, weather.states, f"weather.suspend_outdoor[{j}]", "weather state")
+
+
+def _unique_names(names: list[str], path: str, what: str) -> None:
+    seen: set[str] = set()
+    for i, name in enumerate(names):
+        if name in seen:
+            raise ReferenceProblem(f"{path}[{i}]", f"{what} '{name}' is listed twice")
+        seen.add(name)
+
+
+def _check_method_conditions(world: World, i: int) -> None:
+    """A method's weather, cargo, depth and service-factor keys name states, cargo types, levels and classes."""
+    method, path = world.methods[i], f"methods[{i}]"
+    states = world.weather.states if world.weather is not None else []
+    for key in method.weather:
+        if not states:
+            raise ReferenceProblem(f"{path}.weather", "the world has no weather section to take states from")
+        _require(key, states, f"{path}.weather.{key}", "weather state")
+    cargo = world.cargo_names
+    for key in method.cargo:
+        _require(key, cargo, f"{path}.cargo.{key}", "cargo type (see vehicle_classes[].cargo)")
+    for key in method.depth_factor:
+        _require(key, [d.name for d in world.depths], f"{path}.depth_factor.{key}", "depth level")
+    for key in method.service.class_factor:
+        if key != DEFAULT_KEY:
+            _require(key, world.class_names, f"{path}.service.class_factor.{key}", "vehicle class")
+    for key in method.service.cargo_factor:
+        if key != DEFAULT_KEY:
+            _require(key, cargo, f"{path}.service.cargo_factor.{key}", "cargo type (see vehicle_classes[].cargo)")
+
+
+def _check_suspended_method(world: World, i: int) -> None:
+    """A replacement method stands in for an outdoor method and must itself keep working."""
+    station, path = world.stations[i], f"stations[{i}].suspended_method"
+    _require(station.suspended_method, world.method_names, path, "check method")
+    methods = {m.name: m for m in world.methods}
+    if not methods[station.method].outdoor:
+        raise ReferenceProblem(path, f"the station's method '{station.method}' is not outdoor, so it is never suspended")
+    if methods[station.suspended_method].outdoor:
+        raise ReferenceProblem(path, f"expected a method that is not outdoor, but '{station.suspended_method}' is outdoor")
 
 
 def _check_bands(world: World) -> None:

@@ -35,6 +35,7 @@ Name = Annotated[str, Field(min_length=1, max_length=80, pattern=NAME_PATTERN)]
 
 SHARE_TOLERANCE = 1e-6
 DEFAULT_KEY = "default"
+MONTHS = ("jan", "feb", "mar", "apr", "may", "jun", "jul", "aug", "sep", "oct", "nov", "dec")
 
 
 class Strict(BaseModel):
@@ -59,6 +60,14 @@ class VehicleClass(Strict):
     share: Probability
     capacity: Count = Field(description="people who can hide in one vehicle")
     risk_weight: Positive = Field(1.0, description="relative risk score used by targeted selection")
+    cargo: dict[Name, Probability] = Field(
+        default_factory=dict, description="share of this class's vehicles carrying each cargo type; empty: unstated"
+    )
+
+    @field_validator("cargo")
+    @classmethod
+    def _cargo_shares(cls, v: dict[str, float]) -> dict[str, float]:
+        return _check_shares(v, "cargo shares")
 
 
 class Traffic(Strict):
@@ -83,6 +92,12 @@ class ServiceTime(Strict):
     mean: Positive
     cv: NonNegative = Field(0.0, description="coefficient of variation (lognormal, gamma)")
     spread: NonNegative = Field(0.0, description="half-width as a share of the mean (uniform)")
+    class_factor: dict[str, Positive] = Field(
+        default_factory=dict, description="duration multiplier per vehicle class or 'default' (e.g. unloading)"
+    )
+    cargo_factor: dict[str, Positive] = Field(
+        default_factory=dict, description="duration multiplier per cargo type or 'default'"
+    )
 
     @model_validator(mode="after")
     def _shape_given(self) -> "ServiceTime":
@@ -91,6 +106,34 @@ class ServiceTime(Strict):
         if self.dist == "uniform" and not 0 < self.spread <= 1:
             raise ValueError("a uniform service time needs 0 < spread <= 1")
         return self
+
+
+class CargoEffect(Strict):
+    """How a cargo type confounds a method (e.g. gases given off or absorbed by produce, timber, paper)."""
+
+    detection_factor: NonNegative = Field(1.0, description="multiplies the detection chance (capped at 1)")
+    false_alarm_factor: NonNegative = Field(1.0, description="multiplies the false-alarm chance (capped at 1)")
+
+
+class WeatherEffect(Strict):
+    """How one weather state changes a method (wind shakes a vehicle a motion sensor listens to)."""
+
+    false_alarm: Probability = Field(description="false-alarm chance in this weather, replacing the method's own")
+
+
+class Fatigue(Strict):
+    """A team that tires: sensitivity decays with minutes worked since its last rest, and rest is enforced.
+
+    A check starting after w minutes of work since the lane's last rest finds
+    people with the method's chance times exp(-w / decay_minutes). A lane that
+    has worked work_minutes or more when a check ends rests rest_minutes before
+    its next check; any gap of rest_minutes or more between checks (idle or off
+    duty) also counts as a rest.
+    """
+
+    decay_minutes: Positive = Field(description="time constant of the exponential decay of sensitivity")
+    work_minutes: Positive = Field(description="work after which a lane must rest")
+    rest_minutes: Positive = Field(description="length of a rest")
 
 
 class CheckMethod(Strict):
@@ -102,7 +145,13 @@ class CheckMethod(Strict):
         description="chance that a check finds people hidden in a vehicle, per class or 'default'"
     )
     false_alarm: Probability = Field(0.0, description="chance of an alarm on a vehicle when nobody is found")
-    outdoor: bool = False
+    outdoor: bool = Field(False, description="suspended in the weather states listed in weather.suspend_outdoor")
+    weather: dict[Name, WeatherEffect] = Field(default_factory=dict, description="effect per weather state")
+    cargo: dict[Name, CargoEffect] = Field(default_factory=dict, description="effect per cargo type")
+    depth_factor: dict[Name, NonNegative] = Field(
+        default_factory=dict, description="detection multiplier per concealment depth level (default 1)"
+    )
+    fatigue: Fatigue | None = None
 
 
 class Selection(Strict):
@@ -135,6 +184,9 @@ class Station(Strict):
     travel_minutes: NonNegative = Field(0.0, description="driving time from the previous point on the route")
     selection: Selection = Field(default_factory=Selection)
     refer_to: Name | None = Field(None, description="secondary station that searches vehicles after an alarm")
+    suspended_method: Name | None = Field(
+        None, description="method used while the station's outdoor method is suspended; none: vehicles pass unchecked"
+    )
 
 
 class Stop(Strict):
@@ -186,6 +238,34 @@ class Departures(Strict):
         if minutes != sorted(set(minutes)):
             raise ValueError("sailings must be in time order with no repeated time")
         return v
+
+
+class Weather(Strict):
+    """A daily weather state drawn from a distribution per calendar month.
+
+    Day 0 is the first day of ``start_month``; the calendar has 365 days (no leap years).
+    """
+
+    states: list[Name] = Field(min_length=1)
+    start_month: Annotated[int, Field(ge=1, le=12), _Number] = 1
+    months: dict[str, dict[str, Probability]] = Field(
+        description="share of days in each state, per month (jan..dec) or 'default'"
+    )
+    suspend_outdoor: list[Name] = Field(default_factory=list, description="states in which outdoor methods stop")
+
+    @field_validator("months")
+    @classmethod
+    def _month_shares(cls, v: dict[str, dict[str, float]]) -> dict[str, dict[str, float]]:
+        for month, shares in v.items():
+            _check_shares(shares, f"weather shares of '{month}'")
+        return v
+
+
+class DepthLevel(Strict):
+    """How deep in the load people hide; deeper is harder to find and more dangerous."""
+
+    name: Name
+    hazard: NonNegative = Field(0.0, description="hazard added to the boarding point's for hiding this deep")
 
 
 class Posting(Strict):
@@ -379,6 +459,12 @@ class World(Strict):
     adversary: Adversary
     interventions: list[Intervention] = Field(default_factory=list)
     displacement: DisplacementAreas | None = None
+    weather: Weather | None = None
+    depths: list[DepthLevel] = Field(
+        default_factory=lambda: [DepthLevel(name="normal")],
+        min_length=1,
+        description="concealment depth levels, shallowest first; attempts choose one (default the first)",
+    )
 
     @field_validator("interventions")
     @classmethod
@@ -414,3 +500,8 @@ class World(Strict):
     @property
     def method_names(self) -> list[str]:
         return [m.name for m in self.methods]
+
+    @property
+    def cargo_names(self) -> list[str]:
+        """Cargo types in order of first mention across the vehicle classes."""
+        return list(dict.fromkeys(k for c in self.vehicle_classes for k in c.cargo))

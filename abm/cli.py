@@ -131,12 +131,14 @@ def cmd_batch(args: argparse.Namespace) -> int:
     """Run every run of an experiment into a batch folder; print the per-design-point comparison."""
     from .analysis.estimator_check import cached_estimates
     from .experiment.batch import batch_command
-    from .experiment.store import register_summary_extension
 
-    register_summary_extension(cached_estimates)  # estimator results become summary columns
     command = ["undertow", *args.argv]
     try:
-        ok = batch_command(args.experiment, args.out, args.executor, args.workers, args.scheduler, args.resume, command)
+        # every estimator's result becomes summary columns, so briefings can weigh them against truth
+        ok = batch_command(
+            args.experiment, args.out, args.executor, args.workers, args.scheduler, args.resume, command,
+            extensions=(cached_estimates,),
+        )
     except KeyboardInterrupt:
         print(f"undertow batch: interrupted; complete runs are kept in {args.out}; add --resume to finish", file=sys.stderr)
         return EXIT_INTERRUPTED

@@ -21,7 +21,7 @@ from ..errors import InputError
 from .compare import compare_points, format_comparison
 from .design import Plan, RunSpec, load_plan
 from .executors import make_executor
-from .store import FAILURES_TABLE, Store
+from .store import FAILURES_TABLE, Store, SummaryExtension
 from .worker import RunTask
 
 
@@ -82,11 +82,13 @@ def run_batch(
     resume: bool = False,
     command: Sequence[str] = (),
     show_progress: bool | None = None,
+    extensions: Sequence[SummaryExtension] = (),
 ) -> BatchResult:
     """Run (or finish, with ``resume``) every run of an experiment into ``out``.
 
     A run that raises is recorded in failures.parquet and the batch goes on.
-    ``show_progress`` None shows a bar only on a terminal.
+    ``show_progress`` None shows a bar only on a terminal. ``extensions`` add
+    summary columns per run (the command line adds every estimator's result).
     """
     plan = load_plan(experiment)
     store = Store(out)
@@ -104,7 +106,7 @@ def run_batch(
                     store.record_failure(by_id[answer["run_id"]], answer["error"], answer["traceback"])
                     bar.set_postfix_str(f"{failed} failed")
                 bar.update(1)
-    summary, failures = store.rebuild(plan)
+    summary, failures = store.rebuild(plan, extensions)
     labels = [f.label for f in plan.factors]
     comparison = compare_points(summary, labels, {p.index: p.compare_to for p in plan.points})
     return BatchResult(Path(out), plan, len(todo), summary, failures, comparison)
@@ -118,6 +120,7 @@ def batch_command(
     scheduler: str | None,
     resume: bool,
     command: Sequence[str],
+    extensions: Sequence[SummaryExtension] = (),
 ) -> bool:
     """``undertow batch``: run the batch, print the comparison; False when some runs failed (noted on stderr)."""
     executor = executor or ("dask" if scheduler else "serial")
@@ -125,7 +128,7 @@ def batch_command(
         raise InputError(f"--scheduler: connects to a Dask cluster; it needs --executor dask, not {executor}")
     if workers and executor == "serial":
         raise InputError("--workers: applies to --executor processes or dask")
-    result = run_batch(experiment, out, executor, workers, scheduler, resume, command)
+    result = run_batch(experiment, out, executor, workers, scheduler, resume, command, extensions=extensions)
     done = result.total - result.failed
     print(f"{result.plan.spec.name}: {done} of {result.total} runs complete ({result.ran} run now) -> {result.out}")
     print(format_comparison(result.comparison, [f.label for f in result.plan.factors]))

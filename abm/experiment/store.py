@@ -18,7 +18,7 @@ from __future__ import annotations
 
 import json
 import shutil
-from collections.abc import Callable, Mapping
+from collections.abc import Callable, Mapping, Sequence
 from pathlib import Path
 from typing import Any
 
@@ -48,17 +48,10 @@ FAILURE_COLUMNS = {
 # Extra summary columns computed from a completed run directory (e.g. estimator results). Each function
 # takes the run directory and returns {column: value}; the store adds the columns to every row.
 SummaryExtension = Callable[[Path], Mapping[str, Any]]
-SUMMARY_EXTENSIONS: list[SummaryExtension] = []
 
 
 class StoreError(InputError):
     """An output folder that cannot take this batch."""
-
-
-def register_summary_extension(extension: SummaryExtension) -> SummaryExtension:
-    """Add columns to every summary row from now on (usable as a decorator)."""
-    SUMMARY_EXTENSIONS.append(extension)
-    return extension
 
 
 class Store:
@@ -140,8 +133,11 @@ class Store:
             self.failed / f"{spec.run_id}.json",
         )
 
-    def rebuild(self, plan: Plan) -> tuple[pd.DataFrame, pd.DataFrame]:
-        """Write summary.parquet and failures.parquet from the run directories; return both tables."""
+    def rebuild(self, plan: Plan, extensions: Sequence[SummaryExtension] = ()) -> tuple[pd.DataFrame, pd.DataFrame]:
+        """Write summary.parquet and failures.parquet from the run directories; return both tables.
+
+        Each of ``extensions`` adds columns computed from a run directory to that run's row.
+        """
         for entry in self.runs.iterdir() if self.runs.is_dir() else ():
             if entry.name.startswith(".") and entry.is_dir():
                 shutil.rmtree(entry)  # left by a run that raised while writing
@@ -151,7 +147,7 @@ class Store:
         for spec in plan.runs():
             run_dir = self.run_dir(spec.run_id)
             if is_complete(run_dir):
-                summary_rows.append(_summary_row(spec, values[spec.point], run_dir))
+                summary_rows.append(_summary_row(spec, values[spec.point], run_dir, extensions))
             elif (self.failed / f"{spec.run_id}.json").is_file():
                 failure_rows.append(json.loads((self.failed / f"{spec.run_id}.json").read_text(encoding="utf-8")))
         summary = _summary_frame(summary_rows, plan.factors)
@@ -171,14 +167,16 @@ def _factor_record(factor: PlannedFactor) -> dict[str, Any]:
     return record
 
 
-def _summary_row(spec: RunSpec, values: Mapping[str, Any], run_dir: Path) -> dict[str, Any]:
+def _summary_row(
+    spec: RunSpec, values: Mapping[str, Any], run_dir: Path, extensions: Sequence[SummaryExtension]
+) -> dict[str, Any]:
     summary = json.loads((run_dir / SUMMARY_FILE).read_text(encoding="utf-8"))
     manifest = json.loads((run_dir / "manifest.json").read_text(encoding="utf-8"))
     row: dict[str, Any] = {"run_id": spec.run_id, "point": spec.point, "replication": spec.replication}
     row.update(values)
     row["seed"] = int(manifest["seed"])  # as the run recorded it
     row.update({key: value for key, value in summary.items() if key != "sources"})
-    for extension in SUMMARY_EXTENSIONS:
+    for extension in extensions:
         row.update(extension(run_dir))
     return row
 

@@ -82,12 +82,12 @@ class RecordBook:
     """Accumulates a run's records day by day; builds the tables at the end."""
 
     layout: Layout
-    _attempts: list[pd.DataFrame] = field(default_factory=list)
+    _attempts: list[dict[str, np.ndarray]] = field(default_factory=list)  # index codes; names at the end
     _arrivals: list[tuple[int, int, int]] = field(default_factory=list)
     _exits: list[tuple[int, int, str, int, int]] = field(default_factory=list)
     _encounters: list[dict[str, Any]] = field(default_factory=list)
     _checks: list[dict[str, np.ndarray]] = field(default_factory=list)
-    _false_alarms: list[pd.DataFrame] = field(default_factory=list)
+    _false_alarms: list[dict[str, np.ndarray]] = field(default_factory=list)
     _methods: list[tuple[int, str, dict[str, np.ndarray]]] = field(default_factory=list)
     _daily: list[dict[str, Any]] = field(default_factory=list)
     _time_in_port: list[np.ndarray] = field(default_factory=list)
@@ -116,29 +116,28 @@ class RecordBook:
         in_system: int,
     ) -> None:
         """Record one day: attempts (truth), encounters and checks (observed), daily KPIs."""
-        lay, world = self.layout, self.layout.world
+        world = self.layout.world
         res = result.attempts
         outcome = np.array([OUTCOME_NAMES[int(c)] for c in res.outcome], dtype=object)
         station_names = np.array(world.station_names + [""], dtype=object)
         method_names = np.array(world.method_names + [""], dtype=object)
         ids = np.arange(self._next_attempt, self._next_attempt + outcome.shape[0])
         self._next_attempt += outcome.shape[0]
+        # Codes only: the tables are built once at the end, which costs far less than a frame a day.
         self._attempts.append(
-            pd.DataFrame(
-                {
-                    "attempt_id": ids,
-                    "day": result.day,
-                    "agent_id": agent_ids,
-                    "persons": persons,
-                    "point": np.array(world.point_names, dtype=object)[attempts_point],
-                    "band": np.array(world.band_names, dtype=object)[attempts_band],
-                    "vehicle_class": np.array(world.class_names, dtype=object)[attempts_class],
-                    "outcome": outcome,
-                    "station": station_names[res.station],
-                    "method": method_names[res.method],
-                    "minute": res.minute - result.day * MINUTES_PER_DAY,
-                }
-            )
+            {
+                "attempt_id": ids,
+                "day": np.full(ids.shape[0], result.day),
+                "agent_id": agent_ids,
+                "persons": persons,
+                "point": attempts_point,
+                "band": attempts_band,
+                "vehicle_class": attempts_class,
+                "outcome": res.outcome,
+                "station": res.station,
+                "method": res.method,
+                "minute": res.minute - result.day * MINUTES_PER_DAY,
+            }
         )
         for a in np.flatnonzero((outcome == "detected") | (outcome == "interdicted")):
             day, minute = _calendar(np.array([res.minute[a]]))
@@ -159,18 +158,7 @@ class RecordBook:
                 )
         self._checks.append(result.check_rows)
         fa = result.false_alarms
-        fa_day, fa_minute = _calendar(fa["minute"])
-        self._false_alarms.append(
-            pd.DataFrame(
-                {
-                    "day": fa_day,
-                    "minute": fa_minute,
-                    "station": np.array(world.station_names, dtype=object)[fa["station"]],
-                    "method": np.array(world.method_names, dtype=object)[fa["method"]],
-                    "vehicle_class": np.array(world.class_names, dtype=object)[fa["vehicle_class"]],
-                }
-            )
-        )
+        self._false_alarms.append(fa)
         self._methods.append((result.day, result.weather, result.method_rows))
         self._time_in_port.append(result.time_in_port.astype(np.float32))
         self._missed.append(result.missed)
@@ -205,9 +193,18 @@ class RecordBook:
     # -- tables ----------------------------------------------------------------------
     def truth_tables(self) -> dict[str, pd.DataFrame]:
         """The truth record set."""
-        attempts = pd.concat(self._attempts, ignore_index=True) if self._attempts else pd.DataFrame()
+        world = self.layout.world
+        codes = {key: np.concatenate([day[key] for day in self._attempts]) for key in TRUTH_COLUMNS["attempts"]} if self._attempts else {}
+        if codes:
+            outcome_names = np.array([OUTCOME_NAMES.get(k, "") for k in range(max(OUTCOME_NAMES) + 1)], dtype=object)
+            codes["point"] = np.array(world.point_names, dtype=object)[codes["point"]]
+            codes["band"] = np.array(world.band_names, dtype=object)[codes["band"]]
+            codes["vehicle_class"] = np.array(world.class_names, dtype=object)[codes["vehicle_class"]]
+            codes["outcome"] = outcome_names[codes["outcome"]]
+            codes["station"] = np.array(world.station_names + [""], dtype=object)[codes["station"]]
+            codes["method"] = np.array(world.method_names + [""], dtype=object)[codes["method"]]
         frames = {
-            "attempts": attempts if len(attempts) else pd.DataFrame(columns=list(TRUTH_COLUMNS["attempts"])),
+            "attempts": pd.DataFrame(codes) if codes else pd.DataFrame(columns=list(TRUTH_COLUMNS["attempts"])),
             "arrivals": pd.DataFrame(self._arrivals, columns=list(TRUTH_COLUMNS["arrivals"])),
             "exits": pd.DataFrame(self._exits, columns=list(TRUTH_COLUMNS["exits"])),
         }
@@ -234,11 +231,20 @@ class RecordBook:
         else:
             checks = pd.DataFrame(columns=list(OBSERVED_COLUMNS["checks"]))
         encounters = pd.DataFrame(self._encounters, columns=list(OBSERVED_COLUMNS["encounters"]))
-        false_alarms = (
-            pd.concat(self._false_alarms, ignore_index=True)
-            if self._false_alarms
-            else pd.DataFrame(columns=list(OBSERVED_COLUMNS["false_alarms"]))
-        )
+        if self._false_alarms:
+            raw_fa = {k: np.concatenate([day[k] for day in self._false_alarms]) for k in self._false_alarms[0]}
+            fa_day, fa_minute = _calendar(raw_fa["minute"])
+            false_alarms = pd.DataFrame(
+                {
+                    "day": fa_day,
+                    "minute": fa_minute,
+                    "station": np.array(world.station_names, dtype=object)[raw_fa["station"]],
+                    "method": np.array(world.method_names, dtype=object)[raw_fa["method"]],
+                    "vehicle_class": np.array(world.class_names, dtype=object)[raw_fa["vehicle_class"]],
+                }
+            )
+        else:
+            false_alarms = pd.DataFrame(columns=list(OBSERVED_COLUMNS["false_alarms"]))
         false_alarms = false_alarms.sort_values(["day", "minute"], kind="stable", ignore_index=True)
         return {
             "stations": conform("stations", stations),

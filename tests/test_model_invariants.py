@@ -286,8 +286,8 @@ def queue_log() -> list[dict[str, np.ndarray]]:
 
     original = day_module.serve_fifo
 
-    def recording(arrival, *args):
-        start, end, checked, busy = original(arrival, *args)
+    def recording(arrival, *args, **state):
+        start, end, checked, busy = original(arrival, *args, **state)
         calls.append({"arrival": arrival.copy(), "start": start.copy(), "end": end.copy(), "checked": checked.copy()})
         return start, end, checked, busy
 

@@ -159,7 +159,7 @@ class AdaptiveBehaviour:
         k = self.options.size
         day = agent.arrival_day
         agent.memory = Beliefs(np.zeros(k), np.zeros(k), day)
-        present = [a for a in self.network.nodes if a in self._agents]
+        present = list(self._agents)  # groups leave the network when they leave the area
         self.network.add_node(agent.unique_id)
         self._agents[agent.unique_id] = agent
         degree = min(self.params.network_degree, len(present))

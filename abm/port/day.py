@@ -152,6 +152,7 @@ class DayEngine:
         self.condition_rngs = [np.random.default_rng(s) for s in detection_seq.spawn(n_s)]
         self.free = [np.full(int(lanes), -np.inf) for lanes in layout.station_lanes]
         self.worked = [np.zeros(int(lanes)) for lanes in layout.station_lanes]  # minutes since each lane's rest
+        self.floor = [np.full(1, -np.inf) for _ in layout.station_lanes]  # each station's last check start (FIFO)
         self.sailing_left: dict[int, np.ndarray] = {}
 
     def change_layout(self, layout: Layout) -> None:
@@ -283,9 +284,9 @@ class DayEngine:
             worked = np.zeros(rows.shape[0])  # minutes the lane had worked when each check started
             if np.isfinite(lay.method_work_minutes[main]):
                 rest = (self.worked[s], lay.method_work_minutes[main], lay.method_rest_minutes[main], worked)
-                start, end, checked, busy = serve_fifo(*queue_args, *rest)
+                start, end, checked, busy = serve_fifo(*queue_args, *rest, floor=self.floor[s])
             else:
-                start, end, checked, busy = serve_fifo(*queue_args)
+                start, end, checked, busy = serve_fifo(*queue_args, floor=self.floor[s])
             if np.isinf(start).any():
                 name = lay.world.stations[s].name
                 raise StationUnservable(f"station '{name}' selected a vehicle on day {day} that no staffed lane can check")
@@ -387,19 +388,20 @@ class DayEngine:
         todo = np.flatnonzero((result.outcome == PENDING) & np.isin(attempts.point, points))
         if todo.shape[0] == 0:
             return
-        capacity = lay.class_capacity[cls[rows]]
+        vclass = cls[rows]
+        room = lay.class_capacity[vclass] - aboard[rows]  # kept in step with ``aboard`` below
         for p in np.unique(attempts.point[todo]):
             at_point = next_arrival - lay.point_lead[p]
             band = self._band_at(at_point)
             stops = traffic.stops[p, rows]
             for a in todo[attempts.point[todo] == p]:
-                room = capacity - aboard[rows]
-                fits = stops & (cls[rows] == attempts.vehicle_class[a]) & (band == attempts.band[a]) & (room >= attempts.size[a])
+                fits = stops & (vclass == attempts.vehicle_class[a]) & (band == attempts.band[a]) & (room >= attempts.size[a])
                 choices = np.flatnonzero(fits)
                 if choices.shape[0] == 0:
                     result.outcome[a] = NO_VEHICLE
                     continue
                 pick = choices[self.boarding_rng.integers(choices.shape[0])]
+                room[pick] -= attempts.size[a]
                 aboard[rows[pick]] += attempts.size[a]
                 depth[rows[pick]] = max(depth[rows[pick]], attempts.depth[a])
                 result.vehicle[a] = rows[pick]

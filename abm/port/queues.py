@@ -69,6 +69,8 @@ def serve_fifo(
     work_limit: float = np.inf,
     rest_minutes: float = np.inf,
     worked_at_start: np.ndarray | None = None,
+    *,
+    floor: np.ndarray | None = None,
 ) -> tuple[np.ndarray, np.ndarray, np.ndarray, np.ndarray]:
     """Run one station's queue for a day's arrivals (sorted ascending).
 
@@ -83,6 +85,11 @@ def serve_fifo(
     docstring; ``worked_at_start`` (one entry per vehicle) receives, for each
     checked vehicle, its lane's minutes worked when the check starts.
 
+    ``floor`` (one entry, absolute minutes) is the start of the station's last
+    check, updated in place: passed from day to day it keeps first-in-first-out
+    across midnight, so nobody of a new day starts before a late vehicle of the
+    day before that is still queueing.
+
     Returns start, end (both equal to arrival for unchecked vehicles), a checked
     flag and a busy flag. An unservable vehicle (no lane ever fits) gets start inf.
     """
@@ -91,9 +98,11 @@ def serve_fifo(
         worked = np.zeros(free.shape[0])
     if worked_at_start is None:
         worked_at_start = np.zeros(arrival.shape[0])
+    if floor is None:
+        floor = np.full(1, -np.inf)
     return _serve(
         arrival, service, busy_service, u_select, p_normal, p_busy, queue_threshold, staffed, origin, free,
-        worked, float(work_limit), float(rest_minutes), worked_at_start,
+        worked, float(work_limit), float(rest_minutes), worked_at_start, floor,
     )  # fmt: skip
 
 
@@ -113,6 +122,7 @@ def _serve(
     work_limit: float,
     rest_minutes: float,
     worked_at_start: np.ndarray,
+    floor: np.ndarray,
 ) -> tuple[np.ndarray, np.ndarray, np.ndarray, np.ndarray]:
     """The compiled recursion behind :func:`serve_fifo` (same arguments, all given)."""
     n = arrival.shape[0]
@@ -123,7 +133,7 @@ def _serve(
     starts = np.empty(n)  # starts of checked vehicles, non-decreasing by FIFO
     n_checked = 0
     head = 0  # first checked vehicle whose check has not begun at the current arrival
-    last_start = -np.inf
+    last_start = floor[0]
     lanes = free.shape[0]
     for i in range(n):
         a = arrival[i]
@@ -159,6 +169,7 @@ def _serve(
             last_start = best_t
         starts[n_checked] = best_t
         n_checked += 1
+    floor[0] = last_start
     return start, end, checked, busy
 
 

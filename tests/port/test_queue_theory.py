@@ -453,8 +453,8 @@ def test_engine_keeps_to_a_two_team_roster() -> None:
     calls = []
     real = day_module.serve_fifo
 
-    def keep(arrival, service, busy_service, u, p_normal, p_busy, threshold, staffed, origin, free):
-        out = real(arrival, service, busy_service, u, p_normal, p_busy, threshold, staffed, origin, free)
+    def keep(arrival, service, busy_service, u, p_normal, p_busy, threshold, staffed, origin, free, *rest, **state):
+        out = real(arrival, service, busy_service, u, p_normal, p_busy, threshold, staffed, origin, free, *rest, **state)
         calls.append((arrival.copy(), service.copy(), staffed.copy(), origin, out))
         return out
 
@@ -475,20 +475,16 @@ def test_engine_keeps_to_a_two_team_roster() -> None:
     assert waited.max() > 6 * 60  # the night queue is real (vehicles arriving after 21:00 wait for 06:00)
 
 
-@pytest.mark.xfail(
-    strict=True,
-    reason="engine bug: serve_fifo's FIFO floor (last_start) restarts at every call, so with a roster a "
-    "vehicle of the next day can start before a late vehicle of the previous day that is still queued",
-)
 def test_fifo_holds_across_midnight_with_a_roster() -> None:
     day_roster = np.array([2] + [1] * 23)  # 2 lanes, lane 1 on duty 00:00-01:00 only
     free = np.full(2, -np.inf)
+    floor = np.full(1, -np.inf)  # the station's FIFO state, carried from day to day like ``free``
     ones = np.ones(2)
     day0 = serve_fifo(np.array([1380.0, 1381.0]), np.array([100.0, 90.0]), np.array([100.0, 90.0]),
-                      np.zeros(2), ones, ones, 0, as_staffed(day_roster), 0.0, free)  # fmt: skip
+                      np.zeros(2), ones, ones, 0, as_staffed(day_roster), 0.0, free, floor=floor)  # fmt: skip
     # the 90-minute check cannot fit lane 1's hour, so it waits for lane 0 (free at 1480)
     assert day0[0][1] == 1480.0
     day1 = serve_fifo(np.array([1441.0]), np.array([30.0]), np.array([30.0]),
-                      np.zeros(1), ones[:1], ones[:1], 0, as_staffed(day_roster), 1440.0, free)  # fmt: skip
+                      np.zeros(1), ones[:1], ones[:1], 0, as_staffed(day_roster), 1440.0, free, floor=floor)  # fmt: skip
     # a vehicle that arrived at 1441 must not start before one that arrived at 1381 and is still queued
     assert day1[0][0] >= day0[0][1]

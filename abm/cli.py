@@ -40,7 +40,6 @@ def cmd_check(args: argparse.Namespace) -> int:
 
 
 REPO_WORLDS = Path(__file__).resolve().parent.parent / "worlds"
-DEMO_WORLD = REPO_WORLDS / "kestrel_quay" / "world.yaml"
 
 
 def _progress_bar(total: int, label: str):
@@ -54,11 +53,11 @@ def print_summary(summary: dict, title: str) -> None:
     """A short readable table of a run's headline figures, each labelled with its record set."""
     print(title)
     sources = summary.get("sources", {})
-    for key, value in summary.items():
-        if key == "sources":
-            continue
+    rows = {key: value for key, value in summary.items() if key != "sources"}
+    width = max(map(len, rows), default=0) + 2
+    for key, value in rows.items():
         shown = f"{value:,.3f}" if isinstance(value, float) else (f"{value:,}" if isinstance(value, int) else str(value))
-        print(f"  {key:<26}{shown:>14}  {sources.get(key, '')}")
+        print(f"  {key:<{width}}{shown:>14}  {sources.get(key, '')}")
     print("  (truth = simulated ground truth; observed = what an agency would hold. Model estimates, not counts.)")
 
 
@@ -86,29 +85,90 @@ def cmd_run(args: argparse.Namespace) -> int:
     return _run_world(world, args.days, args.seed, out, ["undertow", *args.argv])
 
 
+DEMO_EXPERIMENT = REPO_WORLDS / "kestrel_quay" / "demo_experiment.yaml"
+
+
 def cmd_demo(args: argparse.Namespace) -> int:
-    """Run the main job on the bundled demo world."""
-    if not DEMO_WORLD.exists():
-        raise InputError(f"{DEMO_WORLD}: the demo world is not here; run from a checkout of the project")
+    """Run the bundled demo experiment on local processes, then brief it."""
+    from .analysis.estimator_check import cached_estimates
+    from .experiment.batch import run_batch
+    from .experiment.design import load_plan
+    from .report.briefing import brief
+
+    if not DEMO_EXPERIMENT.exists():
+        raise InputError(f"{DEMO_EXPERIMENT}: the demo experiment is not here; run from a checkout of the project")
     out = Path(args.out)
-    _clear_previous_demo(out)
-    return _run_world(DEMO_WORLD, args.days, args.seed, out, ["undertow", "demo"])
+    plan = load_plan(DEMO_EXPERIMENT)
+    resume = args.resume and _is_earlier_demo_of(out, plan.digest())
+    if not resume:
+        _clear_previous_demo(out)
+    spec = plan.spec
+    print(
+        f"undertow demo: {plan.total_runs} runs ({len(plan.points)} design points x {spec.replications} replications, "
+        f"{spec.warmup_days}+{spec.days} days each) on local processes -> {out}",
+        flush=True,
+    )
+    command = ["undertow", *args.argv]
+    try:
+        # cached_estimates adds the store's est_ columns, as undertow batch does
+        result = run_batch(DEMO_EXPERIMENT, out, "processes", args.workers, None, resume, command,
+                           extensions=(cached_estimates,))
+    except KeyboardInterrupt:
+        print(f"undertow demo: interrupted; complete runs are kept in {out}; add --resume to finish", file=sys.stderr)
+        return EXIT_INTERRUPTED
+    print(f"{spec.name}: {result.total - result.failed} of {result.total} runs complete ({result.ran} run now)")
+    if result.failed:
+        print(f"undertow demo: {result.failed} runs failed; the briefing covers the rest (errors in {out})",
+              file=sys.stderr)
+    _, paths = brief(out, argv=["undertow", "brief", str(out)])
+    print(f"Briefing: {paths['html']}")
+    print(f"          {paths['md']} (figures in {out / 'figures'})")
+    return EXIT_FAULT if result.failed else EXIT_OK
+
+
+def _recorded_command(out: Path) -> tuple[list, dict]:
+    """The command an output folder was made with and its record: a batch's experiment.json or a run's manifest."""
+    import json
+
+    for name in ("experiment.json", "manifest.json"):
+        try:
+            record = json.loads((out / name).read_text(encoding="utf-8"))
+        except (OSError, ValueError):
+            continue
+        if isinstance(record, dict):
+            return list(record.get("command") or []), record
+    return [], {}
+
+
+def _is_earlier_demo_of(out: Path, digest: str) -> bool:
+    """True when ``out`` holds a demo batch of this very experiment, so its complete runs can be kept."""
+    command, record = _recorded_command(out)
+    return command[:2] == ["undertow", "demo"] and record.get("experiment_sha256") == digest
 
 
 def _clear_previous_demo(out: Path) -> None:
-    """A fresh demo replaces the last demo's folder, and nothing else."""
+    """A fresh demo replaces the last demo's folder (a demo batch, or an older single-run demo), and nothing else."""
     if not out.exists():
         return
-    import json
     import shutil
 
-    try:
-        command = json.loads((out / "manifest.json").read_text(encoding="utf-8")).get("command", [])
-    except (OSError, ValueError):
-        command = []
+    command, _ = _recorded_command(out) if out.is_dir() else ([], {})
     if command[:2] != ["undertow", "demo"]:
         raise InputError(f"{out}: exists and is not an earlier demo; choose another --out (nothing was removed)")
     shutil.rmtree(out)
+
+
+def cmd_brief(args: argparse.Namespace) -> int:
+    """Write a batch folder's briefing: OUT/briefing.html (self-contained) and OUT/briefing.md with figures."""
+    from .analysis.policy_table import DelayLimits
+    from .report.briefing import brief, parse_formats
+
+    formats = parse_formats(args.format)
+    limits = DelayLimits(args.max_delay_increase / 100, args.max_missed_increase)
+    _, paths = brief(args.out, args.baseline, formats, limits, ["undertow", *args.argv])
+    for path in paths.values():
+        print(path)
+    return EXIT_OK
 
 
 def cmd_compare(args: argparse.Namespace) -> int:
@@ -175,6 +235,16 @@ def _non_negative_int(text: str) -> int:
     return value
 
 
+def _non_negative_float(text: str) -> float:
+    try:
+        value = float(text)
+    except ValueError:
+        raise argparse.ArgumentTypeError(f"expected a number, got '{text}'") from None
+    if not 0 <= value < float("inf"):
+        raise argparse.ArgumentTypeError(f"expected a number of 0 or more, got {text}")
+    return value
+
+
 def build_parser() -> argparse.ArgumentParser:
     """The argument parser with every sub-command."""
     parser = _Parser(prog="undertow", description=__doc__.splitlines()[0])
@@ -202,11 +272,26 @@ def build_parser() -> argparse.ArgumentParser:
     run.add_argument("--out", help="run directory to create (default outputs/WORLD-seedS)")
     run.set_defaults(func=cmd_run)
 
-    demo = sub.add_parser("demo", help="run the main job on the bundled demo world")
-    demo.add_argument("--days", type=_positive_int, default=365)
-    demo.add_argument("--seed", type=_seed, default=0)
-    demo.add_argument("--out", default="outputs/demo")
+    demo = sub.add_parser("demo", help="run the demo experiment on local processes and brief it")
+    demo.add_argument("--out", default="outputs/demo", help="demo folder (default outputs/demo; only an earlier "
+                      "demo's folder is ever replaced)")
+    demo.add_argument("--resume", action="store_true", help="keep an earlier demo's complete runs of the same experiment")
+    demo.add_argument("--workers", type=_positive_int, help="worker processes (default: one per CPU)")
     demo.set_defaults(func=cmd_demo)
+
+    brief = sub.add_parser("brief", help="write a briefing (HTML and Markdown) from a batch folder")
+    brief.add_argument("out", metavar="OUT", help="batch folder written by undertow batch or undertow demo")
+    brief.add_argument("--baseline", metavar="LEVEL", help="policy level to compare with (default: the experiment's)")
+    brief.add_argument("--format", default="html,md", help="html, md or html,md (default)")
+    brief.add_argument(
+        "--max-delay-increase", type=_non_negative_float, default=10.0, metavar="PERCENT",
+        help="delay limit: p95 time in port at most this much above the baseline's (default 10)",
+    )
+    brief.add_argument(
+        "--max-missed-increase", type=_non_negative_float, default=1.0, metavar="POINTS",
+        help="delay limit: missed departures at most this many percentage points above the baseline's (default 1)",
+    )
+    brief.set_defaults(func=cmd_brief)
 
     compare = sub.add_parser("compare", help="compare a baseline run and a policy run: displacement and net effect")
     compare.add_argument("run_a", metavar="RUN_A", help="baseline run directory")

@@ -10,7 +10,8 @@ store. Reported, as ratios measured in this one sitting:
 - processes vs serial: speed-up (target >= 1.8x with 2 workers);
 - Dask vs processes: wall-time ratio (target within 15%);
 - the store's overhead per run: batch time per run over the direct loop's,
-  both serial (target under 5% of run time).
+  both serial (target under 5% of run time), in wall time and in CPU time
+  (the second is little moved by other work on the machine).
 
 Wall times include starting the pool or cluster, as a user waits for them.
 """
@@ -18,6 +19,7 @@ Wall times include starting the pool or cluster, as a user waits for them.
 from __future__ import annotations
 
 import argparse
+import os
 import shutil
 import tempfile
 import time
@@ -54,18 +56,19 @@ def write_experiment(folder: Path, runs: int, days: int) -> Path:
     return path
 
 
-def timed_batch(path: Path, out: Path, executor: str, workers: int | None) -> float:
+def timed_batch(path: Path, out: Path, executor: str, workers: int | None) -> tuple[float, float]:
+    """Wall time and this process's CPU time of one batch."""
     from abm.experiment.batch import run_batch
 
-    start = time.perf_counter()
+    start, cpu = time.perf_counter(), time.process_time()
     result = run_batch(path, out, executor=executor, workers=workers, show_progress=False)
-    elapsed = time.perf_counter() - start
+    elapsed = time.perf_counter() - start, time.process_time() - cpu
     assert result.failed == 0, result.failures
     return elapsed
 
 
-def timed_direct(path: Path, out: Path) -> float:
-    """The same runs without the store: build each point's world, run, write its directory."""
+def timed_direct(path: Path, out: Path) -> tuple[float, float]:
+    """The same runs without the store (each point's world built once), in wall and CPU time."""
     from abm.experiment.design import load_plan
     from abm.experiment.single import run_to_directory
     from abm.world import parse_world
@@ -73,10 +76,10 @@ def timed_direct(path: Path, out: Path) -> float:
     plan = load_plan(path)
     worlds = {p.index: parse_world(plan.world_for(p.index)) for p in plan.points}
     out.mkdir(parents=True)
-    start = time.perf_counter()
+    start, cpu = time.perf_counter(), time.process_time()
     for spec in plan.runs():
         run_to_directory(worlds[spec.point], plan.world_sha256, plan.spec.days, spec.seed, out / spec.run_id)
-    return time.perf_counter() - start
+    return time.perf_counter() - start, time.process_time() - cpu
 
 
 def main() -> None:
@@ -93,15 +96,17 @@ def main() -> None:
         (folder / "warm").mkdir()
         # compiled code and file caches warm before anything is timed
         timed_direct(write_experiment(folder / "warm", 2, args.days), folder / "warm-out")
-        direct = timed_direct(path, folder / "direct")
-        serial = timed_batch(path, folder / "serial", "serial", None)
-        processes = timed_batch(path, folder / "processes", "processes", args.workers)
-        dask = timed_batch(path, folder / "dask", "dask", args.workers)
+        direct, direct_cpu = timed_direct(path, folder / "direct")
+        serial, serial_cpu = timed_batch(path, folder / "serial", "serial", None)
+        processes, _ = timed_batch(path, folder / "processes", "processes", args.workers)
+        dask, _ = timed_batch(path, folder / "dask", "dask", args.workers)
         same = all(
             (folder / name / "summary.parquet").read_bytes() == (folder / "serial" / "summary.parquet").read_bytes()
             for name in ("processes", "dask")
         )
         overhead = (serial - direct) / runs
+        # Serial work all happens in this process, so its CPU time is a measure other load barely moves.
+        overhead_cpu = (serial_cpu - direct_cpu) / runs
         print(f"batch benchmark: {runs} runs of {args.days} days of the demo world, {args.workers} workers")
         print(f"  direct loop (no store)   {direct:8.1f} s   {1000 * direct / runs:7.1f} ms/run")
         print(f"  serial batch             {serial:8.1f} s   {1000 * serial / runs:7.1f} ms/run")
@@ -111,7 +116,11 @@ def main() -> None:
         print(f"  dask vs processes        {dask / processes:8.2f}x wall time  (target <= 1.15x)")
         share = 100 * overhead / (direct / runs)
         print(f"  store overhead per run   {1000 * overhead:8.1f} ms = {share:.1f}% of run time   (target < 5%)")
+        share_cpu = 100 * overhead_cpu / (direct_cpu / runs)
+        print(f"    same in CPU time       {1000 * overhead_cpu:8.1f} ms = {share_cpu:.1f}% of run CPU time")
         print(f"  summary tables identical across executors: {same}")
+        # Other work on the machine skews every ratio: say how busy it was.
+        print(f"  load average at the end (1, 5, 15 min): {', '.join(f'{x:.2f}' for x in os.getloadavg())}")
     finally:
         shutil.rmtree(folder, ignore_errors=True)
 

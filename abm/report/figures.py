@@ -1,0 +1,297 @@
+"""The briefing's figures, drawn with matplotlib's object API on the Agg canvas (no pyplot, no GUI).
+
+Readable in greyscale and by colour-blind readers: series take colours from
+viridis (whose lightness rises monotonically, so they stay apart in grey) and
+are told apart by markers and line styles as well; the heat map uses cividis
+(designed to read the same under colour-vision deficiency) with every cell's
+value printed in it. Every axis names its unit; every figure prints its record
+set (truth or observed) and replication count in its footer, as its caption
+does in the briefing.
+"""
+
+from __future__ import annotations
+
+import io
+import math
+from collections.abc import Mapping, Sequence
+from dataclasses import dataclass
+
+import matplotlib
+import numpy as np
+import pandas as pd
+from matplotlib.backends.backend_agg import FigureCanvasAgg
+from matplotlib.figure import Figure
+from matplotlib.ticker import NullFormatter
+
+from ..experiment.compare import mean_interval
+from .document import FigureBlock, number
+
+DPI = 110
+FIGURE_KEYS = frozenset({"frontier", "displacement", "daily", "estimators"})  # the FigureBlock keys drawn here
+SERIES_COLOURS = [matplotlib.colormaps["viridis"](x) for x in (0.02, 0.45, 0.72, 0.88)]
+MARKERS = ["o", "s", "^", "D"]
+LINES = ["-", "--", ":", "-."]
+STYLE = {
+    "font.size": 9,
+    "axes.titlesize": 9.5,
+    "axes.labelsize": 9,
+    "legend.fontsize": 8,
+    "axes.spines.top": False,
+    "axes.spines.right": False,
+    "axes.grid": True,
+    "grid.color": "#dddddd",
+    "grid.linewidth": 0.6,
+}
+
+
+def _t(text: object) -> str:
+    """Text for matplotlib: a '$' would start mathtext, so it is escaped."""
+    return str(text).replace("$", r"\$")
+
+
+FOOTER_INCHES = 0.3  # room kept at the bottom for the footer line
+
+
+def _figure(width: float, height: float) -> Figure:
+    """A figure with constrained layout that keeps the bottom strip free for the footer."""
+    fig = Figure(figsize=(width, height), layout="constrained")
+    fig.get_layout_engine().set(rect=(0, FOOTER_INCHES / height, 1, 1 - FOOTER_INCHES / height))
+    return fig
+
+
+def _png(fig: Figure, footer: str) -> bytes:
+    fig.text(0.01, 0.01, _t(footer), fontsize=7.5, color="#444444", ha="left", va="bottom")
+    FigureCanvasAgg(fig)
+    buffer = io.BytesIO()
+    fig.savefig(buffer, format="png", dpi=DPI)
+    return buffer.getvalue()
+
+
+@dataclass(frozen=True)
+class SeriesPoint:
+    """One policy in one scenario on the frontier chart."""
+
+    label: str
+    time_in_port: tuple[float, float, float]  # mean, low, high
+    detections: tuple[float, float, float]
+    on_frontier: bool
+    within: bool
+
+
+def _err(triple: tuple[float, float, float]) -> list[list[float]]:
+    mean, low, high = triple
+    if not (math.isfinite(low) and math.isfinite(high)):
+        return [[0.0], [0.0]]
+    return [[mean - low], [high - mean]]
+
+
+def frontier_figure(
+    scenarios: Mapping[str, Sequence[SeriesPoint]],
+    limits: Mapping[str, float],
+    days: int,
+    replications: int,
+) -> FigureBlock:
+    """Detections against p95 time in port, one marker and line style per scenario, frontier joined.
+
+    ``limits`` maps a scenario to the p95 time in port at its delay limit.
+    """
+    with matplotlib.rc_context(STYLE):
+        fig = _figure(8, 4.8)
+        ax = fig.add_subplot()
+        for k, (scenario, points) in enumerate(scenarios.items()):
+            colour, marker, line = SERIES_COLOURS[k % 4], MARKERS[k % 4], LINES[k % 4]
+            for p in points:
+                ax.errorbar(
+                    p.time_in_port[0], p.detections[0], xerr=_err(p.time_in_port), yerr=_err(p.detections),
+                    fmt=marker, color=colour, markersize=7 if p.on_frontier else 5,
+                    markerfacecolor=colour if p.within else "white", capsize=2, linewidth=0.9,
+                )
+                ax.annotate(_t(p.label), (p.time_in_port[0], p.detections[0]), xytext=(5, 4),
+                            textcoords="offset points", fontsize=7.5, color="#222222")
+            on = sorted((p for p in points if p.on_frontier), key=lambda p: p.time_in_port[0])
+            ax.plot([p.time_in_port[0] for p in on], [p.detections[0] for p in on], linestyle=line, color=colour,
+                    marker=marker, markersize=0, linewidth=1.4, label=_t(f"{scenario}: efficient frontier"))
+            if scenario in limits and math.isfinite(limits[scenario]):
+                ax.axvline(limits[scenario], color=colour, linestyle=line, linewidth=0.9, alpha=0.8,
+                           label=_t(f"{scenario}: delay limit"))
+        ax.set_xlabel("Time in port, 95th percentile (minutes)")
+        ax.set_ylabel(f"Detections over {days} days (persons)")
+        ax.set_title("Detections against delay; each marker a policy (hollow: outside the delay limits)")
+        ax.legend(loc="best", frameon=True, framealpha=0.9)
+        png = _png(fig, f"Source: observed records. Means over {replications} replications per policy, "
+                        "bars 95% intervals. Model estimates, not counts.")
+    return FigureBlock(
+        "frontier", "Detections against time in port, with the efficient frontier",
+        f"Source: observed records (detections; 95th-percentile time in port). Each marker is one policy's mean "
+        f"over {replications} replications with 95% intervals; the line joins the policies no other policy beats "
+        "on both (the efficient frontier); the vertical line is the delay limit, and hollow markers lie outside "
+        "the limits.",
+        png, "Scatter of detections against 95th-percentile time in port per policy, frontier joined",
+    )
+
+
+def heatmap_figure(
+    panels: Sequence[tuple[str, pd.DataFrame, int]],
+    replications: int,
+    cols: int,
+) -> FigureBlock:
+    """Change in attempt share (percentage points), boarding point x time band, one panel per comparison.
+
+    ``panels``: (title, points x bands table of changes in percentage points, pairs), row by row of
+    ``cols`` panels (one row per scenario, one column per policy).
+    """
+    cols = max(1, min(cols, len(panels)))
+    rows = math.ceil(len(panels) / cols)
+    span = max((float(np.nanmax(np.abs(t.to_numpy()))) for _, t, _ in panels), default=1.0) or 1.0
+    cmap = matplotlib.colormaps["cividis"]
+    with matplotlib.rc_context({**STYLE, "axes.grid": False}):
+        fig = _figure(min(8.5, 3.0 * cols + 1.8), 2.6 * rows + 0.9)
+        axes = fig.subplots(rows, cols, squeeze=False)
+        image = None
+        for ax, (title, table, _) in zip(axes.flat, panels):
+            values = table.to_numpy(dtype=float)
+            image = ax.imshow(values, cmap=cmap, vmin=-span, vmax=span, aspect="auto")
+            ax.set_xticks(range(table.shape[1]), [_t(c) for c in table.columns], rotation=30, ha="right")
+            ax.set_yticks(range(table.shape[0]), [_t(i) for i in table.index])
+            ax.set_title(_t(title))
+            for (i, j), value in np.ndenumerate(values):
+                shade = cmap((value + span) / (2 * span))
+                light = 0.299 * shade[0] + 0.587 * shade[1] + 0.114 * shade[2] > 0.55
+                ax.text(j, i, number(value, "rate", signed=True), ha="center", va="center", fontsize=8,
+                        color="black" if light else "white")
+            ax.set_xlabel("Time band")
+            ax.set_ylabel("Boarding point")
+        for ax in list(axes.flat)[len(panels):]:
+            ax.set_visible(False)
+        if image is not None:
+            bar = fig.colorbar(image, ax=axes, fraction=0.05, pad=0.02)
+            bar.set_label("Change in share of attempts (percentage points)")
+        png = _png(fig, f"Source: truth (attempts). Mean over {replications} paired replications. "
+                        "Model estimates, not counts.")
+    return FigureBlock(
+        "displacement", "Where attempts moved: change in attempt share against the baseline",
+        "Source: truth records (every attempt's boarding point and time band, summarised days only). Each cell is "
+        "the policy's share of attempting persons minus the baseline's, in percentage points, averaged over "
+        f"{replications} paired replications (same seeds); cells of a panel sum to zero. Positive cells "
+        "(lighter) gained attempts.",
+        png, "Heat maps of the change in attempt share by boarding point and time band against the baseline",
+    )
+
+
+@dataclass(frozen=True)
+class DailyLine:
+    """One policy's daily values in one scenario: rows day x replication of one column."""
+
+    label: str
+    column: str  # detections (observed) or truth_crossings (truth)
+    frame: pd.DataFrame  # columns day, replication, value
+    style: int  # index into the series styles
+    dashed: bool
+
+
+def _band(frame: pd.DataFrame, smooth: int, window: tuple[int, int]) -> pd.DataFrame:
+    """Per-day mean and 95% t-interval over replications in ``window``, after a trailing ``smooth``-day mean
+    per run (taken over the whole run, so the window's first days average as many days as the rest)."""
+    wide = frame.pivot(index="day", columns="replication", values="value").sort_index()
+    if smooth > 1:
+        wide = wide.rolling(smooth, min_periods=1).mean()
+    wide = wide.loc[window[0] : window[1]]
+    rows = [mean_interval(wide.loc[day].to_numpy()) for day in wide.index]
+    return pd.DataFrame(rows, index=wide.index, columns=["mean", "low", "high"])
+
+
+def daily_figure(
+    panels: Sequence[tuple[str, Sequence[DailyLine]]],
+    day: int,
+    intervention: str,
+    window: tuple[int, int],
+    smooth: int,
+    replications: int,
+) -> FigureBlock:
+    """Daily detections (observed) and crossings (truth) around an intervention day, with replication bands."""
+    cols = min(len(panels), 2)
+    rows = math.ceil(len(panels) / cols)
+    with matplotlib.rc_context(STYLE):
+        fig = _figure(8.5, 3.3 * rows + 1.1)
+        axes = fig.subplots(rows, cols, squeeze=False, sharey=True)
+        for ax, (title, lines) in zip(axes.flat, panels):
+            for line in lines:
+                band = _band(line.frame, smooth, window)
+                colour = SERIES_COLOURS[line.style % 4]
+                ax.plot(band.index, band["mean"], color=colour, linestyle="--" if line.dashed else "-",
+                        marker=MARKERS[line.style % 4], markevery=max(1, len(band) // 8), markersize=4,
+                        linewidth=1.3, label=_t(line.label))
+                ax.fill_between(band.index, band["low"], band["high"], color=colour, alpha=0.18, linewidth=0)
+            ax.axvline(day, color="#333333", linewidth=1, linestyle=":")
+            ax.annotate(_t(f"day {day}: {intervention}"), (day, 1.0), xycoords=("data", "axes fraction"),
+                        xytext=(3, -10), textcoords="offset points", fontsize=7.5)
+            ax.set_title(_t(title))
+            ax.set_xlabel("Day of the run")
+            ax.set_ylabel(f"Persons a day ({smooth}-day mean)" if smooth > 1 else "Persons a day")
+            ax.set_ylim(bottom=0)
+        for ax in list(axes.flat)[len(panels):]:
+            ax.set_visible(False)
+        handles, labels = axes.flat[0].get_legend_handles_labels()
+        fig.legend(handles, labels, loc="outside upper center", ncol=2, frameon=False)
+        png = _png(fig, f"Source: detections observed, crossings truth. Mean over {replications} replications, "
+                        "bands 95% intervals. Model estimates, not counts.")
+    smoothing = f"trailing {smooth}-day means per run, then " if smooth > 1 else ""
+    return FigureBlock(
+        "daily", f"Detections and crossings around day {day}",
+        f"Sources: detections are observed records, crossings are truth (the model's simulated ground truth). "
+        f"Lines are {smoothing}the mean over {replications} replications; bands are 95% intervals over "
+        f"replications. The dotted line marks the world's intervention on day {day} ({intervention}), in force "
+        "under every policy.",
+        png, f"Daily detections and crossings around the intervention on day {day}",
+    )
+
+
+def estimator_figure(
+    rows: Sequence[tuple[str, Mapping[str, np.ndarray]]],
+    behaviours: Sequence[str],
+    runs: int,
+) -> FigureBlock:
+    """Estimate / truth per estimator (rows) and behaviour model (markers), log scale, 1 marked."""
+    height = 1.2 + 0.36 * len(rows)
+    with matplotlib.rc_context(STYLE):
+        fig = _figure(8, max(3.2, height))
+        ax = fig.add_subplot()
+        offsets = np.linspace(-0.22, 0.22, len(behaviours)) if len(behaviours) > 1 else np.zeros(1)
+        rng = np.random.default_rng(0)  # fixed jitter, so the figure is the same every time
+        for k, behaviour in enumerate(behaviours):
+            colour, marker = SERIES_COLOURS[k % 4], MARKERS[k % 4]
+            labelled = False
+            for i, (_, ratios) in enumerate(rows):
+                values = np.asarray(ratios.get(behaviour, ()), dtype=float)
+                values = values[np.isfinite(values) & (values > 0)]
+                if not values.size:
+                    continue
+                y = len(rows) - 1 - i + offsets[k]
+                ax.scatter(values, y + rng.uniform(-0.05, 0.05, values.size), s=8, color=colour, alpha=0.35,
+                           marker=marker, linewidths=0)
+                mean, low, high = mean_interval(values)
+                err = [[mean - low], [high - mean]] if math.isfinite(low) and low > 0 else None
+                ax.errorbar(mean, y, xerr=err, fmt=marker, color=colour, markersize=6, capsize=2,
+                            label=None if labelled else _t(f"{behaviour} behaviour"))
+                labelled = True
+        ax.axvline(1.0, color="#333333", linewidth=1, linestyle="--")
+        ax.set_xscale("log")
+        shown = np.concatenate([np.asarray(r.get(b, ()), float) for _, r in rows for b in behaviours] + [[1.0]])
+        shown = shown[np.isfinite(shown) & (shown > 0)]
+        ticks = [2.0**k for k in range(math.floor(np.log2(shown.min())), math.ceil(np.log2(shown.max())) + 1)]
+        ax.set_xticks(ticks, [f"{t:g}" for t in ticks])
+        ax.xaxis.set_minor_formatter(NullFormatter())
+        ax.set_yticks(range(len(rows)), [_t(label) for label, _ in reversed(rows)])
+        ax.set_xlabel("Estimate / truth (ratio, log scale; 1 = exact)")
+        ax.set_title("Estimate over truth: means with 95% intervals, dots single runs")
+        ax.legend(loc="best", frameon=True, framealpha=0.9)
+        png = _png(fig, f"Source: estimates from observed records over truth targets. {runs} runs in all. "
+                        "Model estimates, not counts.")
+    return FigureBlock(
+        "estimators", "Estimator error by estimator and behaviour model",
+        "Source: each estimate is computed from observed records only and divided by the truth quantity it "
+        f"targets (model truth), over the summarised days of each of the batch's {runs} runs. Large markers are "
+        "means with 95% intervals over runs, small dots single runs; the dashed line is estimate = truth. "
+        "Estimators marked ≈ are compared with a truth that can only be counted approximately.",
+        png, "Dot plot of estimate over truth per estimator and behaviour model",
+    )

@@ -275,7 +275,9 @@ def build_parser() -> argparse.ArgumentParser:
     demo = sub.add_parser("demo", help="run the demo experiment on local processes and brief it")
     demo.add_argument("--out", default="outputs/demo", help="demo folder (default outputs/demo; only an earlier "
                       "demo's folder is ever replaced)")
-    demo.add_argument("--resume", action="store_true", help="keep an earlier demo's complete runs of the same experiment")
+    demo.add_argument(
+        "--resume", action="store_true", help="keep an earlier demo's complete runs of the same experiment"
+    )
     demo.add_argument("--workers", type=_positive_int, help="worker processes (default: one per CPU)")
     demo.set_defaults(func=cmd_demo)
 

@@ -33,32 +33,16 @@ from __future__ import annotations
 
 from typing import Annotated, Any, Literal
 
-from pydantic import BaseModel, BeforeValidator, ConfigDict, Field
+from pydantic import Field
 
-from ..world.schema import Name
+from ..world.schema import Name, NumberOnly, Strict
 
 SAMPLED_DESIGNS = ("latin_hypercube", "sobol")
 
 
-def _number_only(value: Any) -> Any:
-    """Refuse true/false and text where a number belongs (lax mode would read ``true`` as 1)."""
-    if isinstance(value, bool):
-        raise ValueError(f"expected a number, got {str(value).lower()}")
-    if isinstance(value, str):
-        raise ValueError(f"expected a number, got the text {value!r}")
-    return value
-
-
-_Number = BeforeValidator(_number_only)
-WholeNumber = Annotated[int, Field(ge=0), _Number]
-AtLeastOne = Annotated[int, Field(ge=1), _Number]
-Bound = Annotated[int | float, _Number]
-
-
-class Strict(BaseModel):
-    """Unknown keys are errors; infinity and NaN are refused."""
-
-    model_config = ConfigDict(extra="forbid", frozen=True, allow_inf_nan=False)
+WholeNumber = Annotated[int, Field(ge=0), NumberOnly]
+AtLeastOne = Annotated[int, Field(ge=1), NumberOnly]
+Bound = Annotated[int | float, NumberOnly]
 
 
 class Bundle(Strict):

@@ -23,12 +23,12 @@ def _number_only(value: Any) -> Any:
     return value
 
 
-_Number = BeforeValidator(_number_only)
-Probability = Annotated[float, Field(ge=0.0, le=1.0), _Number]
-NonNegative = Annotated[float, Field(ge=0.0), _Number]
-Positive = Annotated[float, Field(gt=0.0), _Number]
-Count = Annotated[int, Field(ge=0), _Number]
-Hour = Annotated[int, Field(ge=0, le=24), _Number]
+NumberOnly = BeforeValidator(_number_only)  # shared by every file schema of the project
+Probability = Annotated[float, Field(ge=0.0, le=1.0), NumberOnly]
+NonNegative = Annotated[float, Field(ge=0.0), NumberOnly]
+Positive = Annotated[float, Field(gt=0.0), NumberOnly]
+Count = Annotated[int, Field(ge=0), NumberOnly]
+Hour = Annotated[int, Field(ge=0, le=24), NumberOnly]
 NAME_PATTERN = r"^[A-Za-z0-9_\-]+$"
 CLOCK_PATTERN = r"^([01]\d|2[0-3]):[0-5]\d$"
 Name = Annotated[str, Field(min_length=1, max_length=80, pattern=NAME_PATTERN)]
@@ -247,7 +247,7 @@ class Weather(Strict):
     """
 
     states: list[Name] = Field(min_length=1)
-    start_month: Annotated[int, Field(ge=1, le=12), _Number] = 1
+    start_month: Annotated[int, Field(ge=1, le=12), NumberOnly] = 1
     months: dict[str, dict[str, Probability]] = Field(
         description="share of days in each state, per month (jan..dec) or 'default'"
     )

@@ -3,9 +3,9 @@
     .venv/bin/python bench/batch.py [--runs 200] [--days 30] [--workers 2]
 
 The same batch (the demo world, two policies, common random numbers) runs
-serially, in a local process pool and on a local Dask cluster; the same runs
-are also done directly with ``run_to_directory`` in a loop, without the
-store. Reported, as ratios measured in this one sitting:
+in a local process pool and on a local Dask cluster; serially it runs in
+rounds that alternate with doing the same runs directly with
+``run_to_directory`` in a loop, without the store. Reported, as ratios measured in this one sitting:
 
 - processes vs serial: speed-up (target >= 1.8x with 2 workers);
 - Dask vs processes: wall-time ratio (target within 15%);
@@ -29,6 +29,7 @@ import yaml
 
 ROOT = Path(__file__).resolve().parent.parent
 DEMO_WORLD = ROOT / "worlds" / "kestrel_quay" / "world.yaml"
+ROUNDS = 4  # the serial runs come in this many alternating rounds of the direct loop and the batch
 
 
 def write_experiment(folder: Path, runs: int, days: int) -> Path:
@@ -82,6 +83,20 @@ def timed_direct(path: Path, out: Path) -> tuple[float, float]:
     return time.perf_counter() - start, time.process_time() - cpu
 
 
+def same_results(folder: Path, per_round: int) -> bool:
+    """Processes and Dask agree byte for byte; a serial round agrees with their rows of the same seeds."""
+    import pandas as pd
+
+    tables = {name: folder / name / "summary.parquet" for name in ("processes", "dask", "serial0")}
+    if tables["processes"].read_bytes() != tables["dask"].read_bytes():
+        return False
+    # replication seeds are a prefix property of the root seed: the round's r-th replication is the whole's r-th
+    whole = pd.read_parquet(tables["processes"])
+    serial = pd.read_parquet(tables["serial0"])
+    rows = whole[whole["replication"] < per_round // 2].reset_index(drop=True)
+    return rows.equals(serial)
+
+
 def main() -> None:
     parser = argparse.ArgumentParser(description=__doc__.splitlines()[0])
     parser.add_argument("--runs", type=int, default=200)
@@ -91,19 +106,26 @@ def main() -> None:
 
     folder = Path(tempfile.mkdtemp(prefix="undertow-bench-"))
     try:
-        path = write_experiment(folder, args.runs, args.days)
-        runs = 2 * (args.runs // 2)
-        (folder / "warm").mkdir()
+        runs = 2 * ROUNDS * (args.runs // (2 * ROUNDS))
+        for name in ("whole", "round", "warm"):
+            (folder / name).mkdir()
+        whole = write_experiment(folder / "whole", runs, args.days)
+        part = write_experiment(folder / "round", runs // ROUNDS, args.days)
         # compiled code and file caches warm before anything is timed
         timed_direct(write_experiment(folder / "warm", 2, args.days), folder / "warm-out")
-        direct, direct_cpu = timed_direct(path, folder / "direct")
-        serial, serial_cpu = timed_batch(path, folder / "serial", "serial", None)
-        processes, _ = timed_batch(path, folder / "processes", "processes", args.workers)
-        dask, _ = timed_batch(path, folder / "dask", "dask", args.workers)
-        same = all(
-            (folder / name / "summary.parquet").read_bytes() == (folder / "serial" / "summary.parquet").read_bytes()
-            for name in ("processes", "dask")
-        )
+        # Direct loop and serial batch alternate, round by round, so drifting load on the machine falls on both.
+        direct = direct_cpu = serial = serial_cpu = 0.0
+        for r in range(ROUNDS):
+            for kind in ("direct", "serial") if r % 2 == 0 else ("serial", "direct"):
+                if kind == "direct":
+                    wall, cpu = timed_direct(part, folder / f"direct{r}")
+                    direct, direct_cpu = direct + wall, direct_cpu + cpu
+                else:
+                    wall, cpu = timed_batch(part, folder / f"serial{r}", "serial", None)
+                    serial, serial_cpu = serial + wall, serial_cpu + cpu
+        processes, _ = timed_batch(whole, folder / "processes", "processes", args.workers)
+        dask, _ = timed_batch(whole, folder / "dask", "dask", args.workers)
+        same = same_results(folder, runs // ROUNDS)
         overhead = (serial - direct) / runs
         # Serial work all happens in this process, so its CPU time is a measure other load barely moves.
         overhead_cpu = (serial_cpu - direct_cpu) / runs

@@ -1,0 +1,67 @@
+"""Simulation-based inference: fit unknown inflow and behaviour to observed records by running the model.
+
+The model itself is the estimator: approximate Bayesian computation finds the
+parameter values under which simulated observed records look like the real
+ones, and the simulated truth of those runs says what went undetected. The
+algorithms (:mod:`abm.calibration.abc`) are pure functions over any simulator
+of summary statistics; :mod:`abm.calibration.simulator` plugs in the port
+model through the batch executors. Of the records being calibrated only the
+observed part is read (:mod:`abm.calibration.target`).
+"""
+
+from .abc import (
+    ABCError,
+    ABCPosterior,
+    BatchSimulator,
+    Generation,
+    PredictiveCheck,
+    Simulated,
+    abc_smc,
+    effective_sample_size,
+    kernel_covariance,
+    mad_scale,
+    pointwise,
+    predictive_check,
+    regression_adjust,
+    rejection_abc,
+    smc_weights,
+    weighted_quantile,
+)
+from .config import CalibrationFileError, CalibrationPlan, describe_calibration, load_calibration
+from .priors import Prior, PriorError, PriorSet
+from .run import CalibrationResult, calibrate, run_calibration
+from .summaries import DEFAULT_GROUPS, SUMMARY_GROUPS, SummarySpec
+from .target import load_target
+
+__all__ = [
+    "ABCError",
+    "ABCPosterior",
+    "BatchSimulator",
+    "CalibrationFileError",
+    "CalibrationPlan",
+    "CalibrationResult",
+    "DEFAULT_GROUPS",
+    "Generation",
+    "PredictiveCheck",
+    "Prior",
+    "PriorError",
+    "PriorSet",
+    "SUMMARY_GROUPS",
+    "Simulated",
+    "SummarySpec",
+    "abc_smc",
+    "calibrate",
+    "describe_calibration",
+    "effective_sample_size",
+    "kernel_covariance",
+    "load_calibration",
+    "load_target",
+    "mad_scale",
+    "pointwise",
+    "predictive_check",
+    "regression_adjust",
+    "rejection_abc",
+    "run_calibration",
+    "smc_weights",
+    "weighted_quantile",
+]

@@ -1,0 +1,448 @@
+"""Calibration files: what to fit, to which records, with which priors and which method.
+
+A calibration file::
+
+    kind: calibration                     # optional marker
+    name: Kestrel Quay inflow (illustrative)
+    world: world.yaml                     # relative to this file
+    observed:
+      path: ../../outputs/kestrel-target  # a run directory, or a folder of observed tables (CSV/Parquet)
+      first_day: 7                        # the records' day where the calibration window starts (default 0)
+    days: 28                              # length of the window; candidate runs summarise days warmup .. warmup+days-1
+    warmup_days: 7                        # days each candidate run simulates first
+    seed: 20240612
+    summaries: [detections_by_station, detections_week, interdictions_week, repeat_frequencies]
+    priors:                               # one per unknown, at a dotted world path
+      - {path: adversary.arrivals_per_day, dist: gamma, shape: 4, rate: 0.3, bounds: [1, 60]}
+      - {path: adversary.adaptive.rationality, dist: uniform, low: 0.5, high: 5}
+      - {path: methods.gas_probe.detection, name: probe_sensitivity, multiply: true,
+         dist: normal, mean: 1.0, sd: 0.1, bounds: [0.7, 1.15]}
+    method: {name: smc, particles: 100, generations: 4, initial_draws: 300, quantile: 0.5}
+    # or    {name: rejection, draws: 1000, accept: 0.1, regression: true}
+    predictive_runs: 20                   # fresh runs at posterior draws, for the predictive check
+    level: 0.9                            # credible level of every interval
+
+:func:`load_calibration` validates the file, the world, every prior's path and
+the world at each end of every prior's range (at the 0.1% and 99.9% quantiles
+where a prior is unbounded), and the observed records (they must cover the
+window and name the world's stations), before anything runs. Every problem is
+one :class:`CalibrationFileError` line ``FILE: KEY.PATH: message``.
+"""
+
+from __future__ import annotations
+
+import difflib
+import hashlib
+import json
+import math
+from dataclasses import dataclass
+from pathlib import Path
+from typing import Annotated, Any, Literal
+
+import numpy as np
+from pydantic import BaseModel, Field, ValidationError
+
+from ..errors import InputError
+from ..world import WorldFileError, file_hash, parse_world, read_yaml_mapping
+from ..world.loader import allowed_keys, format_loc
+from ..world.paths import PathProblem, get_path, set_path
+from ..world.schema import NumberOnly, Strict
+from .priors import DISTRIBUTIONS, Prior, PriorError, PriorSet
+from .summaries import DEFAULT_GROUPS, SUMMARY_GROUPS, SummarySpec, observed_span
+from .target import load_target
+
+
+# What each candidate run reports from its own truth, besides its observed summaries (persons, in the
+# window): these are the calibration's latent quantities. Candidate runs are the calibration's own.
+LATENT = ("crossings", "attempts", "arrived")
+LATENT_MEANING = {
+    "crossings": "persons who crossed undetected",
+    "attempts": "person-attempts",
+    "arrived": "persons newly arrived",
+}
+# Column names of the particle tables besides the parameters; a prior may not take one.
+RESERVED_NAMES = frozenset({*LATENT, "weight", "distance", "simulation"})
+
+
+class CalibrationFileError(WorldFileError):
+    """A calibration file that cannot be used, with the key path at fault. ``str()`` is one line."""
+
+
+Number = Annotated[float, NumberOnly]
+WholeNumber = Annotated[int, Field(ge=0), NumberOnly]
+AtLeastOne = Annotated[int, Field(ge=1), NumberOnly]
+AtLeastTwo = Annotated[int, Field(ge=2), NumberOnly]
+OpenShare = Annotated[float, Field(gt=0.0, lt=1.0), NumberOnly]
+Share = Annotated[float, Field(gt=0.0, le=1.0), NumberOnly]
+
+
+class PriorSpec(Strict):
+    """One unknown: a dotted world path and its prior."""
+
+    path: str = Field(min_length=1, description="dotted path into the world, e.g. adversary.arrivals_per_day")
+    name: str | None = Field(None, min_length=1, max_length=80, description="column name; defaults to the path")
+    dist: Literal["uniform", "loguniform", "normal", "gamma"]
+    low: Number | None = None
+    high: Number | None = None
+    mean: Number | None = None
+    sd: Number | None = None
+    shape: Number | None = None
+    rate: Number | None = None
+    bounds: tuple[Number, Number] | None = Field(None, description="[low, high] to truncate the prior to")
+    multiply: bool = Field(False, description="multiply every number at the path by the value instead of replacing it")
+
+    @property
+    def label(self) -> str:
+        return self.name or self.path
+
+
+class ObservedSpec(Strict):
+    """The records to calibrate to."""
+
+    path: str = Field(min_length=1, description="run directory or folder of observed tables, relative to this file")
+    first_day: WholeNumber = Field(0, description="day of the records where the calibration window starts")
+
+
+class MethodSpec(Strict):
+    """The ABC method and its settings (each method's own keys only)."""
+
+    name: Literal["smc", "rejection"] = "smc"
+    particles: AtLeastTwo | None = None
+    generations: AtLeastOne | None = None
+    initial_draws: AtLeastTwo | None = None
+    quantile: OpenShare | None = None
+    max_simulations: AtLeastOne | None = None
+    draws: AtLeastTwo | None = None
+    accept: Share | None = None
+    regression: bool | None = None
+
+
+METHOD_KEYS = {
+    "smc": ("particles", "generations", "initial_draws", "quantile", "max_simulations"),
+    "rejection": ("draws", "accept", "regression"),
+}
+METHOD_DEFAULTS: dict[str, Any] = {
+    "particles": 200,
+    "generations": 4,
+    "quantile": 0.5,
+    "draws": 1000,
+    "accept": 0.1,
+    "regression": True,
+}
+
+
+class Calibration(Strict):
+    """A whole calibration file."""
+
+    kind: Literal["calibration"] = "calibration"
+    name: str = Field(min_length=1, max_length=200)
+    note: str = ""
+    world: str = Field(min_length=1, description="world file, relative to this file")
+    observed: ObservedSpec
+    days: AtLeastOne = Field(description="days in the calibration window")
+    warmup_days: WholeNumber = Field(0, description="days each candidate run simulates before the window")
+    seed: WholeNumber
+    priors: list[PriorSpec] = Field(min_length=1)
+    summaries: list[str] = Field(default_factory=lambda: list(DEFAULT_GROUPS), min_length=1)
+    method: MethodSpec = Field(default_factory=MethodSpec)
+    predictive_runs: WholeNumber = Field(20, description="fresh runs at posterior draws for the predictive check")
+    level: OpenShare = Field(0.9, description="credible level of every interval")
+
+
+@dataclass(frozen=True, eq=False)
+class CalibrationPlan:
+    """A validated calibration: priors, summaries, the observed summaries and the world, ready to run."""
+
+    source: Path
+    spec: Calibration
+    world_path: Path
+    world_data: dict[str, Any]
+    world_sha256: str
+    observed_path: Path
+    priors: PriorSet
+    summary_spec: SummarySpec
+    observed: np.ndarray  # the observed summaries, in summary_spec.names() order
+
+    @property
+    def method(self) -> str:
+        return self.spec.method.name
+
+    def setting(self, key: str) -> Any:
+        """A method setting as given, else its default."""
+        value = getattr(self.spec.method, key)
+        if value is not None:
+            return value
+        if key == "initial_draws":
+            return 4 * self.setting("particles")
+        if key == "max_simulations":
+            return 20 * self.setting("particles")
+        return METHOD_DEFAULTS[key]
+
+    def world_for(self, theta: np.ndarray) -> dict[str, Any]:
+        """The world mapping with one parameter vector written to the priors' paths."""
+        return world_with(self.world_data, self.priors, theta)
+
+    def digest(self) -> str:
+        """SHA-256 of what determines the calibration's results: the file, the world and the observed summaries."""
+        payload = {
+            "calibration": self.spec.model_dump(mode="json"),
+            "world": self.world_data,
+            "observed": [float(v) for v in self.observed],
+        }
+        text = json.dumps(payload, sort_keys=True, default=str, separators=(",", ":"))
+        return hashlib.sha256(text.encode("utf-8")).hexdigest()
+
+
+def world_with(world: dict[str, Any], priors: PriorSet, theta: np.ndarray) -> dict[str, Any]:
+    """``world`` with each prior's value set at (or, for a multiplier, multiplied into) its path."""
+    data = world
+    for prior, value in zip(priors.priors, np.asarray(theta, dtype=float), strict=True):
+        assert prior.path is not None
+        if prior.multiply:
+            data = set_path(data, prior.path, _scaled(get_path(data, prior.path), float(value)))
+        else:
+            data = set_path(data, prior.path, float(value))
+    return data
+
+
+def _scaled(node: Any, factor: float) -> Any:
+    """Every number in a value (a number, or mappings and lists of numbers) times ``factor``."""
+    if isinstance(node, bool):
+        return node
+    if isinstance(node, (int, float)):
+        return node * factor
+    if isinstance(node, dict):
+        return {k: _scaled(v, factor) for k, v in node.items()}
+    if isinstance(node, list):
+        return [_scaled(v, factor) for v in node]
+    return node
+
+
+def _numbers_in(node: Any) -> bool:
+    if isinstance(node, bool):
+        return False
+    if isinstance(node, (int, float)):
+        return True
+    if isinstance(node, dict):
+        return any(_numbers_in(v) for v in node.values())
+    if isinstance(node, list):
+        return any(_numbers_in(v) for v in node)
+    return False
+
+
+# -- loading -----------------------------------------------------------------------------------
+
+
+def load_calibration(path: str | Path) -> CalibrationPlan:
+    """Read and validate a calibration file; raise :class:`CalibrationFileError` naming the key at fault."""
+    source = Path(path)
+    data = read_yaml_mapping(source)
+    try:
+        spec = Calibration.model_validate(data)
+    except ValidationError as exc:
+        raise schema_error(exc, data, source, Calibration, CalibrationFileError) from None
+    _check_method(spec, source)
+    for i, group in enumerate(spec.summaries):
+        if group not in SUMMARY_GROUPS:
+            close = difflib.get_close_matches(group, SUMMARY_GROUPS, n=1, cutoff=0.5)
+            hint = f"did you mean '{close[0]}'?" if close else f"expected one of {', '.join(SUMMARY_GROUPS)}"
+            raise CalibrationFileError(source, f"summaries[{i}]", f"unknown summary group '{group}'; {hint}")
+    world_path = source.parent / spec.world
+    if not world_path.is_file():
+        raise CalibrationFileError(source, "world", f"no world file at {world_path}")
+    world_data = read_yaml_mapping(world_path)
+    world = parse_world(world_data, world_path)
+    priors = PriorSet.of([_prior(spec, i, source) for i in range(len(spec.priors))])
+    _check_labels(spec, source)
+    for i in range(len(spec.priors)):
+        _check_prior_in_world(spec, i, priors, world_data, source)
+    summary_spec = SummarySpec(tuple(spec.summaries), spec.days, tuple(world.station_names), tuple(world.point_names))
+    observed_path = source.parent / spec.observed.path
+    observed = _observed_summaries(spec, observed_path, summary_spec, source)
+    return CalibrationPlan(
+        source=source,
+        spec=spec,
+        world_path=world_path,
+        world_data=world_data,
+        world_sha256=file_hash(world_path),
+        observed_path=observed_path,
+        priors=priors,
+        summary_spec=summary_spec,
+        observed=observed,
+    )
+
+
+def _check_method(spec: Calibration, source: Path) -> None:
+    method = spec.method
+    for other, keys in METHOD_KEYS.items():
+        if other == method.name:
+            continue
+        for key in keys:
+            if getattr(method, key) is not None:
+                raise CalibrationFileError(source, f"method.{key}", f"is a setting of method {other}, not {method.name}")
+    if method.name == "smc":
+        particles = method.particles or METHOD_DEFAULTS["particles"]
+        if method.initial_draws is not None and method.initial_draws < particles:
+            raise CalibrationFileError(
+                source, "method.initial_draws", f"must be at least particles ({particles}), got {method.initial_draws}"
+            )
+
+
+def _prior(spec: Calibration, i: int, source: Path) -> Prior:
+    item = spec.priors[i]
+    key = f"priors[{i}]"
+    needed = DISTRIBUTIONS[item.dist]
+    for param in ("low", "high", "mean", "sd", "shape", "rate"):
+        value = getattr(item, param)
+        if param in needed and value is None:
+            raise CalibrationFileError(source, f"{key}.{param}", f"required for a {item.dist} prior")
+        if param not in needed and value is not None:
+            raise CalibrationFileError(
+                source, f"{key}.{param}", f"is not a parameter of a {item.dist} prior (it takes {', '.join(needed)})"
+            )
+    try:
+        return Prior.make(
+            item.label,
+            item.dist,
+            bounds=item.bounds,
+            path=item.path,
+            multiply=item.multiply,
+            **{p: float(getattr(item, p)) for p in needed},
+        )
+    except PriorError as exc:
+        message = str(exc).removeprefix(f"{item.label}: ")
+        where = f"{key}.bounds" if "bounds" in message else key
+        raise CalibrationFileError(source, where, message) from None
+
+
+def _check_labels(spec: Calibration, source: Path) -> None:
+    for i, item in enumerate(spec.priors):
+        if item.label in RESERVED_NAMES or item.label.startswith(("summary:", "unadjusted:")):
+            raise CalibrationFileError(source, f"priors[{i}].name", f"'{item.label}' names a column of the results; choose another")
+        for j, other in enumerate(spec.priors[:i]):
+            if other.path == item.path:
+                raise CalibrationFileError(source, f"priors[{i}].path", f"priors[{j}] already calibrates {item.path}")
+            if other.label == item.label:
+                raise CalibrationFileError(source, f"priors[{i}].name", f"'{item.label}' already names priors[{j}]")
+
+
+def _check_prior_in_world(spec: Calibration, i: int, priors: PriorSet, world: dict[str, Any], source: Path) -> None:
+    """The path must lead into the world, and the world must stay valid at both ends of the prior's range."""
+    prior = priors.priors[i]
+    assert prior.path is not None
+    key = f"priors[{i}]"
+    try:
+        current = get_path(world, prior.path) if prior.multiply else None
+        set_path(world, prior.path, 1.0)
+    except PathProblem as exc:
+        raise CalibrationFileError(source, f"{key}.path", str(exc)) from None
+    if prior.multiply and not _numbers_in(current):
+        raise CalibrationFileError(source, f"{key}.path", f"a multiplier needs numbers at {prior.path}; found none")
+    low, high = prior.support()
+    ends = (
+        ("low", low if math.isfinite(low) else float(prior.ppf(np.array([0.001]))[0])),
+        ("high", high if math.isfinite(high) else float(prior.ppf(np.array([0.999]))[0])),
+    )
+    # The other unknowns stay at their world values: each prior is checked alone, as an experiment checks factors.
+    for end, value in ends:
+        single = PriorSet.of([prior])
+        try:
+            parse_world(world_with(world, single, np.array([value])), "<calibration>")
+        except WorldFileError as exc:
+            if exc.message.startswith("unknown key"):  # the path made up a key: the path is what is wrong
+                raise CalibrationFileError(source, f"{key}.path", f"{exc.path}: {exc.message}") from None
+            where = f"{key}.bounds" if prior.bounds != (-math.inf, math.inf) else key
+            raise CalibrationFileError(
+                source, where, f"at the {end} end of the prior ({value:g}), in the world, {exc.path}: {exc.message}"
+            ) from None
+
+
+def _observed_summaries(spec: Calibration, path: Path, summary_spec: SummarySpec, source: Path) -> np.ndarray:
+    try:
+        tables = load_target(path)
+    except InputError as exc:
+        raise CalibrationFileError(source, "observed.path", str(exc)) from None
+    stations = tables["stations"]
+    named = sorted(stations["station"].astype(str))
+    if named != sorted(summary_spec.stations):
+        raise CalibrationFileError(
+            source,
+            "observed.path",
+            f"the records' stations ({', '.join(named) or 'none'}) are not the world's "
+            f"({', '.join(sorted(summary_spec.stations))})",
+        )
+    span = observed_span(tables)
+    first, last = spec.observed.first_day, spec.observed.first_day + spec.days - 1
+    if span is None:
+        raise CalibrationFileError(source, "observed.path", "the records hold no checks and no encounters")
+    if span[1] < last:
+        raise CalibrationFileError(
+            source, "days", f"the window (days {first}-{last} of the records) runs past their last day, {span[1]}"
+        )
+    return summary_spec.compute(tables, first)
+
+
+# -- one-line schema errors ------------------------------------------------------------------
+
+
+def schema_error(
+    exc: ValidationError, data: Any, source: Path, model: type[BaseModel], error_type: type[WorldFileError]
+) -> WorldFileError:
+    """The first schema problem as one line naming its key (a misspelt key is reported as unknown, with a hint)."""
+    errors = exc.errors()
+    error = errors[0]
+    if error["type"] == "missing":
+        parent = tuple(error["loc"][:-1])
+        error = next((e for e in errors if e["type"] == "extra_forbidden" and tuple(e["loc"][:-1]) == parent), error)
+    kind = error["type"]
+    loc = _present(tuple(error["loc"]), data, keep_last=kind in ("missing", "extra_forbidden"))
+    path = format_loc(loc, data)
+    if kind == "extra_forbidden":
+        key = str(loc[-1])
+        valid = allowed_keys(model, loc[:-1])
+        close = difflib.get_close_matches(key, valid, n=1, cutoff=0.5)
+        hint = f"; did you mean '{close[0]}'?" if close else (f"; valid keys: {', '.join(valid)}" if valid else "")
+        return error_type(source, path, f"unknown key '{key}'{hint}")
+    if kind == "missing":
+        return error_type(source, path, "required key is missing")
+    message = error["msg"].removeprefix("Value error, ")
+    given = error.get("input")
+    if " got " not in message and not isinstance(given, (dict, list)):
+        shown = json.dumps(given, default=str) if not isinstance(given, str) else f"'{given}'"
+        message = f"{message}, got {shown if len(shown) <= 40 else shown[:37] + '...'}"
+    return error_type(source, path, message)
+
+
+def _present(loc: tuple[Any, ...], data: Any, keep_last: bool) -> tuple[Any, ...]:
+    """The part of a pydantic location that exists in the data (dropping union-member tags)."""
+    node, kept = data, []
+    for i, item in enumerate(loc):
+        if isinstance(node, dict) and item in node:
+            node = node[item]
+        elif isinstance(node, list) and isinstance(item, int) and 0 <= item < len(node):
+            node = node[item]
+        else:
+            if keep_last and i == len(loc) - 1:
+                kept.append(item)
+            break
+        kept.append(item)
+    return tuple(kept)
+
+
+def describe_calibration(path: str | Path) -> str:
+    """Validate a calibration file and say what it would run, in one line."""
+    plan = load_calibration(path)
+    spec = plan.spec
+    if plan.method == "smc":
+        how = (
+            f"ABC-SMC, {plan.setting('particles')} particles x up to {plan.setting('generations')} generations "
+            f"({plan.setting('initial_draws')} prior draws first)"
+        )
+    else:
+        how = f"rejection, {plan.setting('draws')} prior draws keeping {plan.setting('accept'):.0%}"
+    names = ", ".join(plan.priors.names)
+    return (
+        f"{path}: ok (calibration {spec.name}; {len(plan.priors.names)} unknowns: {names}; "
+        f"{len(plan.observed)} summaries; {how}; runs of {spec.warmup_days}+{spec.days} days; world {plan.world_path})"
+    )
+

@@ -1,0 +1,103 @@
+"""Calibrating the port model to synthetic observed records of a run with a known inflow.
+
+The small reference world (worlds/reference/small_inflow) with arrivals_per_day = 6 is run for
+7 + 28 days; everything but the run's observed/ folder is deleted, and the inflow is calibrated
+from a uniform(1, 20) prior on the observed summaries alone. The 90% credible interval must cover the
+true inflow and the run's true crossings (persons who crossed in the 28 days), for static and for
+adaptive behaviour. One interval covering once is a weak check on its own (a calibrated 90% interval
+misses one time in ten), so each test also asks that the posterior learnt something: its SD is well
+below the prior's (5.5 for uniform(1, 20)).
+
+Settings are small so the two runs stay within about a minute on two cores: ABC-SMC with 20 particles
+and two generations (static), rejection with 150 prior draws keeping 40% and the local-linear
+adjustment (adaptive). The adjustment fits one slope per summary, so the summaries are few (6: detections
+per station and the repeat-encounter frequencies): with many summaries and few draws the fit follows
+the noise and the interval comes out too narrow.
+"""
+
+from __future__ import annotations
+
+import json
+import shutil
+
+import numpy as np
+import pandas as pd
+import pytest
+
+from abm.calibration import load_calibration, run_calibration
+from abm.calibration.simulator import CalibrationStoreError
+from abm.experiment.executors import ProcessExecutor, SerialExecutor
+
+from .helpers import TRUE_ARRIVALS, calibration_data, make_target, world_file, write_yaml
+
+PRIOR_SD = 19 / np.sqrt(12)
+
+
+@pytest.fixture(scope="module")
+def executor():
+    with ProcessExecutor(2) as pool:
+        yield pool
+
+
+def interval(result, quantity: str) -> tuple[float, float, float]:
+    row = result.to_frame().set_index("quantity").loc[quantity]
+    return float(row["low"]), float(row["high"]), float(row["sd"])
+
+
+def test_static_inflow_by_abc_smc_covers_the_truth(tmp_path, executor, static_target):
+    world, target, truth = static_target
+    assert not (target / "truth").exists() and [p.name for p in target.iterdir()] == ["observed"]
+    data = calibration_data(
+        world, target, method={"name": "smc", "particles": 20, "generations": 2, "initial_draws": 60}, predictive_runs=6
+    )
+    result = run_calibration(load_calibration(write_yaml(tmp_path / "c.yaml", data)), tmp_path / "out", executor)
+    low, high, sd = interval(result, "adversary.arrivals_per_day")
+    assert low <= TRUE_ARRIVALS <= high and sd < PRIOR_SD / 2
+    low, high, _ = interval(result, "crossings")
+    assert low <= truth["crossings"] <= high
+    assert len(result.posterior.generations) == 2
+    # The store: each generation's runs and particles, the tables, the figures.
+    out = tmp_path / "out"
+    for k in (0, 1):
+        particles = pd.read_parquet(out / f"gen-{k}" / "particles.parquet")
+        assert len(particles) == 20 and particles["weight"].sum() == pytest.approx(1.0)
+        assert all((out / label / "summary.json").is_file() for label in particles["simulation"])
+    for name in ("posterior.parquet", "posterior_summary.parquet", "diagnostics.parquet", "predictive_check.parquet",
+                 "summary.txt", "figures/posterior.png", "figures/predictive_check.png"):
+        assert (out / name).is_file(), name
+    assert len(list((out / "predictive").iterdir())) == 6
+    assert "Undetected crossings in the window" in result.summary()
+
+
+def test_adaptive_inflow_by_rejection_and_regression_covers_the_truth(tmp_path, executor):
+    world = world_file(tmp_path, "adaptive")
+    target, truth = make_target(tmp_path, world, seed=202)
+    data = calibration_data(world, target, method={"name": "rejection", "draws": 150, "accept": 0.4}, predictive_runs=4)
+    result = run_calibration(load_calibration(write_yaml(tmp_path / "c.yaml", data)), tmp_path / "out", executor, figures=False)
+    low, high, sd = interval(result, "adversary.arrivals_per_day")
+    assert low <= TRUE_ARRIVALS <= high and sd < PRIOR_SD / 2
+    low, high, _ = interval(result, "crossings")
+    assert low <= truth["crossings"] <= high
+    assert result.posterior.final.theta_raw is not None, "the regression adjustment was applied"
+
+
+def test_a_calibration_resumes_without_repeating_finished_runs(tmp_path, calibration_file):
+    path = calibration_file()
+    out = tmp_path / "out"
+    first = run_calibration(load_calibration(path), out, SerialExecutor(), figures=False)
+    assert (first.ran, first.reused) == (12 + 2, 0)
+    with pytest.raises(CalibrationStoreError, match="--resume"):
+        run_calibration(load_calibration(path), out, SerialExecutor())
+    # Interrupted: one run of the draws and the particle table lost, as if the process died mid-way.
+    shutil.rmtree(out / "gen-0" / "p000003")
+    (out / "gen-0" / "particles.parquet").unlink()
+    again = run_calibration(load_calibration(path), out, SerialExecutor(), resume=True, figures=False)
+    assert (again.ran, again.reused) == (1, 12 + 2 - 1)
+    np.testing.assert_array_equal(again.posterior.theta, first.posterior.theta)
+    np.testing.assert_array_equal(again.posterior.latent, first.posterior.latent)
+    # A changed calibration is refused in the same folder.
+    changed = calibration_file(seed=6)
+    with pytest.raises(CalibrationStoreError, match="different calibration"):
+        run_calibration(load_calibration(changed), out, SerialExecutor(), resume=True)
+    header = json.loads((out / "calibration.json").read_text())
+    assert set(header["observed_summaries"]) == set(load_calibration(path).summary_spec.names())

@@ -6,6 +6,7 @@ switch), so they can be made in any process, with or without a display.
 
 from __future__ import annotations
 
+import textwrap
 from pathlib import Path
 from typing import TYPE_CHECKING
 
@@ -40,7 +41,7 @@ def posterior_figure(result: "CalibrationResult") -> Figure:
         ax.tick_params(labelsize=8)
         if k == 0:
             ax.legend(fontsize=7)
-    fig.suptitle(f"{result.name}: posterior (model estimates, not counts)", fontsize=10)
+    fig.suptitle(textwrap.fill(f"{result.name}: posterior (model estimates, not counts)", 40 * cols), fontsize=10)
     return fig
 
 
@@ -70,7 +71,7 @@ def predictive_figure(result: "CalibrationResult") -> Figure:
     ax.set_yticks(y, table["summary"], fontsize=7)
     ax.set_xlabel("(simulated - observed) / scale of the distance", fontsize=8)
     ax.legend(fontsize=7, loc="lower right")
-    ax.set_title(f"{result.name}: posterior predictive check", fontsize=10)
+    ax.set_title(textwrap.fill(f"{result.name}: posterior predictive check", 70), fontsize=9)
     return fig
 
 

@@ -205,6 +205,36 @@ def cmd_batch(args: argparse.Namespace) -> int:
     return EXIT_OK if ok else EXIT_FAULT
 
 
+
+def cmd_calibrate(args: argparse.Namespace) -> int:
+    """Fit unknown inflow and behaviour to observed records by ABC over the model; print the posterior."""
+    from .calibration.run import calibrate_command
+
+    try:
+        calibrate_command(
+            args.calibration, args.out, args.executor, args.workers, args.scheduler, args.resume, args.check,
+            ["undertow", *args.argv],
+        )
+    except KeyboardInterrupt:
+        print(f"undertow calibrate: interrupted; finished runs are kept in {args.out}; add --resume to finish", file=sys.stderr)
+        return EXIT_INTERRUPTED
+    return EXIT_OK
+
+
+def cmd_optimise(args: argparse.Namespace) -> int:
+    """Search policies under constraints with common random numbers; print the best and the runner-ups."""
+    from .analysis.policy_search import optimise_command
+
+    try:
+        optimise_command(
+            args.optimisation, args.out, args.executor, args.workers, args.scheduler, args.resume, args.check,
+            ["undertow", *args.argv],
+        )
+    except KeyboardInterrupt:
+        print(f"undertow optimise: interrupted; finished runs are kept in {args.out}; add --resume to finish", file=sys.stderr)
+        return EXIT_INTERRUPTED
+    return EXIT_OK
+
 def _positive_int(text: str) -> int:
     try:
         value = int(text)
@@ -316,6 +346,22 @@ def build_parser() -> argparse.ArgumentParser:
     )
     estimate.add_argument("--seed", type=_seed, help="seed for the expansions' bootstrap intervals (default: none)")
     estimate.set_defaults(func=cmd_estimate)
+
+    for name, key, func, what in (
+        ("calibrate", "calibration", cmd_calibrate, "fit inflow and behaviour to observed records (ABC over the model)"),
+        ("optimise", "optimisation", cmd_optimise, "search policies under delay and staff constraints"),
+    ):
+        search = sub.add_parser(name, help=what)
+        search.add_argument(key, help=f"{key} YAML file")
+        search.add_argument("--out", help="output folder to create (or to finish, with --resume)")
+        search.add_argument(
+            "--executor", choices=["serial", "processes", "dask"], help="where runs execute (default serial; dask with --scheduler)"
+        )
+        search.add_argument("--workers", type=_positive_int, help="worker processes (default: one per CPU)")
+        search.add_argument("--scheduler", metavar="ADDRESS", help="an existing Dask scheduler, e.g. tcp://10.0.0.5:8786")
+        search.add_argument("--resume", action="store_true", help="take up an interrupted run in --out: finished runs are kept")
+        search.add_argument("--check", action="store_true", help="only validate the file and say what it would run")
+        search.set_defaults(func=func)
     return parser
 
 

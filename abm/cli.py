@@ -235,34 +235,24 @@ def cmd_optimise(args: argparse.Namespace) -> int:
         return EXIT_INTERRUPTED
     return EXIT_OK
 
-def _positive_int(text: str) -> int:
-    try:
-        value = int(text)
-    except ValueError:
-        raise argparse.ArgumentTypeError(f"expected a whole number, got '{text}'") from None
-    if value < 1:
-        raise argparse.ArgumentTypeError(f"expected a number of at least 1, got {value}")
-    return value
+def _whole_number(minimum: int, what: str = "number") -> Callable[[str], int]:
+    """An argparse type for a whole number of at least ``minimum``."""
+
+    def parse(text: str) -> int:
+        try:
+            value = int(text)
+        except ValueError:
+            raise argparse.ArgumentTypeError(f"expected a whole-number {what}, got '{text}'") from None
+        if value < minimum:
+            raise argparse.ArgumentTypeError(f"expected a {what} of {minimum} or more, got {value}")
+        return value
+
+    return parse
 
 
-def _seed(text: str) -> int:
-    try:
-        value = int(text)
-    except ValueError:
-        raise argparse.ArgumentTypeError(f"expected a whole-number seed, got '{text}'") from None
-    if value < 0:
-        raise argparse.ArgumentTypeError(f"expected a seed of 0 or more, got {value}")
-    return value
-
-
-def _non_negative_int(text: str) -> int:
-    try:
-        value = int(text)
-    except ValueError:
-        raise argparse.ArgumentTypeError(f"expected a whole number, got '{text}'") from None
-    if value < 0:
-        raise argparse.ArgumentTypeError(f"expected a number of 0 or more, got {value}")
-    return value
+_positive_int = _whole_number(1)
+_seed = _whole_number(0, "seed")
+_non_negative_int = _whole_number(0)
 
 
 def _non_negative_float(text: str) -> float:

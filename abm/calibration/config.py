@@ -46,6 +46,7 @@ from ..errors import InputError
 from ..world import WorldFileError, file_hash, parse_world, read_yaml_mapping
 from ..world.loader import allowed_keys, format_loc
 from ..world.paths import PathProblem, get_path, set_path
+from ..experiment.design import present_location
 from ..world.schema import NumberOnly, Strict
 from .priors import DISTRIBUTIONS, Prior, PriorError, PriorSet
 from .summaries import DEFAULT_GROUPS, SUMMARY_GROUPS, SummarySpec, observed_span
@@ -395,7 +396,7 @@ def schema_error(
         parent = tuple(error["loc"][:-1])
         error = next((e for e in errors if e["type"] == "extra_forbidden" and tuple(e["loc"][:-1]) == parent), error)
     kind = error["type"]
-    loc = _present(tuple(error["loc"]), data, keep_last=kind in ("missing", "extra_forbidden"))
+    loc = present_location(tuple(error["loc"]), data, keep_last=kind in ("missing", "extra_forbidden"))
     path = format_loc(loc, data)
     if kind == "extra_forbidden":
         key = str(loc[-1])
@@ -411,22 +412,6 @@ def schema_error(
         shown = json.dumps(given, default=str) if not isinstance(given, str) else f"'{given}'"
         message = f"{message}, got {shown if len(shown) <= 40 else shown[:37] + '...'}"
     return error_type(source, path, message)
-
-
-def _present(loc: tuple[Any, ...], data: Any, keep_last: bool) -> tuple[Any, ...]:
-    """The part of a pydantic location that exists in the data (dropping union-member tags)."""
-    node, kept = data, []
-    for i, item in enumerate(loc):
-        if isinstance(node, dict) and item in node:
-            node = node[item]
-        elif isinstance(node, list) and isinstance(item, int) and 0 <= item < len(node):
-            node = node[item]
-        else:
-            if keep_last and i == len(loc) - 1:
-                kept.append(item)
-            break
-        kept.append(item)
-    return tuple(kept)
 
 
 def describe_calibration(path: str | Path) -> str:

@@ -433,7 +433,7 @@ def _schema_error(
         parent = tuple(error["loc"][:-1])
         error = next((e for e in errors if e["type"] == "extra_forbidden" and tuple(e["loc"][:-1]) == parent), error)
     kind = error["type"]
-    loc = _present(tuple(error["loc"]), data, keep_last=kind == "missing")
+    loc = present_location(tuple(error["loc"]), data, keep_last=kind == "missing")
     path = format_loc(loc, data)
     if kind == "extra_forbidden":
         key = str(loc[-1])
@@ -450,7 +450,7 @@ def _schema_error(
     return ExperimentFileError(source, path, message)
 
 
-def _present(loc: tuple[Any, ...], data: Any, keep_last: bool) -> tuple[Any, ...]:
+def present_location(loc: tuple[Any, ...], data: Any, keep_last: bool) -> tuple[Any, ...]:
     """The part of a pydantic location that exists in the data (dropping union-member tags)."""
     node, kept = data, []
     for i, item in enumerate(loc):

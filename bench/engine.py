@@ -41,6 +41,7 @@ DEMO_WORLD = ROOT / "worlds" / "kestrel_quay" / "world.yaml"
 TARGET_SIMPY_RATIO = 20.0  # SimPy / Undertow at least this
 TARGET_BARE_RATIO = 2.0  # Undertow / bare replay at most this
 TARGET_PEAK_BYTES = 1 << 30  # 1 GB
+TARGET_ADAPTIVE_RATIO = 1.5  # a year with adaptive agents at most this times the static year
 
 
 # -- inputs shared by (b) and (c) --------------------------------------------------------------
@@ -75,6 +76,45 @@ def run_undertow(world, days: int, seed: int):
     t = time.perf_counter()
     model = simulate(world, days, seed)
     return time.perf_counter() - t, model
+
+
+def run_behaviour(world, behaviour: str, days: int, seed: int) -> tuple[float, int, float]:
+    """A year with one behaviour model: wall time, agent decisions, and seconds in the decision step.
+
+    The decision step is what agents do each day before the engine runs: the
+    behaviour's channels (``start_of_day``) and every attempting group's choice.
+    """
+    from abm.agents.concealment import ConcealmentAgent
+    from abm.model import PortModel
+    from abm.world import parse_world
+    from abm.world.paths import set_path
+
+    model = PortModel(parse_world(set_path(world.model_dump(mode="python"), "adversary.behaviour", behaviour)), seed=seed)
+    spent = [0.0, 0]
+    decide, channels = ConcealmentAgent.decide, model.behaviour.start_of_day
+
+    def timed_decide(agent):
+        t = time.perf_counter()
+        option = decide(agent)
+        spent[0] += time.perf_counter() - t
+        spent[1] += 1
+        return option
+
+    def timed_channels(*args):
+        t = time.perf_counter()
+        channels(*args)
+        spent[0] += time.perf_counter() - t
+
+    model.behaviour.start_of_day = timed_channels
+    ConcealmentAgent.decide = timed_decide
+    try:
+        t = time.perf_counter()
+        for _ in range(days):
+            model.step()
+        wall = time.perf_counter() - t
+    finally:
+        ConcealmentAgent.decide = decide
+    return wall, spent[1], spent[0]
 
 
 def peak_rss_kib() -> int:
@@ -396,6 +436,10 @@ def main(argv: list[str] | None = None) -> int:
         recursion_runs.append(in_recursion)
     del draws
 
+    # (d) static against adaptive behaviour on the same world and seed
+    behaviour_runs = {name: [run_behaviour(world, name, args.days, args.seed) for _ in range(max(args.repeat, 1))]
+                      for name in ("static", "adaptive", "reinforcement")}
+
     # (b) SimPy, once: it is the slow one
     cpu = time.process_time()
     simpy_wall, simpy_stats = (math.nan, None) if args.skip_simpy else run_simpy(layout, lanes_by_hour, arrivals, classes, args.seed)
@@ -421,6 +465,13 @@ def main(argv: list[str] | None = None) -> int:
           + " ".join(f"{x:.2f}" for x in bare_runs) + f"  (median of {runs})")
     print(f"{'    of which inside serve_fifo':34s}{statistics.median(recursion_runs):9.2f}")
     print()
+    print("(d) behaviour models, a year each (median of runs):")
+    print(f"  {'model':16s}{'wall s':>9s}{'decisions':>11s}{'decision step s':>17s}{'decisions/s':>13s}")
+    for name, results in behaviour_runs.items():
+        wall = med([r[0] for r in results])
+        decisions, spent = results[0][1], med([r[2] for r in results])
+        print(f"  {name:16s}{wall:9.2f}{decisions:11,d}{spent:17.3f}{decisions / spent if spent else math.nan:13,.0f}")
+    print()
     print("mean wait (min) / checks per station, a sanity check that the three run the same crossing:")
     print(f"  {'station':16s}{'Undertow':>20s}{'SimPy':>20s}{'bare replay':>20s}")
     for s, name in enumerate(world.station_names):
@@ -436,6 +487,10 @@ def main(argv: list[str] | None = None) -> int:
     r, best = undertow_wall / bare_wall, min(undertow_runs) / min(bare_runs)
     print(f"  Undertow / bare replay = {r:6.1f}x   target <= {TARGET_BARE_RATIO:.0f}x    {verdict(r <= TARGET_BARE_RATIO)}"
           f"   (fastest runs: {best:.1f}x; cpu time: {med(undertow_cpu) / med(bare_cpu):.1f}x)")
+    adaptive_wall = med([r[0] for r in behaviour_runs["adaptive"]])
+    static_wall = med([r[0] for r in behaviour_runs["static"]])
+    r = adaptive_wall / static_wall
+    print(f"  adaptive / static year  = {r:6.2f}x   target <= {TARGET_ADAPTIVE_RATIO:.1f}x  {verdict(r <= TARGET_ADAPTIVE_RATIO)}")
     grown = (mem["rss_peak_kib"] - mem["rss_before_kib"]) / 1024
     print(
         f"  peak memory, Undertow year = {peak / 2**20:,.0f} MiB  target < 1 GiB   {verdict(peak < TARGET_PEAK_BYTES)}\n"

@@ -168,7 +168,7 @@ def test_boxes_summary_sentences():
 def test_rejects_unusable_inputs():
     inputs, y = planted()
     with pytest.raises(DiscoveryInputError, match="port not numeric"):
-        prim(inputs.assign(port=["dover"] * len(inputs)), y)
+        prim(inputs.assign(port=["harbour_a"] * len(inputs)), y)
     with pytest.raises(DiscoveryInputError, match="non-negative"):
         prim(inputs, y - 0.5)
     with pytest.raises(DiscoveryInputError, match="alpha"):

@@ -100,7 +100,7 @@ from scipy import optimize, stats
 
 from ..calibration.config import schema_error
 from ..errors import InputError
-from ..experiment.executors import Executor, make_executor
+from ..experiment.executors import Executor, choose_executor, make_executor
 from ..experiment.single import SUMMARY_SOURCES, package_versions
 from ..experiment.worker import SUMMARY_FILE, RunTask, is_complete
 from ..records import METHODS_FILE, write_json, write_parquet
@@ -1068,11 +1068,7 @@ def optimise_command(
         return
     if out is None:
         raise InputError("--out: a policy search needs an output folder (or pass --check to only validate the file)")
-    executor = executor or ("dask" if scheduler else "serial")
-    if scheduler and executor != "dask":
-        raise InputError(f"--scheduler: connects to a Dask cluster; it needs --executor dask, not {executor}")
-    if workers and executor == "serial":
-        raise InputError("--workers: applies to --executor processes or dask")
+    executor = choose_executor(executor, workers, scheduler)
     plan = load_optimisation(path)
     from tqdm import tqdm
 

@@ -16,7 +16,7 @@ from pathlib import Path
 import pandas as pd
 
 from ..errors import InputError
-from ..experiment.executors import Executor, make_executor
+from ..experiment.executors import Executor, choose_executor, make_executor
 from ..records import write_parquet
 from .abc import REJECTION, REJECTION_PLAIN, ABCPosterior, PredictiveCheck, abc_smc, predictive_check, rejection_abc
 from .config import LATENT, LATENT_MEANING, CalibrationPlan, describe_calibration, load_calibration
@@ -214,11 +214,7 @@ def calibrate_command(
         return
     if out is None:
         raise InputError("--out: a calibration needs an output folder (or pass --check to only validate the file)")
-    executor = executor or ("dask" if scheduler else "serial")
-    if scheduler and executor != "dask":
-        raise InputError(f"--scheduler: connects to a Dask cluster; it needs --executor dask, not {executor}")
-    if workers and executor == "serial":
-        raise InputError("--workers: applies to --executor processes or dask")
+    executor = choose_executor(executor, workers, scheduler)
     result = calibrate(path, out, executor, workers, scheduler, resume, command)
     print(result.summary())
     print(f"\nTables, summary.txt and figures in {out}", file=sys.stderr)

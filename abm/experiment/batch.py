@@ -17,10 +17,9 @@ from typing import Any
 
 import pandas as pd
 
-from ..errors import InputError
 from .compare import compare_points, format_comparison
 from .design import Plan, RunSpec, load_plan
-from .executors import make_executor
+from .executors import choose_executor, make_executor
 from .store import FAILURES_TABLE, Store, SummaryExtension
 from .worker import RunTask
 
@@ -123,11 +122,7 @@ def batch_command(
     extensions: Sequence[SummaryExtension] = (),
 ) -> bool:
     """``undertow batch``: run the batch, print the comparison; False when some runs failed (noted on stderr)."""
-    executor = executor or ("dask" if scheduler else "serial")
-    if scheduler and executor != "dask":
-        raise InputError(f"--scheduler: connects to a Dask cluster; it needs --executor dask, not {executor}")
-    if workers and executor == "serial":
-        raise InputError("--workers: applies to --executor processes or dask")
+    executor = choose_executor(executor, workers, scheduler)
     result = run_batch(experiment, out, executor, workers, scheduler, resume, command, extensions=extensions)
     done = result.total - result.failed
     print(f"{result.plan.spec.name}: {done} of {result.total} runs complete ({result.ran} run now) -> {result.out}")

@@ -218,6 +218,16 @@ class DaskExecutor:
                 client.cancel(list(pending.futures))
 
 
+def choose_executor(executor: str | None, workers: int | None, scheduler: str | None) -> str:
+    """The executor the command-line options ask for (serial by default, Dask when a scheduler is given)."""
+    chosen = executor or ("dask" if scheduler else "serial")
+    if scheduler and chosen != "dask":
+        raise InputError(f"--scheduler: connects to a Dask cluster; it needs --executor dask, not {chosen}")
+    if workers and chosen == "serial":
+        raise InputError("--workers: applies to --executor processes or dask")
+    return chosen
+
+
 def make_executor(name: str, workers: int | None = None, scheduler: str | None = None) -> Executor:
     """The executor called ``name`` (one of :data:`EXECUTORS`)."""
     if name == "serial":

@@ -98,7 +98,7 @@ import pandas as pd
 from pydantic import Field, ValidationError
 from scipy import optimize, stats
 
-from ..calibration.config import schema_error
+from ..experiment.design import schema_error
 from ..errors import InputError
 from ..experiment.executors import Executor, choose_executor, make_executor
 from ..experiment.single import SUMMARY_SOURCES, package_versions

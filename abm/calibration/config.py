@@ -40,13 +40,12 @@ from pathlib import Path
 from typing import Annotated, Any, Literal
 
 import numpy as np
-from pydantic import BaseModel, Field, ValidationError
+from pydantic import Field, ValidationError
 
 from ..errors import InputError
 from ..world import WorldFileError, file_hash, parse_world, read_yaml_mapping
-from ..world.loader import allowed_keys, format_loc
 from ..world.paths import PathProblem, get_path, set_path
-from ..experiment.design import present_location
+from ..experiment.design import schema_error
 from ..world.schema import NumberOnly, Strict
 from .priors import DISTRIBUTIONS, Prior, PriorError, PriorSet
 from .summaries import DEFAULT_GROUPS, SUMMARY_GROUPS, SummarySpec, observed_span
@@ -384,34 +383,6 @@ def _observed_summaries(spec: Calibration, path: Path, summary_spec: SummarySpec
 
 
 # -- one-line schema errors ------------------------------------------------------------------
-
-
-def schema_error(
-    exc: ValidationError, data: Any, source: Path, model: type[BaseModel], error_type: type[WorldFileError]
-) -> WorldFileError:
-    """The first schema problem as one line naming its key (a misspelt key is reported as unknown, with a hint)."""
-    errors = exc.errors()
-    error = errors[0]
-    if error["type"] == "missing":
-        parent = tuple(error["loc"][:-1])
-        error = next((e for e in errors if e["type"] == "extra_forbidden" and tuple(e["loc"][:-1]) == parent), error)
-    kind = error["type"]
-    loc = present_location(tuple(error["loc"]), data, keep_last=kind in ("missing", "extra_forbidden"))
-    path = format_loc(loc, data)
-    if kind == "extra_forbidden":
-        key = str(loc[-1])
-        valid = allowed_keys(model, loc[:-1])
-        close = difflib.get_close_matches(key, valid, n=1, cutoff=0.5)
-        hint = f"; did you mean '{close[0]}'?" if close else (f"; valid keys: {', '.join(valid)}" if valid else "")
-        return error_type(source, path, f"unknown key '{key}'{hint}")
-    if kind == "missing":
-        return error_type(source, path, "required key is missing")
-    message = error["msg"].removeprefix("Value error, ")
-    given = error.get("input")
-    if " got " not in message and not isinstance(given, (dict, list)):
-        shown = json.dumps(given, default=str) if not isinstance(given, str) else f"'{given}'"
-        message = f"{message}, got {shown if len(shown) <= 40 else shown[:37] + '...'}"
-    return error_type(source, path, message)
 
 
 def describe_calibration(path: str | Path) -> str:

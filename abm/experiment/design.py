@@ -177,7 +177,7 @@ def load_plan(path: str | Path) -> Plan:
     try:
         spec = Experiment.model_validate(data)
     except ValidationError as exc:
-        raise _schema_error(exc, data, source) from None
+        raise schema_error(exc, data, source, Experiment, ExperimentFileError) from None
     _check_design_keys(spec, source)
     world_path = source.parent / spec.world
     if not world_path.is_file():
@@ -294,7 +294,7 @@ def _bundle_levels(factor: Factor, key: str, source: Path) -> list[Level]:
         try:
             bundle = Bundle.model_validate(raw)
         except ValidationError as exc:
-            problem = _schema_error(exc, raw, source, model=Bundle)
+            problem = schema_error(exc, raw, source, Bundle, ExperimentFileError)
             at = f"{where}.{problem.path}" if problem.path else where
             raise ExperimentFileError(source, at, problem.message) from None
         if any(level.label == bundle.name for level in levels):
@@ -422,10 +422,14 @@ def _factorial_comparators(factors: Sequence[PlannedFactor], combos: Sequence[tu
 # -- helpers --------------------------------------------------------------------------------
 
 
-def _schema_error(
-    exc: ValidationError, data: Any, source: Path, model: type[BaseModel] = Experiment
-) -> ExperimentFileError:
-    """The first schema problem as one line naming its key."""
+def schema_error(
+    exc: ValidationError, data: Any, source: Path, model: type[BaseModel], error_type: type[WorldFileError]
+) -> WorldFileError:
+    """The first schema problem of a project file as one line naming its key.
+
+    Shared by experiment, calibration and optimisation files; a misspelt key is
+    reported as unknown, with the closest valid key as a hint.
+    """
     errors = exc.errors()
     error = errors[0]
     if error["type"] == "missing":
@@ -433,21 +437,21 @@ def _schema_error(
         parent = tuple(error["loc"][:-1])
         error = next((e for e in errors if e["type"] == "extra_forbidden" and tuple(e["loc"][:-1]) == parent), error)
     kind = error["type"]
-    loc = present_location(tuple(error["loc"]), data, keep_last=kind == "missing")
+    loc = present_location(tuple(error["loc"]), data, keep_last=kind in ("missing", "extra_forbidden"))
     path = format_loc(loc, data)
     if kind == "extra_forbidden":
         key = str(loc[-1])
         valid = allowed_keys(model, loc[:-1])
         close = difflib.get_close_matches(key, valid, n=1, cutoff=0.5)
         hint = f"; did you mean '{close[0]}'?" if close else (f"; valid keys: {', '.join(valid)}" if valid else "")
-        return ExperimentFileError(source, path, f"unknown key '{key}'{hint}")
+        return error_type(source, path, f"unknown key '{key}'{hint}")
     if kind == "missing":
-        return ExperimentFileError(source, path, "required key is missing")
+        return error_type(source, path, "required key is missing")
     message = error["msg"].removeprefix("Value error, ")
     given = error.get("input")
     if " got " not in message and not isinstance(given, (dict, list)):
         message = f"{message}, got {_shown(given)}"
-    return ExperimentFileError(source, path, message)
+    return error_type(source, path, message)
 
 
 def present_location(loc: tuple[Any, ...], data: Any, keep_last: bool) -> tuple[Any, ...]:

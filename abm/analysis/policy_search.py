@@ -98,6 +98,7 @@ import pandas as pd
 from pydantic import Field, ValidationError
 from scipy import optimize, stats
 
+from ..experiment.compare import mean_interval
 from ..experiment.design import schema_error
 from ..errors import InputError
 from ..experiment.executors import Executor, choose_executor, make_executor
@@ -535,17 +536,6 @@ def _finalists(history: pd.DataFrame, problem: Problem, top: int) -> list[str]:
     return chosen
 
 
-def _t_interval(values: np.ndarray, level: float) -> tuple[float, float, float]:
-    values = values[np.isfinite(values)]
-    if values.size == 0:
-        return math.nan, math.nan, math.nan
-    mean = float(values.mean())
-    if values.size < 2:
-        return mean, math.nan, math.nan
-    half = float(stats.t.ppf(0.5 + level / 2, values.size - 1) * values.std(ddof=1) / math.sqrt(values.size))
-    return mean, mean - half, mean + half
-
-
 def _select(
     evaluate: Evaluator,
     finalists: Sequence[str],
@@ -567,7 +557,7 @@ def _select(
         row: dict[str, Any] = {"candidate": label, "named": label in named, "replications": len(seeds)}
         row.update({f"set:{path}": value for path, value in changes[k].items()})
         for figure in figures:
-            row[f"{figure}_mean"], row[f"{figure}_low"], row[f"{figure}_high"] = _t_interval(
+            row[f"{figure}_mean"], row[f"{figure}_low"], row[f"{figure}_high"] = mean_interval(
                 values[k, :, index[figure]], settings.level
             )
         broken = []
@@ -595,7 +585,7 @@ def _select(
             diffs.append(0.0), lows.append(0.0), highs.append(0.0), pvalues.append(math.nan), verdicts.append("best")
             continue
         d = (loss[k] - loss[incumbent]) * problem.sign  # the candidate minus the incumbent, in the objective's units
-        mean, low, high = _t_interval(d, settings.level)
+        mean, low, high = mean_interval(d, settings.level)
         p = _paired_p(d)
         if p < settings.alpha / tests:
             verdict = "worse" if mean * problem.sign > 0 else "better"

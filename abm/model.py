@@ -56,6 +56,7 @@ class PortModel(mesa.Model):
         self.arrivals_rng = np.random.default_rng(arrivals_seq)
         self.day = 0
         self.policy_name = "as rostered"
+        self._in_system = 0
         self._due = {iv.day: i for i, iv in enumerate(world.interventions)}
         for team in world.roster.teams:
             InspectionTeam(self, team)
@@ -66,7 +67,8 @@ class PortModel(mesa.Model):
         return self.agents.select(agent_type=ConcealmentAgent)
 
     def persons_in_system(self) -> int:
-        return int(sum(self.concealers.get("size")))
+        """People in groups still in the system (kept as groups arrive and leave)."""
+        return self._in_system
 
     def apply_policy(self, world: World, name: str) -> None:
         """Switch to a changed world (same geography and option space) from today on."""
@@ -89,6 +91,7 @@ class PortModel(mesa.Model):
         for size in draw_group_sizes(adversary, n, self.arrivals_rng):
             agent = ConcealmentAgent(self, int(size), day)
             self.records.arrival(agent.unique_id, day, agent.size)
+            self._in_system += agent.size
 
     def step(self) -> None:
         """Simulate one operating day."""
@@ -99,8 +102,11 @@ class PortModel(mesa.Model):
         self._new_groups(day)
         staffing = self.command.staffing(self, day)
         self.behaviour.start_of_day(day, staffing, self.behaviour_rng)
-        attempting = list(self.concealers.select(lambda a: a.will_attempt(day)))
-        options = np.array([agent.decide() for agent in attempting], dtype=np.int64)
+        groups = self.agents_by_type.get(ConcealmentAgent, ())
+        attempting = [agent for agent in groups if agent.will_attempt(day)]
+        options = self.behaviour.choose(attempting, self.rng).astype(np.int64)
+        for agent, option in zip(attempting, options, strict=True):
+            agent.option = int(option)
         point, band, vclass = self.options.unravel(options)
         sizes = np.array([agent.size for agent in attempting], dtype=np.int64)
         attempts = Attempts(point.astype(np.int64), band.astype(np.int64), vclass.astype(np.int64), sizes)
@@ -119,6 +125,7 @@ class PortModel(mesa.Model):
             if agent.state is not State.WAITING:
                 self.records.exit(agent.unique_id, day, agent.state.value, agent.size, agent.encounters)
                 self.behaviour.agent_left(agent)
+                self._in_system -= agent.size
                 agent.remove()
         self.records.add_day(
             result,

@@ -165,6 +165,7 @@ class RecordBook:
         for s, w in result.queue_wait.items():
             self._waits.setdefault(s, []).append(w.astype(np.float32))
         tip = result.time_in_port[np.isfinite(result.time_in_port)]
+        p50, p95 = (float(q) for q in np.percentile(tip, [50, 95])) if tip.size else (float("nan"), float("nan"))
 
         def persons_with(name: str) -> int:
             return int(persons[outcome == name].sum())
@@ -179,8 +180,8 @@ class RecordBook:
                 "detections": persons_with("detected"),
                 "interdictions": persons_with("interdicted"),
                 "false_alarms": int(fa["minute"].shape[0]),
-                "time_in_port_p50_min": float(np.percentile(tip, 50)) if tip.size else float("nan"),
-                "time_in_port_p95_min": float(np.percentile(tip, 95)) if tip.size else float("nan"),
+                "time_in_port_p50_min": p50,
+                "time_in_port_p95_min": p95,
                 "missed_departure_share": float(result.missed.mean()) if result.missed.size else 0.0,
                 "staff_hours": staff_hours,
                 "truth_attempts": int(persons.sum()),

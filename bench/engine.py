@@ -84,21 +84,20 @@ def run_behaviour(world, behaviour: str, days: int, seed: int) -> tuple[float, i
     The decision step is what agents do each day before the engine runs: the
     behaviour's channels (``start_of_day``) and every attempting group's choice.
     """
-    from abm.agents.concealment import ConcealmentAgent
     from abm.model import PortModel
     from abm.world import parse_world
     from abm.world.paths import set_path
 
     model = PortModel(parse_world(set_path(world.model_dump(mode="python"), "adversary.behaviour", behaviour)), seed=seed)
     spent = [0.0, 0]
-    decide, channels = ConcealmentAgent.decide, model.behaviour.start_of_day
+    choose, channels = model.behaviour.choose, model.behaviour.start_of_day
 
-    def timed_decide(agent):
+    def timed_choose(agents, rng):
         t = time.perf_counter()
-        option = decide(agent)
+        options = choose(agents, rng)
         spent[0] += time.perf_counter() - t
-        spent[1] += 1
-        return option
+        spent[1] += len(agents)
+        return options
 
     def timed_channels(*args):
         t = time.perf_counter()
@@ -106,15 +105,11 @@ def run_behaviour(world, behaviour: str, days: int, seed: int) -> tuple[float, i
         spent[0] += time.perf_counter() - t
 
     model.behaviour.start_of_day = timed_channels
-    ConcealmentAgent.decide = timed_decide
-    try:
-        t = time.perf_counter()
-        for _ in range(days):
-            model.step()
-        wall = time.perf_counter() - t
-    finally:
-        ConcealmentAgent.decide = decide
-    return wall, spent[1], spent[0]
+    model.behaviour.choose = timed_choose
+    t = time.perf_counter()
+    for _ in range(days):
+        model.step()
+    return time.perf_counter() - t, spent[1], spent[0]
 
 
 def peak_rss_kib() -> int:

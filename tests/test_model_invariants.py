@@ -284,14 +284,14 @@ def queue_log() -> list[dict[str, np.ndarray]]:
     mp = pytest.MonkeyPatch()
     import abm.port.day as day_module
 
-    original = day_module.serve_fifo
+    original = day_module.check_station
 
-    def recording(arrival, *args, **state):
-        start, end, checked, busy = original(arrival, *args, **state)
-        calls.append({"arrival": arrival.copy(), "start": start.copy(), "end": end.copy(), "checked": checked.copy()})
-        return start, end, checked, busy
+    def recording(*args):
+        done = original(*args)
+        calls.append({"arrival": done.arrival, "start": done.start, "end": done.end, "checked": done.checked})
+        return done
 
-    mp.setattr(day_module, "serve_fifo", recording)
+    mp.setattr(day_module, "check_station", recording)
     try:
         run_capturing(parse_world(demo_data(), "demo"), 10, seed=5)
     finally:

@@ -21,6 +21,7 @@ behaviour object; per-agent memory lives on the agent (``agent.memory``).
 from __future__ import annotations
 
 from collections import defaultdict
+from collections.abc import Sequence
 from dataclasses import dataclass
 from typing import TYPE_CHECKING, Protocol
 
@@ -41,19 +42,22 @@ def logit_probabilities(utility: np.ndarray, rationality: float, valid: np.ndarr
     """Quantal-response choice probabilities over valid options, mixed with uniform exploration.
 
     P_j = (1 - e) * exp(lambda u_j) / sum_k exp(lambda u_k) + e / K over the K valid options.
+    ``utility`` and ``valid`` may hold one row per chooser (options on the last axis).
     """
     z = np.where(valid, rationality * utility, -np.inf)
-    z = z - z[valid].max()
+    z = z - np.max(z, axis=-1, keepdims=True, where=valid, initial=-np.inf)
     weights = np.exp(z)
-    logit = weights / weights.sum()
-    uniform = valid / valid.sum()
+    logit = weights / weights.sum(axis=-1, keepdims=True)
+    uniform = valid / valid.sum(axis=-1, keepdims=True)
     return (1.0 - exploration) * logit + exploration * uniform
 
 
-def _draw(probabilities: np.ndarray, rng: np.random.Generator) -> int:
-    """One option by inverse CDF: a single uniform per choice."""
-    index = int(np.searchsorted(np.cumsum(probabilities), rng.random() * probabilities.sum(), side="right"))
-    return min(index, probabilities.size - 1)
+def _draw(probabilities: np.ndarray, rng: np.random.Generator) -> np.ndarray:
+    """One option per row of ``probabilities`` (choosers x options) by inverse CDF: one uniform per choice."""
+    scaled = rng.random(probabilities.shape[0]) * probabilities.sum(axis=1)
+    # cumulative sums are non-decreasing: counting those <= u is searchsorted(side="right")
+    index = (np.cumsum(probabilities, axis=1) <= scaled[:, None]).sum(axis=1)
+    return np.minimum(index, probabilities.shape[1] - 1)
 
 
 class Behaviour(Protocol):
@@ -70,8 +74,8 @@ class Behaviour(Protocol):
     def start_of_day(self, day: int, staffing: Staffing, rng: np.random.Generator) -> None:
         """Deliver what agents learn before they decide today."""
 
-    def choose(self, agent: "ConcealmentAgent", rng: np.random.Generator) -> int:
-        """Flat option index for the agent's attempt today."""
+    def choose(self, agents: Sequence["ConcealmentAgent"], rng: np.random.Generator) -> np.ndarray:
+        """Flat option index of each agent's attempt today (one uniform from ``rng`` per agent, in order)."""
 
     def learn(self, agent: "ConcealmentAgent", option: int, outcome: str, day: int) -> None:
         """Take in the outcome of the agent's own attempt."""
@@ -118,8 +122,8 @@ class StaticBehaviour(_Quiet):
         flat = (point[:, None, None] * band[None, :, None] * vclass[None, None, :]).reshape(options.size)
         self.probabilities = flat / flat.sum()
 
-    def choose(self, agent: "ConcealmentAgent", rng: np.random.Generator) -> int:
-        return _draw(self.probabilities, rng)
+    def choose(self, agents: Sequence["ConcealmentAgent"], rng: np.random.Generator) -> np.ndarray:
+        return _draw(np.broadcast_to(self.probabilities, (len(agents), self.probabilities.size)), rng)
 
 
 @dataclass
@@ -213,14 +217,20 @@ class AdaptiveBehaviour:
             seen = patrol + self.params.presence_noise * rng.standard_normal(patrol.shape)
             self._presence = self.params.presence_weight * np.clip(seen, 0.0, 1.0)
 
-    def choose(self, agent: "ConcealmentAgent", rng: np.random.Generator) -> int:
-        risk = np.minimum(self.perceived_risk(agent, agent.model.day) + self._presence, 1.0)
+    def choose(self, agents: Sequence["ConcealmentAgent"], rng: np.random.Generator) -> np.ndarray:
+        if not agents:
+            return np.zeros(0, dtype=np.int64)
+        day = agents[0].model.day
+        risk = np.minimum(np.array([self.perceived_risk(agent, day) for agent in agents]) + self._presence, 1.0)
         utility = self.base_utility - self.params.detection_cost * risk
-        valid = self.options.valid_for(agent.size)
-        if not valid.any():
-            valid = self.options.valid  # no class fits the group: it still tries, and finds no vehicle
+        valid = np.array([self._fits(agent.size) for agent in agents])
         probabilities = logit_probabilities(utility, self.params.rationality, valid, self.params.exploration)
         return _draw(probabilities, rng)
+
+    def _fits(self, size: int) -> np.ndarray:
+        valid = self.options.valid_for(size)
+        # no class fits the group: it still tries, and finds no vehicle
+        return valid if valid.any() else self.options.valid
 
     def learn(self, agent: "ConcealmentAgent", option: int, outcome: str, day: int) -> None:
         if outcome == "no_vehicle":
@@ -261,9 +271,10 @@ class ReinforcementBehaviour(_Quiet):
         self.params = world.adversary.reinforcement
         self.options = options
 
-    def choose(self, agent: "ConcealmentAgent", rng: np.random.Generator) -> int:
-        fits = self.propensity * self.options.valid_for(agent.size)
-        return _draw(fits if fits.sum() > 0 else self.propensity, rng)
+    def choose(self, agents: Sequence["ConcealmentAgent"], rng: np.random.Generator) -> np.ndarray:
+        rows = [self.propensity * self.options.valid_for(agent.size) for agent in agents]
+        weights = np.array([fits if fits.sum() > 0 else self.propensity for fits in rows]).reshape(len(agents), -1)
+        return _draw(weights, rng)
 
     def end_of_day(self, day: int, options: np.ndarray, outcomes: list[str], persons: np.ndarray) -> None:
         p = self.params

@@ -57,11 +57,6 @@ class ConcealmentAgent(mesa.Agent):
             return False
         return bool(self.model.rng.random() < self.model.world.adversary.attempt_chance)
 
-    def decide(self) -> int:
-        """Choose today's option (boarding point x band x class)."""
-        self.option = self.model.behaviour.choose(self, self.model.rng)
-        return self.option
-
     def identify(self, chance: float) -> list[str | None]:
         """At an encounter each not-yet-identified person is identified with ``chance``."""
         rng = self.model.rng

@@ -47,7 +47,9 @@ import numpy as np
 from ..errors import InputError
 from .checks import StationDraws, draw_for_station
 from .layout import DEPARTURE, MONTH_OF_YEAR_DAY, RULES, Layout
-from .queues import board_sailings, serve_fifo
+from .boarding import fitting_vehicles
+from .queues import board_sailings
+from .station import METHOD_COUNTERS, MethodTables, StationPass, StationRules, VehicleState, check_station
 from .traffic import MINUTES_PER_DAY, DayTraffic, generate_traffic
 
 SAILING_HORIZON_DAYS = 7  # sailings are looked up this many days ahead of the arrival day
@@ -154,6 +156,7 @@ class DayEngine:
         self.worked = [np.zeros(int(lanes)) for lanes in layout.station_lanes]  # minutes since each lane's rest
         self.floor = [np.full(1, -np.inf) for _ in layout.station_lanes]  # each station's last check start (FIFO)
         self.sailing_left: dict[int, np.ndarray] = {}
+        self._tables: dict[int, MethodTables] = {}
 
     def change_layout(self, layout: Layout) -> None:
         """Take a changed policy (same stations and points); lanes keep their state, new lanes start free."""
@@ -167,12 +170,9 @@ class DayEngine:
                 self.free[s] = free[: int(lanes)]
                 self.worked[s] = worked[: int(lanes)]
         self.layout = layout
+        self._tables = {}
 
     # -- helpers -------------------------------------------------------------------------
-    def _band_at(self, minutes: np.ndarray) -> np.ndarray:
-        hour = (np.floor(minutes / 60.0).astype(np.int64)) % 24
-        return self.layout.band_of_hour[hour]
-
     def _sailing_window(self, day: int) -> tuple[np.ndarray, np.ndarray, list[tuple[int, int, int]]]:
         """Absolute sailing times and remaining capacity from ``day`` over the horizon."""
         lay = self.layout
@@ -187,6 +187,22 @@ class DayEngine:
             offset += lay.sailing_minute.shape[0]
         self.sailing_left.pop(day - 1, None)
         return np.concatenate(times), np.concatenate(left), spans
+
+    def _tables_for(self, weather: int) -> MethodTables:
+        """The methods' factors in a weather state (built once per state and layout)."""
+        if weather not in self._tables:
+            lay = self.layout
+            self._tables[weather] = MethodTables(
+                class_risk=lay.class_risk,
+                service_factor=lay.method_service_factor,
+                detect=lay.method_detect,
+                cargo_detect=lay.method_cargo_detect,
+                depth_detect=lay.method_depth_detect,
+                fatigue_decay=lay.method_fatigue_decay,
+                false_alarm=np.ascontiguousarray(lay.method_false_alarm_weather[:, weather]),
+                cargo_false=lay.method_cargo_false,
+            )
+        return self._tables[weather]
 
     def _weather(self, day: int) -> int:
         """The day's weather state: one uniform a day against the month's cumulative shares."""
@@ -232,109 +248,75 @@ class DayEngine:
         )
         self._interdict(day, attempts, staffing, result)
 
-        aboard = np.zeros(n, dtype=np.int64)  # people aboard and not yet found
-        depth = np.zeros(n, dtype=np.int64)  # deepest depth level of those people
-        ready = traffic.arrival.copy()  # minute the vehicle leaves its last position
-        referred = np.full(n, -1, dtype=np.int64)  # secondary station a vehicle is heading to
-        alarm_station = np.full(n, -1, dtype=np.int64)
-        alarm_method = np.full(n, -1, dtype=np.int64)
-        alarm_hit = np.zeros(n, dtype=bool)
-        check_parts: list[tuple[np.ndarray, ...]] = []
+        vehicles = VehicleState(
+            vehicle_class=cls,
+            cargo=cargo,
+            aboard=np.zeros(n, dtype=np.int64),
+            depth=np.zeros(n, dtype=np.int64),
+            ready=traffic.arrival.copy(),
+            referred=np.full(n, -1, dtype=np.int64),
+            alarm_station=np.full(n, -1, dtype=np.int64),
+            alarm_method=np.full(n, -1, dtype=np.int64),
+            alarm_hit=np.zeros(n, dtype=bool),
+        )
+        tables = self._tables_for(weather)
+        counters = np.zeros((len(METHOD_COUNTERS), lay.method_dist.shape[0] * len(lay.cargo_names)))
+        passes: list[StationPass] = []
         false_parts: list[tuple[np.ndarray, ...]] = []
-        method_parts: list[tuple[np.ndarray, ...]] = []
         waits: dict[int, np.ndarray] = {}
 
         for s in range(lay.station_method.shape[0]):
             secondary = bool(lay.station_secondary[s])
-            rows = np.flatnonzero(referred == s) if secondary else np.flatnonzero(referred == -1)
-            arrive = ready[rows] + lay.station_travel[s]
+            rows = np.flatnonzero(vehicles.referred == s) if secondary else np.flatnonzero(vehicles.referred == -1)
+            arrive = vehicles.ready[rows] + lay.station_travel[s]
             if not secondary:
-                self._board(attempts, result, np.flatnonzero(lay.point_station == s), rows, arrive, cls, aboard, depth, traffic)
-            order = np.argsort(arrive, kind="stable")
-            rows, arrive = rows[order], arrive[order]
+                self._board(attempts, result, s, rows, arrive, vehicles, traffic)
             d = draws[s]
-            hour = (np.floor((arrive - origin) / 60.0).astype(np.int64)).clip(0) % 24
-            rule = RULES[lay.station_rule[s]]
-            if secondary:
-                p_normal = np.ones(rows.shape[0])
-            elif rule == "targeted":
-                score = lay.class_risk[cls[rows]] + lay.station_noise_sd[s] * d.risk_noise[rows]
-                p_normal = (score > lay.station_threshold[s]).astype(float)
-            else:
-                p_normal = lay.station_fraction[s, hour, cls[rows]]
-            queue_aware = rule == "queue_aware" and not secondary
-            p_busy = lay.station_busy_fraction[s, hour, cls[rows]] if queue_aware else p_normal
             main, busy_method, service, busy_service = self._methods_today(s, suspended, d)
-            if main < 0:  # suspended without a replacement: every vehicle passes unchecked
+            stands_down = main < 0  # suspended without a replacement: every vehicle passes unchecked
+            if stands_down:
                 main = busy_method = int(lay.station_method[s])
-                p_normal = p_busy = np.zeros(rows.shape[0])
-            staffed = np.minimum(staffing.lanes[s], lay.station_lanes[s]).astype(np.int64)
-            queue_args = (
-                arrive,
-                service[rows] * lay.method_service_factor[main, cls[rows], cargo[rows]],
-                busy_service[rows] * lay.method_service_factor[busy_method, cls[rows], cargo[rows]],
-                d.u_select[rows],
-                p_normal,
-                p_busy,
-                int(lay.station_queue_threshold[s]) if queue_aware else 0,
-                staffed,
-                origin,
-                self.free[s],
+            rests = np.isfinite(lay.method_work_minutes[main])
+            rules = StationRules(
+                station=s,
+                rule=int(lay.station_rule[s]),
+                secondary=secondary,
+                stands_down=stands_down,
+                threshold=float(lay.station_threshold[s]),
+                noise_sd=float(lay.station_noise_sd[s]),
+                fraction=lay.station_fraction[s],
+                busy_fraction=lay.station_busy_fraction[s],
+                queue_threshold=int(lay.station_queue_threshold[s]),
+                method=main,
+                busy_method=busy_method,
+                refer=int(lay.station_refer[s]),
+                work_limit=float(lay.method_work_minutes[main]) if rests else np.inf,
+                rest_minutes=float(lay.method_rest_minutes[main]) if rests else np.inf,
             )
-            worked = np.zeros(rows.shape[0])  # minutes the lane had worked when each check started
-            if np.isfinite(lay.method_work_minutes[main]):
-                rest = (self.worked[s], lay.method_work_minutes[main], lay.method_rest_minutes[main], worked)
-                start, end, checked, busy = serve_fifo(*queue_args, *rest, floor=self.floor[s])
-            else:
-                start, end, checked, busy = serve_fifo(*queue_args, floor=self.floor[s])
-            if np.isinf(start).any():
+            staffed = np.minimum(staffing.lanes[s], lay.station_lanes[s]).astype(np.int64)
+            # lanes of a station whose method has no rest rule do not track work
+            worked = self.worked[s] if rests else np.zeros(self.free[s].shape[0])
+            done = check_station(
+                rows, arrive, vehicles, service, busy_service, d.u_select, d.risk_noise, d.u_detect, d.u_false,
+                rules, tables, staffed, origin, self.free[s], worked, self.floor[s], counters, lay.station_method.shape[0],
+            )  # fmt: skip
+            if done.unservable:
                 name = lay.world.stations[s].name
                 raise StationUnservable(f"station '{name}' selected a vehicle on day {day} that no staffed lane can check")
-            method = np.where(busy, busy_method, main)
-            vcargo = cargo[rows]
-            occupied = aboard[rows] > 0
-            p_detect = (
-                lay.method_detect[method, cls[rows]]
-                * lay.method_cargo_detect[method, vcargo]
-                * lay.method_depth_detect[method, depth[rows]]
-                * np.exp(-worked / lay.method_fatigue_decay[method])
-            )
-            hit = checked & occupied & (d.u_detect[rows] < np.minimum(p_detect, 1.0))
-            if secondary:
-                alarm = hit
-                # nothing found after the alarm that sent the vehicle here: the agency logs a false alarm
-                empty = ~hit & ~alarm_hit[rows]
-                false_parts.append(
-                    (end[empty], alarm_station[rows][empty], alarm_method[rows][empty], cls[rows][empty], vcargo[empty])
-                )
-                referred[rows] = -1
-            else:
-                p_false = lay.method_false_alarm_weather[method, weather] * lay.method_cargo_false[method, vcargo]
-                alarm = checked & (hit | (d.u_false[rows] < np.minimum(p_false, 1.0)))
-                target = lay.station_refer[s]
-                if target >= 0:
-                    sent = rows[alarm]
-                    referred[sent] = target
-                    alarm_station[sent], alarm_method[sent], alarm_hit[sent] = s, method[alarm], hit[alarm]
+            if done.hit.any():
+                self._found(result, done.rows[done.hit], s, done.method[done.hit], done.end[done.hit])
+            if done.logged_false.any():
+                empty, rows_empty = done.logged_false, done.rows[done.logged_false]
+                if secondary:
+                    station_of, method_of = vehicles.alarm_station[rows_empty], vehicles.alarm_method[rows_empty]
                 else:
-                    empty = alarm & ~hit
-                    false_parts.append(
-                        (end[empty], np.full(int(empty.sum()), s), method[empty], cls[rows][empty], vcargo[empty])
-                    )
-            minutes = end - start
-            method_parts.append(
-                (method[checked], vcargo[checked], alarm[checked], occupied[checked], hit[checked], minutes[checked])
-            )
-            self._found(result, rows[hit], s, method[hit], end[hit], aboard, depth)
-            ready[rows] = end
-            # rows are keyed by arrival at the station, so vehicles passing per hour do not depend on policy
-            check_parts.append((arrive, np.full(rows.shape[0], s), cls[rows], method, checked, alarm))
-            waits[s] = (start - arrive)[checked]
+                    station_of, method_of = np.full(rows_empty.shape[0], s), done.method[empty]
+                false_parts.append((done.end[empty], station_of, method_of, cls[rows_empty], cargo[rows_empty]))
+            passes.append(done)
+            waits[s] = (done.start - done.arrival)[done.checked]
 
-        departure_points = np.flatnonzero(lay.point_station == DEPARTURE)
-        every = np.arange(n)
-        self._board(attempts, result, departure_points, every, ready, cls, aboard, depth, traffic)
-        leave, missed = self._depart(day, traffic, ready)
+        self._board(attempts, result, DEPARTURE, np.arange(n), vehicles.ready, vehicles, traffic)
+        leave, missed = self._depart(day, traffic, vehicles.ready)
         crossed = (result.outcome == PENDING) & (result.vehicle >= 0)
         result.outcome[crossed] = CROSSED
         result.minute[crossed] = leave[result.vehicle[crossed]]
@@ -342,12 +324,12 @@ class DayEngine:
             day=day,
             traffic=traffic,
             attempts=result,
-            check_rows=_aggregate_checks(check_parts, lay),
+            check_rows=_aggregate_checks(passes, lay),
             false_alarms=_false_alarm_rows(false_parts),
             time_in_port=leave - traffic.arrival,
             missed=missed,
             weather=lay.weather_names[weather],
-            method_rows=_method_rows(method_parts, false_parts, lay),
+            method_rows=_method_rows(counters, lay),
             queue_wait=waits,
         )
 
@@ -369,15 +351,13 @@ class DayEngine:
         self,
         attempts: Attempts,
         result: AttemptResult,
-        points: np.ndarray,
+        before: int,
         rows: np.ndarray,
         next_arrival: np.ndarray,
-        cls: np.ndarray,
-        aboard: np.ndarray,
-        depth: np.ndarray,
+        vehicles: VehicleState,
         traffic: DayTraffic,
     ) -> None:
-        """Board pending attempts at ``points`` onto vehicles ``rows`` passing them.
+        """Board pending attempts at the points before station ``before`` (or DEPARTURE) onto vehicles ``rows``.
 
         A vehicle is at a point ``lead`` minutes before it reaches the next station
         (``next_arrival``); it must stop there, be of the chosen class, pass in the
@@ -385,18 +365,18 @@ class DayEngine:
         The vehicle's depth becomes the deeper of its own and the group's.
         """
         lay = self.layout
-        todo = np.flatnonzero((result.outcome == PENDING) & np.isin(attempts.point, points))
+        todo = np.flatnonzero((result.outcome == PENDING) & (lay.point_station[attempts.point] == before))
         if todo.shape[0] == 0:
             return
-        vclass = cls[rows]
+        aboard, depth = vehicles.aboard, vehicles.depth
+        vclass = vehicles.vehicle_class[rows]
         room = lay.class_capacity[vclass] - aboard[rows]  # kept in step with ``aboard`` below
         for p in np.unique(attempts.point[todo]):
             at_point = next_arrival - lay.point_lead[p]
-            band = self._band_at(at_point)
             stops = traffic.stops[p, rows]
             for a in todo[attempts.point[todo] == p]:
-                fits = stops & (vclass == attempts.vehicle_class[a]) & (band == attempts.band[a]) & (room >= attempts.size[a])
-                choices = np.flatnonzero(fits)
+                want = (int(attempts.vehicle_class[a]), int(attempts.band[a]), int(attempts.size[a]))
+                choices = fitting_vehicles(stops, vclass, at_point, room, lay.band_of_hour, *want)
                 if choices.shape[0] == 0:
                     result.outcome[a] = NO_VEHICLE
                     continue
@@ -414,22 +394,17 @@ class DayEngine:
         station: int,
         methods: np.ndarray,
         when: np.ndarray,
-        aboard: np.ndarray,
-        depth: np.ndarray,
     ) -> None:
-        """Everyone aboard a vehicle whose check found people is found (detected)."""
-        if vehicles.shape[0] == 0:
-            return
-        pending = (result.outcome == PENDING) & np.isin(result.vehicle, vehicles)
+        """Every attempt aboard a vehicle whose check found people is detected there (the station freed the vehicle)."""
         lookup = {int(v): i for i, v in enumerate(vehicles)}
-        for a in np.flatnonzero(pending):
-            i = lookup[int(result.vehicle[a])]
+        for a in np.flatnonzero(result.outcome == PENDING):
+            i = lookup.get(int(result.vehicle[a]))
+            if i is None:
+                continue
             result.outcome[a] = DETECTED
             result.station[a] = station
             result.method[a] = methods[i]
             result.minute[a] = when[i]
-        aboard[vehicles] = 0
-        depth[vehicles] = 0
 
     def _depart(self, day: int, traffic: DayTraffic, ready: np.ndarray) -> tuple[np.ndarray, np.ndarray]:
         """Minute each vehicle leaves the port and whether it missed its booked sailing."""
@@ -449,20 +424,18 @@ class DayEngine:
         return leave, missed
 
 
-def _aggregate_checks(parts: list[tuple[np.ndarray, ...]], lay: Layout) -> dict[str, np.ndarray]:
-    """Sum vehicles, checks and alarms per calendar day, hour, station, class and method."""
-    when = np.concatenate([p[0] for p in parts])
-    station = np.concatenate([p[1] for p in parts])
-    vclass = np.concatenate([p[2] for p in parts])
-    method = np.concatenate([p[3] for p in parts])
-    checked = np.concatenate([p[4] for p in parts])
-    alarm = np.concatenate([p[5] for p in parts])
-    cal_day = np.floor(when / MINUTES_PER_DAY).astype(np.int64)
-    hour = (np.floor(when / 60.0).astype(np.int64)) % 24
+def _aggregate_checks(passes: list[StationPass], lay: Layout) -> dict[str, np.ndarray]:
+    """Sum vehicles, checks and alarms per calendar day, hour, station, class and method (keys ascending)."""
+    key = np.concatenate([p.key for p in passes])
+    checked = np.concatenate([p.checked for p in passes])
+    alarm = np.concatenate([p.alarm for p in passes])
+    # the keys of a day span a few thousand values: counting over that span beats sorting them
+    low = int(key.min()) if key.size else 0
+    index = key - low
+    vehicles = np.bincount(index)
+    present = np.flatnonzero(vehicles)
     n_s, n_c, n_m = lay.station_method.shape[0], lay.n_classes, lay.method_dist.shape[0]
-    key = (((cal_day * 24 + hour) * n_s + station) * n_c + vclass) * n_m + method
-    uniq, inverse = np.unique(key, return_inverse=True)
-    rest, m = np.divmod(uniq, n_m)
+    rest, m = np.divmod(present + low, n_m)
     rest, c = np.divmod(rest, n_c)
     rest, s = np.divmod(rest, n_s)
     d, h = np.divmod(rest, 24)
@@ -472,9 +445,9 @@ def _aggregate_checks(parts: list[tuple[np.ndarray, ...]], lay: Layout) -> dict[
         "station": s,
         "vehicle_class": c,
         "method": m,
-        "vehicles": np.bincount(inverse, minlength=uniq.shape[0]),
-        "checks": np.bincount(inverse, weights=checked, minlength=uniq.shape[0]).astype(np.int64),
-        "alarms": np.bincount(inverse, weights=alarm, minlength=uniq.shape[0]).astype(np.int64),
+        "vehicles": vehicles[present],
+        "checks": np.bincount(index[checked], minlength=vehicles.shape[0])[present],
+        "alarms": np.bincount(index[alarm], minlength=vehicles.shape[0])[present],
     }
 
 
@@ -492,36 +465,19 @@ def _false_alarm_rows(parts: list[tuple[np.ndarray, ...]]) -> dict[str, np.ndarr
     }
 
 
-def _method_rows(
-    parts: list[tuple[np.ndarray, ...]], false_parts: list[tuple[np.ndarray, ...]], lay: Layout
-) -> dict[str, np.ndarray]:
-    """Sum the day's checks per method and cargo type (every pair, so a method that stood down shows zero).
+def _method_rows(counters: np.ndarray, lay: Layout) -> dict[str, np.ndarray]:
+    """The day's checks per method and cargo type (every pair, so a method that stood down shows zero).
 
-    ``false_alarms`` are the alarms the agency logged as false (nothing found
-    after them), by the method that raised them; ``truth_false_alarms`` are
-    alarms on vehicles with nobody aboard, ``truth_true_alarms`` on vehicles
-    with people aboard, ``truth_found`` checks that found them.
+    ``counters`` is what the stations accumulated (rows named by
+    :data:`abm.port.station.METHOD_COUNTERS`): ``false_alarms`` are the alarms
+    the agency logged as false (nothing found after them), by the method that
+    raised them; ``truth_false_alarms`` are alarms on vehicles with nobody
+    aboard, ``truth_true_alarms`` on vehicles with people aboard,
+    ``truth_found`` checks that found them.
     """
     n_k = len(lay.cargo_names)
-    size = lay.method_dist.shape[0] * n_k
-
-    def count(key: np.ndarray, weights: np.ndarray | None = None) -> np.ndarray:
-        return np.bincount(key, weights=weights, minlength=size)
-
-    method = np.concatenate([p[0] for p in parts])
-    key = method * n_k + np.concatenate([p[1] for p in parts])
-    alarm, occupied, hit = (np.concatenate([p[j] for p in parts]) for j in (2, 3, 4))
-    false_key = np.concatenate([p[2] * n_k + p[4] for p in false_parts]) if false_parts else np.zeros(0, dtype=np.int64)
-    m, k = np.divmod(np.arange(size), n_k)
-    return {
-        "method": m,
-        "cargo": np.array(lay.cargo_names, dtype=object)[k],
-        "checks": count(key).astype(np.int64),
-        "alarms": count(key, alarm).astype(np.int64),
-        "false_alarms": count(false_key.astype(np.int64)).astype(np.int64),
-        "check_minutes": count(key, np.concatenate([p[5] for p in parts])),
-        "truth_occupied_checks": count(key, occupied).astype(np.int64),
-        "truth_found": count(key, hit).astype(np.int64),
-        "truth_true_alarms": count(key, alarm & occupied).astype(np.int64),
-        "truth_false_alarms": count(key, alarm & ~occupied).astype(np.int64),
-    }
+    m, k = np.divmod(np.arange(counters.shape[1]), n_k)
+    rows: dict[str, np.ndarray] = {"method": m, "cargo": np.array(lay.cargo_names, dtype=object)[k]}
+    for name, values in zip(METHOD_COUNTERS, counters, strict=True):
+        rows[name] = values.copy() if name == "check_minutes" else values.astype(np.int64)
+    return rows

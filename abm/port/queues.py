@@ -17,6 +17,11 @@ checks (idle or off duty) also counts as a rest. The minutes worked at the
 start of each check are returned so the caller can set that check's sensitivity.
 With infinite limits (the default) nothing rests and the queue is the plain one.
 
+:func:`station_pass` wraps the recursion in a station's whole pass over a day
+(arrival order, selection chances, detection, alarms, referral, counts); its
+typed front is :func:`abm.port.station.check_station`. It lives here, beside
+the recursion, because numba caches a compiled function by its own file only.
+
 Compiled with numba: a plain-Python loop costs about as much as a generic
 event simulator, which would dominate a simulated year.
 """
@@ -26,32 +31,77 @@ from __future__ import annotations
 import numba
 import numpy as np
 
+from .layout import RULES
+
 MINUTES_PER_HOUR = 60.0
+TARGETED, QUEUE_AWARE = RULES.index("targeted"), RULES.index("queue_aware")
+
+# Rows of the per-method counters a day accumulates (one column per method x cargo type).
+METHOD_COUNTERS = (
+    "checks",
+    "alarms",
+    "false_alarms",  # alarms logged false: nothing found after them
+    "check_minutes",
+    "truth_occupied_checks",
+    "truth_found",
+    "truth_true_alarms",
+    "truth_false_alarms",
+)
+_CHECKS, _ALARMS, _LOGGED_FALSE, _MINUTES, _OCCUPIED, _FOUND, _TRUE_ALARMS, _FALSE_ALARMS = range(8)
+
+
+NEVER = 1 << 30  # hours until a lane that is never on duty comes on duty
 
 
 @numba.njit(cache=True)
-def earliest_fit(t: float, duration: float, lane: int, staffed: np.ndarray, origin: float) -> float:
+def duty_tables(staffed: np.ndarray, lanes: int) -> tuple[np.ndarray, np.ndarray]:
+    """Per lane and hour of the day: hours until the lane is on duty, and how long it then stays on.
+
+    ``staffed[h]`` (24 entries) is the number of lanes on duty in hour h; lane
+    L is on duty when ``staffed[h] > L``. ``until_on[L, h]`` is 0 when on duty,
+    :data:`NEVER` for a lane never on duty; ``stays_on[L, h]`` counts the
+    consecutive on-duty hours from h (24: on duty all day).
+    """
+    until_on = np.full((lanes, 24), NEVER, dtype=np.int64)
+    stays_on = np.zeros((lanes, 24), dtype=np.int64)
+    for lane in range(lanes):
+        for h in range(24):
+            for k in range(24):
+                if staffed[(h + k) % 24] > lane:
+                    until_on[lane, h] = k
+                    break
+            run = 0
+            while run < 24 and staffed[(h + run) % 24] > lane:
+                run += 1
+            stays_on[lane, h] = run
+    return until_on, stays_on
+
+
+@numba.njit(cache=True)
+def earliest_fit(
+    t: float, duration: float, lane: int, until_on: np.ndarray, stays_on: np.ndarray, origin: float
+) -> float:
     """Earliest minute >= t at which ``lane`` is on duty for ``duration`` minutes without a break.
 
-    ``staffed[h]`` (24 entries) is the number of lanes on duty in hour h of the
-    day that starts at ``origin``; the pattern repeats on later days, so a
-    backlog of any length is served. Returns inf when the lane is never on duty
-    long enough: if no stretch within two days fits, none ever will.
+    The roster (as :func:`duty_tables`) is that of the day that starts at
+    ``origin`` and repeats on later days, so a backlog of any length is served.
+    Returns inf when the lane is never on duty long enough: if no stretch
+    within two days fits, none ever will.
     """
     h = max(int((t - origin) // MINUTES_PER_HOUR), 0)
-    first = h
-    while h < first + 48:
-        if staffed[h % 24] <= lane:
-            h += 1
-            continue
+    last = h + 48
+    while True:
+        wait = until_on[lane, h % 24]
+        if wait == NEVER:
+            return np.inf
+        h += wait
+        if h >= last:
+            return np.inf
         begin = max(t, origin + h * MINUTES_PER_HOUR)
-        stop = h + 1
-        while stop < h + 24 and staffed[stop % 24] > lane:
-            stop += 1
-        if stop == h + 24 or begin + duration <= origin + stop * MINUTES_PER_HOUR:
+        run = stays_on[lane, h % 24]
+        if run == 24 or begin + duration <= origin + (h + run) * MINUTES_PER_HOUR:
             return begin  # on duty all day, or the check fits before the lane goes off duty
-        h = stop
-    return np.inf
+        h += run
 
 
 def serve_fifo(
@@ -135,6 +185,7 @@ def _serve(
     head = 0  # first checked vehicle whose check has not begun at the current arrival
     last_start = floor[0]
     lanes = free.shape[0]
+    until_on, stays_on = duty_tables(staffed, lanes)
     for i in range(n):
         a = arrival[i]
         while head < n_checked and starts[head] <= a:
@@ -148,10 +199,15 @@ def _serve(
         best_lane = -1
         ready = max(a, last_start)
         for lane in range(lanes):
-            t = earliest_fit(max(ready, free[lane]), duration, lane, staffed, origin)
+            earliest = max(ready, free[lane])
+            if earliest >= best_t:
+                continue  # this lane cannot start before the best found so far
+            t = earliest_fit(earliest, duration, lane, until_on, stays_on, origin)
             if t < best_t:
                 best_t = t
                 best_lane = lane
+                if t == ready:
+                    break  # no lane can start earlier, and ties go to the lowest lane
         checked[i] = True
         busy[i] = is_busy
         start[i] = best_t
@@ -171,6 +227,109 @@ def _serve(
         n_checked += 1
     floor[0] = last_start
     return start, end, checked, busy
+
+
+@numba.njit(cache=True)
+def station_pass(
+    rows, arrival, vclass, cargo, aboard, depth, ready, referred, alarm_station, alarm_method, alarm_hit,
+    service, busy_service, u_select, risk_noise, u_detect, u_false,
+    station, rule, secondary, stands_down, threshold, noise_sd,
+    fraction, busy_fraction, queue_threshold, main, busy_method, refer, work_limit, rest_minutes,
+    class_risk, service_factor, detect, cargo_detect, depth_detect, fatigue_decay, false_alarm, cargo_false,
+    staffed, origin, free, worked, floor, counters, n_stations,
+):  # fmt: skip
+    """A station's pass over the day's vehicles: the compiled body of :func:`abm.port.station.check_station`.
+
+    Takes that function's arguments unpacked (its dataclasses' fields in
+    order), with ``rows`` and ``arrival`` sorted by arrival, and returns :class:`abm.port.station.StationPass`'s fields in order.
+    """
+    arrive = arrival
+    n = rows.shape[0]
+    n_classes, n_methods, n_cargo = service_factor.shape[1], service_factor.shape[0], service_factor.shape[2]
+    queue_aware = rule == QUEUE_AWARE and not secondary
+    p_normal = np.empty(n)
+    p_busy = np.empty(n)
+    duration = np.empty(n)
+    busy_duration = np.empty(n)
+    u_sel = np.empty(n)
+    for i in range(n):
+        r = rows[i]
+        c = vclass[r]
+        k = cargo[r]
+        hour = int(np.floor((arrive[i] - origin) / 60.0))
+        hour = max(hour, 0) % 24
+        if stands_down:
+            p = 0.0
+        elif secondary:
+            p = 1.0
+        elif rule == TARGETED:
+            p = 1.0 if class_risk[c] + noise_sd * risk_noise[r] > threshold else 0.0
+        else:
+            p = fraction[hour, c]
+        p_normal[i] = p
+        p_busy[i] = busy_fraction[hour, c] if (queue_aware and not stands_down) else p
+        duration[i] = service[r] * service_factor[main, c, k]
+        busy_duration[i] = busy_service[r] * service_factor[busy_method, c, k]
+        u_sel[i] = u_select[r]
+    worked_at_start = np.zeros(n)
+    start, end, checked, busy = _serve(
+        arrive, duration, busy_duration, u_sel, p_normal, p_busy, queue_threshold if queue_aware else 0,
+        staffed, origin, free, worked, work_limit, rest_minutes, worked_at_start, floor,
+    )  # fmt: skip
+
+    method = np.empty(n, dtype=np.int64)
+    alarm = np.zeros(n, dtype=np.bool_)
+    hit = np.zeros(n, dtype=np.bool_)
+    logged_false = np.zeros(n, dtype=np.bool_)
+    key = np.empty(n, dtype=np.int64)
+    for i in range(n):
+        r = rows[i]
+        c = vclass[r]
+        k = cargo[r]
+        m = busy_method if busy[i] else main
+        method[i] = m
+        occupied = aboard[r] > 0
+        if checked[i] and occupied:
+            p = detect[m, c] * cargo_detect[m, k] * depth_detect[m, depth[r]] * np.exp(-worked_at_start[i] / fatigue_decay[m])
+            hit[i] = u_detect[r] < min(p, 1.0)
+        if secondary:
+            alarm[i] = hit[i]
+            logged_false[i] = not hit[i] and not alarm_hit[r]
+            referred[r] = -1
+            if logged_false[i]:
+                counters[_LOGGED_FALSE, alarm_method[r] * n_cargo + cargo[r]] += 1.0
+        else:
+            if checked[i]:
+                p = false_alarm[m] * cargo_false[m, k]
+                alarm[i] = hit[i] or u_false[r] < min(p, 1.0)
+            if refer >= 0:
+                if alarm[i]:
+                    referred[r] = refer
+                    alarm_station[r] = station
+                    alarm_method[r] = m
+                    alarm_hit[r] = hit[i]
+            else:
+                logged_false[i] = alarm[i] and not hit[i]
+                if logged_false[i]:
+                    counters[_LOGGED_FALSE, m * n_cargo + k] += 1.0
+        if checked[i]:
+            col = m * n_cargo + k
+            counters[_CHECKS, col] += 1.0
+            counters[_ALARMS, col] += alarm[i]
+            counters[_MINUTES, col] += end[i] - start[i]
+            counters[_OCCUPIED, col] += occupied
+            counters[_FOUND, col] += hit[i]
+            counters[_TRUE_ALARMS, col] += alarm[i] and occupied
+            counters[_FALSE_ALARMS, col] += alarm[i] and not occupied
+        if hit[i]:
+            aboard[r] = 0
+            depth[r] = 0
+        ready[r] = end[i]
+        # vehicles are counted by the hour they reach the station, so passes per hour do not depend on policy
+        cal_day = int(np.floor(arrive[i] / 1440.0))
+        clock_hour = int(np.floor(arrive[i] / 60.0)) % 24
+        key[i] = (((cal_day * 24 + clock_hour) * n_stations + station) * n_classes + c) * n_methods + m
+    return rows, arrive, start, end, checked, method, alarm, hit, logged_false, key
 
 
 @numba.njit(cache=True)

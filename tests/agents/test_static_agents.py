@@ -126,7 +126,7 @@ def test_static_behaviour_draws_match_its_probabilities():
     rng = np.random.default_rng(2024)
     n = 60_000
     agent = SimpleNamespace(size=1, memory=None, unique_id=-1)  # static choice does not look at the agent
-    draws = np.array([behaviour.choose(agent, rng) for _ in range(n)])
+    draws = behaviour.choose([agent] * n, rng)
     counts = np.bincount(draws, minlength=options.size)
     p = behaviour.probabilities
     assert (counts[p == 0] == 0).all()

@@ -17,6 +17,7 @@ procedure rejects a station whose service-time mean is off by 10 %.
 from __future__ import annotations
 
 import copy
+import inspect
 import math
 from pathlib import Path
 from unittest import mock
@@ -451,18 +452,22 @@ EXPECTED_ROSTER = np.array([0] * 6 + [2] * 6 + [3] * 3 + [1] * 6 + [0] * 3, dtyp
 
 def test_engine_keeps_to_a_two_team_roster() -> None:
     calls = []
-    real = day_module.serve_fifo
+    real = day_module.check_station
+    signature = inspect.signature(real)
 
-    def keep(arrival, service, busy_service, u, p_normal, p_busy, threshold, staffed, origin, free, *rest, **state):
-        out = real(arrival, service, busy_service, u, p_normal, p_busy, threshold, staffed, origin, free, *rest, **state)
-        calls.append((arrival.copy(), service.copy(), staffed.copy(), origin, out))
-        return out
+    def keep(*args):
+        given = signature.bind(*args).arguments
+        done = real(*args)
+        # this world has no cargo or class factors: a check lasts its drawn duration
+        service = given["service"][done.rows]
+        calls.append((done.arrival, service, given["staffed"].copy(), given["origin"], (done.start, done.end, done.checked)))
+        return done
 
     days = 10
-    with mock.patch.object(day_module, "serve_fifo", keep):
+    with mock.patch.object(day_module, "check_station", keep):
         simulate(two_team_world(), days, seed=7)
     assert len(calls) == days
-    for k, (a, svc, staffed, origin, (st, en, chk, _)) in enumerate(calls):
+    for k, (a, svc, staffed, origin, (st, en, chk)) in enumerate(calls):
         assert origin == k * MINUTES_PER_DAY
         np.testing.assert_array_equal(staffed[:24], EXPECTED_ROSTER)  # the two teams' lanes, hour by hour
         check(roster_misses(a, st, en, chk, EXPECTED_ROSTER, origin))  # within the day

@@ -25,7 +25,6 @@ from collections.abc import Sequence
 from dataclasses import dataclass
 from typing import TYPE_CHECKING, Protocol
 
-import networkx as nx
 import numpy as np
 
 from ..port.day import Staffing
@@ -142,7 +141,8 @@ class AdaptiveBehaviour:
 
     def __init__(self, world: World, options: OptionSpace, rng: np.random.Generator) -> None:
         self.refresh(world, options)
-        self.network = nx.Graph()
+        # who hears whom: an undirected graph as adjacency (insertion-ordered, so peers hear in a fixed order)
+        self.network: dict[int, dict[int, None]] = {}
         self._network_rng = rng
         self._messages: dict[int, list[tuple[int, int, bool]]] = defaultdict(list)
         self._agents: dict[int, "ConcealmentAgent"] = {}
@@ -164,13 +164,16 @@ class AdaptiveBehaviour:
         day = agent.arrival_day
         agent.memory = Beliefs(np.zeros(k), np.zeros(k), day)
         present = list(self._agents)  # groups leave the network when they leave the area
-        self.network.add_node(agent.unique_id)
+        links = self.network.setdefault(agent.unique_id, {})
         self._agents[agent.unique_id] = agent
         degree = min(self.params.network_degree, len(present))
         if degree:
             # links to random groups already in the area: a growing random network
-            for peer in self._network_rng.choice(np.array(present), size=degree, replace=False):
-                self.network.add_edge(agent.unique_id, int(peer))
+            # choice over the count draws exactly what choice over the ids would, without building an array
+            for index in self._network_rng.choice(len(present), size=degree, replace=False):
+                peer = present[index]
+                links[peer] = None
+                self.network[peer][agent.unique_id] = None
 
     def _decayed(self, beliefs: Beliefs, day: int) -> Beliefs:
         if day > beliefs.day:
@@ -240,7 +243,7 @@ class AdaptiveBehaviour:
         (beliefs.caught if caught else beliefs.crossed)[option] += self.params.own_weight
         if self.params.peer_weight > 0 and agent.unique_id in self.network:
             deliver = day + max(1, self.params.peer_delay_days)
-            for peer in self.network.neighbors(agent.unique_id):
+            for peer in self.network[agent.unique_id]:
                 self._messages[deliver].append((peer, option, caught))
 
     def end_of_day(self, day: int, options: np.ndarray, outcomes: list[str], persons: np.ndarray) -> None:
@@ -254,8 +257,8 @@ class AdaptiveBehaviour:
 
     def agent_left(self, agent: "ConcealmentAgent") -> None:
         self._agents.pop(agent.unique_id, None)
-        if agent.unique_id in self.network:
-            self.network.remove_node(agent.unique_id)
+        for peer in self.network.pop(agent.unique_id, {}):
+            del self.network[peer][agent.unique_id]
 
 
 class ReinforcementBehaviour(_Quiet):

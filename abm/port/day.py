@@ -340,9 +340,8 @@ class DayEngine:
         when = self.boarding_rng.random(len(attempts))
         chance = np.clip(lay.point_interdiction[attempts.point, attempts.band] + staffing.patrol[attempts.point, attempts.band], 0, 1)
         stopped = u < chance
-        band_hours = np.array([[lay.band_of_hour[h] == b for h in range(24)] for b in range(lay.band_of_hour.max() + 1)])
         for a in np.flatnonzero(stopped):
-            hours = np.flatnonzero(band_hours[attempts.band[a]])
+            hours = np.flatnonzero(lay.band_of_hour == attempts.band[a])
             minute = (hours[int(when[a] * hours.shape[0])] + (when[a] * hours.shape[0]) % 1.0) * 60.0
             result.outcome[a] = INTERDICTED
             result.minute[a] = day * MINUTES_PER_DAY + minute

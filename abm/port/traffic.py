@@ -4,6 +4,7 @@ from __future__ import annotations
 
 from dataclasses import dataclass
 
+import numba
 import numpy as np
 
 from .layout import Layout
@@ -44,15 +45,38 @@ def generate_traffic(
     n = int(counts.sum())
     hour = np.repeat(np.arange(24), counts)
     minute = np.sort(hour * 60.0 + traffic_rng.random(n) * 60.0)
-    classes = traffic_rng.choice(layout.n_classes, size=n, p=layout.class_share)
+    classes = draw_classes(layout.class_share, traffic_rng.random(n))
     # Stop draws come from their own stream so that traffic does not depend on boarding geography.
     stops = stop_rng.random((layout.point_stop_share.shape[0], n)) < layout.point_stop_share[:, classes]
     cargo = draw_cargo(layout, classes, cargo_rng) if cargo_rng is not None else None
     return DayTraffic(day=day, arrival=day * MINUTES_PER_DAY + minute, vehicle_class=classes, stops=stops, cargo=cargo)
 
 
+def draw_classes(share: np.ndarray, u: np.ndarray) -> np.ndarray:
+    """Vehicle classes from one uniform each: exactly ``Generator.choice(len(share), p=share)`` on those uniforms.
+
+    NumPy's choice with probabilities normalises the cumulative shares and
+    searches them (numpy/random/_generator.pyx); doing the same here skips its
+    checks of ``p``, which cost more than the draw, and keeps the same classes.
+    """
+    cdf = share.cumsum()
+    cdf /= cdf[-1]
+    return cdf.searchsorted(u, side="right").astype(np.int64)
+
+
 def draw_cargo(layout: Layout, vehicle_class: np.ndarray, rng: np.random.Generator) -> np.ndarray:
     """One uniform per vehicle (fixed consumption) turned into a cargo type by its class's cumulative shares."""
-    u = rng.random(vehicle_class.shape[0])
-    cum = layout.class_cargo_cum[vehicle_class]
-    return np.minimum((u[:, None] >= cum).sum(axis=1), cum.shape[1] - 1).astype(np.int64)
+    return _cargo_of(rng.random(vehicle_class.shape[0]), vehicle_class, layout.class_cargo_cum)
+
+
+@numba.njit(cache=True)
+def _cargo_of(u: np.ndarray, vehicle_class: np.ndarray, cum: np.ndarray) -> np.ndarray:
+    """The first cargo type whose cumulative share exceeds u (the last type at most)."""
+    cargo = np.empty(u.shape[0], dtype=np.int64)
+    last = cum.shape[1] - 1
+    for i in range(u.shape[0]):
+        k = 0
+        while k < last and cum[vehicle_class[i], k] <= u[i]:
+            k += 1
+        cargo[i] = k
+    return cargo

@@ -341,6 +341,54 @@ def run_bare(layout, lanes_by_hour: np.ndarray, arrivals, classes, draws) -> tup
     return wall, in_recursion, {"checks": checks.tolist(), "mean_wait": (wait_sum / np.maximum(checks, 1)).tolist()}
 
 
+# -- (e) where the Undertow year goes ----------------------------------------------------------
+def year_breakdown(world, days: int, seed: int) -> dict[str, float]:
+    """Seconds spent in each part of a simulated year, timed by wrapping the engine's own functions.
+
+    The wrappers add about a microsecond per call (a few thousand calls a year), so the parts sum to
+    slightly more than an unwrapped year.
+    """
+    import abm.port.day as day_module
+    from abm.experiment.single import simulate
+    from abm.model import PortModel
+    from abm.records import RecordBook
+
+    spent: dict[str, float] = {}
+    targets = [
+        (day_module, "generate_traffic", "traffic draws (arrivals, classes, stops, cargo)"),
+        (day_module, "draw_for_station", "station draws (durations, uniforms)"),
+        (day_module, "check_station", "station passes (compiled: queue, checks, referral)"),
+        (day_module.DayEngine, "_board", "boarding"),
+        (day_module.DayEngine, "_depart", "sailings"),
+        (RecordBook, "add_day", "records"),
+        (day_module.DayEngine, "run_day", "day engine in all"),
+        (PortModel, "step", "model step in all"),
+    ]
+    originals = [(owner, name, getattr(owner, name)) for owner, name, _ in targets]
+
+    def timed(function, label):
+        def wrapper(*args, **kwargs):
+            t = time.perf_counter()
+            try:
+                return function(*args, **kwargs)
+            finally:
+                spent[label] = spent.get(label, 0.0) + time.perf_counter() - t
+
+        return wrapper
+
+    for (owner, name, label), (_, _, function) in zip(targets, originals, strict=True):
+        setattr(owner, name, timed(function, label))
+    try:
+        simulate(world, days, seed)
+    finally:
+        for owner, name, function in originals:
+            setattr(owner, name, function)
+    parts = [label for _, _, label in targets[:5]]
+    spent["rest of the day engine"] = spent["day engine in all"] - sum(spent.get(p, 0.0) for p in parts)
+    spent["agents, command and model glue"] = spent["model step in all"] - spent["day engine in all"] - spent["records"]
+    return spent
+
+
 # -- report -------------------------------------------------------------------------------------
 def verdict(ok: bool) -> str:
     return "met" if ok else "MISSED"
@@ -435,6 +483,9 @@ def main(argv: list[str] | None = None) -> int:
     behaviour_runs = {name: [run_behaviour(world, name, args.days, args.seed) for _ in range(max(args.repeat, 1))]
                       for name in ("static", "adaptive", "reinforcement")}
 
+    # (e) the year again, by part
+    breakdown = year_breakdown(world, args.days, args.seed)
+
     # (b) SimPy, once: it is the slow one
     cpu = time.process_time()
     simpy_wall, simpy_stats = (math.nan, None) if args.skip_simpy else run_simpy(layout, lanes_by_hour, arrivals, classes, args.seed)
@@ -466,6 +517,13 @@ def main(argv: list[str] | None = None) -> int:
         wall = med([r[0] for r in results])
         decisions, spent = results[0][1], med([r[2] for r in results])
         print(f"  {name:16s}{wall:9.2f}{decisions:11,d}{spent:17.3f}{decisions / spent if spent else math.nan:13,.0f}")
+    print()
+    print("(e) where the Undertow year goes (one more year with each part timed):")
+    shown = [k for k in breakdown if not k.endswith("in all")]
+    for label in shown:
+        print(f"  {label:52s}{breakdown[label]:7.2f} s")
+    drawing = breakdown["traffic draws (arrivals, classes, stops, cargo)"] + breakdown["station draws (durations, uniforms)"]
+    print(f"  random numbers drawn inside the year: {drawing:.2f} s, {drawing / bare_wall:.1f}x the bare replay by themselves")
     print()
     print("mean wait (min) / checks per station, a sanity check that the three run the same crossing:")
     print(f"  {'station':16s}{'Undertow':>20s}{'SimPy':>20s}{'bare replay':>20s}")

@@ -154,6 +154,7 @@ class AdaptiveBehaviour:
     def refresh(self, world: World, options: OptionSpace) -> None:
         self.params = world.adversary.adaptive
         self.options = options
+        self._valid_by_size: dict[int, np.ndarray] = {}
         waiting = np.array([self.params.band_waiting.get(b, 0.0) for b in world.band_names])
         # everything in the utility but perceived risk, which is what is learnt
         self.base_utility = -options.effort - self.params.hazard_aversion * options.hazard - waiting[options.band]
@@ -189,10 +190,14 @@ class AdaptiveBehaviour:
         Prior + own and peer evidence + weighted rumour; the rumour is what
         circulates in the area, so a newcomer hears it at once.
         """
+        alpha, beta = self._posteriors([self._decayed(agent.memory, day)])
+        return alpha[0], beta[0]
+
+    def _posteriors(self, beliefs: Sequence[Beliefs]) -> tuple[np.ndarray, np.ndarray]:
+        """:meth:`posterior` of already decayed beliefs, one row each."""
         p = self.params
-        b = self._decayed(agent.memory, day)
-        alpha = p.prior_caught + b.caught + p.rumour_weight * self._rumour_caught
-        beta = p.prior_crossed + b.crossed + p.rumour_weight * self._rumour_crossed
+        alpha = p.prior_caught + np.array([b.caught for b in beliefs]) + p.rumour_weight * self._rumour_caught
+        beta = p.prior_crossed + np.array([b.crossed for b in beliefs]) + p.rumour_weight * self._rumour_crossed
         return alpha, beta
 
     def perceived_risk(self, agent: "ConcealmentAgent", day: int) -> np.ndarray:
@@ -223,17 +228,22 @@ class AdaptiveBehaviour:
     def choose(self, agents: Sequence["ConcealmentAgent"], rng: np.random.Generator) -> np.ndarray:
         if not agents:
             return np.zeros(0, dtype=np.int64)
-        day = agents[0].model.day
-        risk = np.minimum(np.array([self.perceived_risk(agent, day) for agent in agents]) + self._presence, 1.0)
-        utility = self.base_utility - self.params.detection_cost * risk
+        day, p = agents[0].model.day, self.params
+        # perceived_risk of every chooser at once, one row each
+        alpha, beta = self._posteriors([self._decayed(agent.memory, day) for agent in agents])
+        risk = np.minimum(alpha / (alpha + beta) + self._presence, 1.0)
+        utility = self.base_utility - p.detection_cost * risk
         valid = np.array([self._fits(agent.size) for agent in agents])
-        probabilities = logit_probabilities(utility, self.params.rationality, valid, self.params.exploration)
+        probabilities = logit_probabilities(utility, p.rationality, valid, p.exploration)
         return _draw(probabilities, rng)
 
     def _fits(self, size: int) -> np.ndarray:
-        valid = self.options.valid_for(size)
-        # no class fits the group: it still tries, and finds no vehicle
-        return valid if valid.any() else self.options.valid
+        """Options a group of ``size`` may choose (kept per size until the option space changes)."""
+        if size not in self._valid_by_size:
+            valid = self.options.valid_for(size)
+            # no class fits the group: it still tries, and finds no vehicle
+            self._valid_by_size[size] = valid if valid.any() else self.options.valid
+        return self._valid_by_size[size]
 
     def learn(self, agent: "ConcealmentAgent", option: int, outcome: str, day: int) -> None:
         if outcome == "no_vehicle":

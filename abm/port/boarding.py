@@ -13,29 +13,36 @@ import numpy as np
 
 
 @numba.njit(cache=True)
+def stopping_of_class(stops: np.ndarray, vehicle_class: np.ndarray, want_class: int) -> np.ndarray:
+    """Positions (ascending) of passing vehicles that stop at the point and are of class ``want_class``."""
+    found = np.empty(stops.shape[0], dtype=np.int64)
+    k = 0
+    for i in range(stops.shape[0]):
+        if stops[i] and vehicle_class[i] == want_class:
+            found[k] = i
+            k += 1
+    return found[:k]
+
+
+@numba.njit(cache=True)
 def fitting_vehicles(
-    stops: np.ndarray,
-    vehicle_class: np.ndarray,
+    candidates: np.ndarray,
     at_point: np.ndarray,
     room: np.ndarray,
     band_of_hour: np.ndarray,
-    want_class: int,
     want_band: int,
     size: int,
 ) -> np.ndarray:
-    """Positions i (ascending) where vehicle i can take a group of ``size``.
+    """The ``candidates`` (ascending positions) that pass in band ``want_band`` with room for ``size``.
 
-    ``stops``, ``vehicle_class``, ``at_point`` (absolute minute the vehicle is
-    at the point) and ``room`` are per passing vehicle; ``band_of_hour`` maps an
-    hour of the day to its time band.
+    ``candidates`` come from :func:`stopping_of_class`; ``at_point`` (absolute minute each passing
+    vehicle is at the point) and ``room`` are indexed by position;
+    ``band_of_hour`` maps an hour of the day to its time band.
     """
-    n = stops.shape[0]
-    found = np.empty(n, dtype=np.int64)
+    found = np.empty(candidates.shape[0], dtype=np.int64)
     k = 0
-    for i in range(n):
-        if not stops[i] or vehicle_class[i] != want_class or room[i] < size:
-            continue
-        if band_of_hour[int(np.floor(at_point[i] / 60.0)) % 24] == want_band:
+    for i in candidates:
+        if room[i] >= size and band_of_hour[int(np.floor(at_point[i] / 60.0)) % 24] == want_band:
             found[k] = i
             k += 1
     return found[:k]

@@ -47,7 +47,7 @@ import numpy as np
 from ..errors import InputError
 from .checks import StationDraws, draw_for_station
 from .layout import DEPARTURE, MONTH_OF_YEAR_DAY, RULES, Layout
-from .boarding import fitting_vehicles
+from .boarding import fitting_vehicles, stopping_of_class
 from .queues import board_sailings
 from .station import METHOD_COUNTERS, MethodTables, StationPass, StationRules, VehicleState, check_station
 from .traffic import MINUTES_PER_DAY, DayTraffic, generate_traffic
@@ -157,6 +157,7 @@ class DayEngine:
         self.floor = [np.full(1, -np.inf) for _ in layout.station_lanes]  # each station's last check start (FIFO)
         self.sailing_left: dict[int, np.ndarray] = {}
         self._tables: dict[int, MethodTables] = {}
+        self._rules: dict[tuple[int, int, int, bool], StationRules] = {}
 
     def change_layout(self, layout: Layout) -> None:
         """Take a changed policy (same stations and points); lanes keep their state, new lanes start free."""
@@ -171,6 +172,7 @@ class DayEngine:
                 self.worked[s] = worked[: int(lanes)]
         self.layout = layout
         self._tables = {}
+        self._rules = {}
 
     # -- helpers -------------------------------------------------------------------------
     def _sailing_window(self, day: int) -> tuple[np.ndarray, np.ndarray, list[tuple[int, int, int]]]:
@@ -203,6 +205,30 @@ class DayEngine:
                 cargo_false=lay.method_cargo_false,
             )
         return self._tables[weather]
+
+    def _rules_for(self, s: int, main: int, busy_method: int, stands_down: bool) -> StationRules:
+        """Station ``s``'s rules with today's methods (built once per combination and layout)."""
+        key = (s, main, busy_method, stands_down)
+        if key not in self._rules:
+            lay = self.layout
+            rests = bool(np.isfinite(lay.method_work_minutes[main]))
+            self._rules[key] = StationRules(
+                station=s,
+                rule=int(lay.station_rule[s]),
+                secondary=bool(lay.station_secondary[s]),
+                stands_down=stands_down,
+                threshold=float(lay.station_threshold[s]),
+                noise_sd=float(lay.station_noise_sd[s]),
+                fraction=lay.station_fraction[s],
+                busy_fraction=lay.station_busy_fraction[s],
+                queue_threshold=int(lay.station_queue_threshold[s]),
+                method=main,
+                busy_method=busy_method,
+                refer=int(lay.station_refer[s]),
+                work_limit=float(lay.method_work_minutes[main]) if rests else np.inf,
+                rest_minutes=float(lay.method_rest_minutes[main]) if rests else np.inf,
+            )
+        return self._rules[key]
 
     def _weather(self, day: int) -> int:
         """The day's weather state: one uniform a day against the month's cumulative shares."""
@@ -276,26 +302,10 @@ class DayEngine:
             stands_down = main < 0  # suspended without a replacement: every vehicle passes unchecked
             if stands_down:
                 main = busy_method = int(lay.station_method[s])
-            rests = np.isfinite(lay.method_work_minutes[main])
-            rules = StationRules(
-                station=s,
-                rule=int(lay.station_rule[s]),
-                secondary=secondary,
-                stands_down=stands_down,
-                threshold=float(lay.station_threshold[s]),
-                noise_sd=float(lay.station_noise_sd[s]),
-                fraction=lay.station_fraction[s],
-                busy_fraction=lay.station_busy_fraction[s],
-                queue_threshold=int(lay.station_queue_threshold[s]),
-                method=main,
-                busy_method=busy_method,
-                refer=int(lay.station_refer[s]),
-                work_limit=float(lay.method_work_minutes[main]) if rests else np.inf,
-                rest_minutes=float(lay.method_rest_minutes[main]) if rests else np.inf,
-            )
+            rules = self._rules_for(s, main, busy_method, stands_down)
             staffed = np.minimum(staffing.lanes[s], lay.station_lanes[s]).astype(np.int64)
             # lanes of a station whose method has no rest rule do not track work
-            worked = self.worked[s] if rests else np.zeros(self.free[s].shape[0])
+            worked = self.worked[s] if np.isfinite(rules.work_limit) else np.zeros(self.free[s].shape[0])
             done = check_station(
                 rows, arrive, vehicles, service, busy_service, d.u_select, d.risk_noise, d.u_detect, d.u_false,
                 rules, tables, staffed, origin, self.free[s], worked, self.floor[s], counters, lay.station_method.shape[0],
@@ -370,12 +380,16 @@ class DayEngine:
         aboard, depth = vehicles.aboard, vehicles.depth
         vclass = vehicles.vehicle_class[rows]
         room = lay.class_capacity[vclass] - aboard[rows]  # kept in step with ``aboard`` below
-        for p in np.unique(attempts.point[todo]):
+        for p in sorted(set(attempts.point[todo].tolist())):
             at_point = next_arrival - lay.point_lead[p]
             stops = traffic.stops[p, rows]
+            of_class: dict[int, np.ndarray] = {}  # positions of vehicles that stop here, per class
             for a in todo[attempts.point[todo] == p]:
-                want = (int(attempts.vehicle_class[a]), int(attempts.band[a]), int(attempts.size[a]))
-                choices = fitting_vehicles(stops, vclass, at_point, room, lay.band_of_hour, *want)
+                c = int(attempts.vehicle_class[a])
+                if c not in of_class:
+                    of_class[c] = stopping_of_class(stops, vclass, c)
+                want = (int(attempts.band[a]), int(attempts.size[a]))
+                choices = fitting_vehicles(of_class[c], at_point, room, lay.band_of_hour, *want)
                 if choices.shape[0] == 0:
                     result.outcome[a] = NO_VEHICLE
                     continue

@@ -46,7 +46,7 @@ import numpy as np
 
 from ..errors import InputError
 from .checks import StationDraws, draw_for_station
-from .layout import DEPARTURE, MONTH_OF_YEAR_DAY, RULES, Layout
+from .layout import DEPARTURE, MONTH_OF_YEAR_DAY, Layout
 from .boarding import fitting_vehicles, stopping_of_class
 from .queues import board_sailings
 from .station import METHOD_COUNTERS, MethodTables, StationPass, StationRules, VehicleState, check_station
@@ -408,7 +408,7 @@ class DayEngine:
         methods: np.ndarray,
         when: np.ndarray,
     ) -> None:
-        """Every attempt aboard a vehicle whose check found people is detected there (the station freed the vehicle)."""
+        """Every pending attempt aboard one of ``vehicles`` (checks that found people) is detected there."""
         lookup = {int(v): i for i, v in enumerate(vehicles)}
         for a in np.flatnonzero(result.outcome == PENDING):
             i = lookup.get(int(result.vehicle[a]))

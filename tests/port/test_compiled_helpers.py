@@ -1,0 +1,112 @@
+"""The engine's compiled shortcuts against the plain definitions they replace.
+
+Each shortcut must give exactly (bit for bit) what the slower formulation
+gives, because records are compared byte for byte across runs and executors:
+
+- vehicle classes: NumPy's own ``Generator.choice(k, p=...)`` on the same
+  stream is the reference (its algorithm: numpy/random/_generator.pyx, choice:
+  normalised cumulative shares searched with ``side="right"``);
+- cargo, boarding candidates, lanes on duty: the definitions in their
+  docstrings, written out in numpy or as a minute-by-minute scan.
+"""
+
+from __future__ import annotations
+
+import numpy as np
+import pytest
+
+from abm.agents.behaviour import logit_probabilities
+from abm.port.boarding import fitting_vehicles, stopping_of_class
+from abm.port.queues import MINUTES_PER_HOUR, duty_tables, earliest_fit
+from abm.port.traffic import _cargo_of, draw_classes
+
+
+@pytest.mark.parametrize("seed", range(20))
+def test_classes_are_numpys_choice_on_the_same_stream(seed: int) -> None:
+    rng = np.random.default_rng(seed)
+    share = rng.random(int(rng.integers(1, 9)))
+    share /= share.sum()
+    reference = np.random.default_rng(1000 + seed).choice(share.size, size=5000, p=share)
+    ours = draw_classes(share, np.random.default_rng(1000 + seed).random(5000))
+    np.testing.assert_array_equal(ours, reference)
+    assert ours.dtype == np.int64
+
+
+def test_cargo_is_the_first_type_whose_cumulative_share_exceeds_the_uniform() -> None:
+    rng = np.random.default_rng(7)
+    cum = np.cumsum(rng.random((4, 6)), axis=1)
+    cum /= cum[:, -1:]
+    cum[:, 2] = cum[:, 1]  # a cargo type with no share in any class is never drawn
+    u, vclass = rng.random(20_000), rng.integers(0, 4, 20_000)
+    expected = np.minimum((u[:, None] >= cum[vclass]).sum(axis=1), cum.shape[1] - 1)
+    got = _cargo_of(u, vclass, cum)
+    np.testing.assert_array_equal(got, expected)
+    assert not (got == 2).any()
+
+
+def test_boarding_candidates_are_the_vehicles_that_stop_fit_and_pass_in_the_band() -> None:
+    rng = np.random.default_rng(3)
+    n = 3000
+    stops, vclass = rng.random(n) < 0.6, rng.integers(0, 4, n)
+    at_point = np.sort(rng.random(n) * 1440.0) + 1440.0  # the second day of a run
+    room = rng.integers(0, 4, n)
+    band_of_hour = np.repeat([0, 1, 2, 0], 6)  # night, morning, afternoon, night again
+    for want_class in range(4):
+        candidates = stopping_of_class(stops, vclass, want_class)
+        np.testing.assert_array_equal(candidates, np.flatnonzero(stops & (vclass == want_class)))
+        for band in range(3):
+            for size in (1, 3):
+                band_now = band_of_hour[np.floor(at_point / 60.0).astype(np.int64) % 24]
+                expected = np.flatnonzero(stops & (vclass == want_class) & (band_now == band) & (room >= size))
+                np.testing.assert_array_equal(fitting_vehicles(candidates, at_point, room, band_of_hour, band, size), expected)
+
+
+def scan_earliest_fit(t: float, duration: float, lane: int, day_roster: np.ndarray, origin: float) -> float:
+    """The definition, minute by minute: the first start >= t from which the lane is on duty for the whole check.
+
+    Starts are tried at t and at every later hour boundary (a stretch on duty
+    can only begin there); a check fits when every hour it touches has the
+    lane on duty. Two days are enough: the roster repeats every day.
+    """
+    first_hour = max(int((t - origin) // MINUTES_PER_HOUR), 0)
+    starts = [t] + [origin + h * MINUTES_PER_HOUR for h in range(first_hour + 1, first_hour + 49)]
+    for begin in starts:
+        if begin < t:
+            continue
+        h0 = int((begin - origin) // MINUTES_PER_HOUR)
+        end = begin + duration
+        h1 = int(np.ceil((end - origin) / MINUTES_PER_HOUR))
+        touched = range(h0, max(h1, h0 + 1))
+        if all(day_roster[h % 24] > lane for h in touched):
+            return begin
+        if all(day_roster[h % 24] > lane for h in range(h0, h0 + 24)):
+            return begin  # on duty all day: any check fits, however long
+    return np.inf
+
+
+@pytest.mark.parametrize("seed", range(8))
+def test_duty_tables_give_the_earliest_fit_of_a_minute_scan(seed: int) -> None:
+    rng = np.random.default_rng(seed)
+    lanes = 4
+    day_roster = rng.integers(0, lanes + 1, 24)
+    if seed == 0:
+        day_roster[:] = lanes  # everyone on duty all day
+    until_on, stays_on = duty_tables(day_roster, lanes)
+    origin = 1440.0 * int(rng.integers(0, 5))
+    for _ in range(300):
+        t = origin + float(rng.random() * 3000.0)
+        duration = float(rng.choice([0.5, 5.0, 59.0, 61.0, 150.0, 2000.0]))
+        lane = int(rng.integers(0, lanes))
+        assert earliest_fit(t, duration, lane, until_on, stays_on, origin) == scan_earliest_fit(
+            t, duration, lane, day_roster, origin
+        ), (t, duration, lane, day_roster.tolist())
+
+
+def test_logit_rows_are_the_single_chooser_probabilities() -> None:
+    """Choosers decided together (one row each) get exactly what each would get alone."""
+    rng = np.random.default_rng(11)
+    utility = rng.normal(size=(9, 60))
+    valid = rng.random((9, 60)) < 0.7
+    together = logit_probabilities(utility, 2.0, valid, 0.05)
+    for row in range(9):
+        np.testing.assert_array_equal(together[row], logit_probabilities(utility[row], 2.0, valid[row], 0.05))

@@ -15,7 +15,7 @@ from __future__ import annotations
 
 import dataclasses
 import math
-from collections.abc import Sequence
+from collections.abc import Callable, Sequence
 
 import numpy as np
 import pandas as pd
@@ -102,6 +102,19 @@ def _on_records(result: EstimateResult, window: Window, extra: dict[str, float])
     return dataclasses.replace(result, window=window, parameters=result.parameters + tuple(extra.items()))
 
 
+def _from_records(
+    observed: Observed,
+    window: Window,
+    level: float,
+    estimator: str,
+    from_frequencies: Callable[[np.ndarray, float], EstimateResult],
+) -> EstimateResult:
+    """Run a frequency estimator on the capture frequencies of observed records in ``window``."""
+    persons, extra, window = _persons(observed, window, estimator)
+    f = np.bincount(persons["count"].to_numpy())[1:]
+    return _on_records(from_frequencies(f, level), window, extra)
+
+
 def _frequencies(frequencies: Sequence[int], estimator: str) -> np.ndarray:
     """Checked frequencies f_1..f_m as an int array of length >= 2."""
     f = np.asarray(frequencies, dtype=float)
@@ -152,16 +165,12 @@ def chao_bias_corrected_from_frequencies(frequencies: Sequence[int], level: floa
 
 def chao(observed: Observed, window: Window = None, level: float = DEFAULT_LEVEL) -> EstimateResult:
     """Chao (1987) lower bound on observed records; see :func:`chao_from_frequencies`."""
-    persons, extra, window = _persons(observed, window, CHAO)
-    f = np.bincount(persons["count"].to_numpy())[1:]
-    return _on_records(chao_from_frequencies(f, level), window, extra)
+    return _from_records(observed, window, level, CHAO, chao_from_frequencies)
 
 
 def chao_bias_corrected(observed: Observed, window: Window = None, level: float = DEFAULT_LEVEL) -> EstimateResult:
     """Bias-corrected Chao on observed records; see :func:`chao_bias_corrected_from_frequencies`."""
-    persons, extra, window = _persons(observed, window, CHAO_BC)
-    f = np.bincount(persons["count"].to_numpy())[1:]
-    return _on_records(chao_bias_corrected_from_frequencies(f, level), window, extra)
+    return _from_records(observed, window, level, CHAO_BC, chao_bias_corrected_from_frequencies)
 
 
 # --- Poisson-based: Zelterman and the zero-truncated Poisson ------------------------------------
@@ -211,16 +220,12 @@ def ztp_from_frequencies(frequencies: Sequence[int], level: float = DEFAULT_LEVE
 
 def zelterman(observed: Observed, window: Window = None, level: float = DEFAULT_LEVEL) -> EstimateResult:
     """Zelterman (1988) on observed records; see :func:`zelterman_from_frequencies`."""
-    persons, extra, window = _persons(observed, window, ZELTERMAN)
-    f = np.bincount(persons["count"].to_numpy())[1:]
-    return _on_records(zelterman_from_frequencies(f, level), window, extra)
+    return _from_records(observed, window, level, ZELTERMAN, zelterman_from_frequencies)
 
 
 def ztp(observed: Observed, window: Window = None, level: float = DEFAULT_LEVEL) -> EstimateResult:
     """Zero-truncated Poisson MLE on observed records; see :func:`ztp_from_frequencies`."""
-    persons, extra, window = _persons(observed, window, ZTP)
-    f = np.bincount(persons["count"].to_numpy())[1:]
-    return _on_records(ztp_from_frequencies(f, level), window, extra)
+    return _from_records(observed, window, level, ZTP, ztp_from_frequencies)
 
 
 # --- zero-truncated Poisson regression -----------------------------------------------------------

@@ -205,6 +205,18 @@ def sobol_design(factors: Mapping[str, FactorSpec], n: int, *, seed: Seed) -> So
     return SobolDesign(factors=names, n=n, seed=seed, A=_frozen(a_b[0].T), B=_frozen(a_b[1].T))
 
 
+def _per_output_and_factor(
+    outputs: Sequence[str], factors: Sequence[str], columns: dict[str, np.ndarray]
+) -> pd.DataFrame:
+    """One row per output and factor (outputs outer), from arrays indexed ``[output, factor]``."""
+    records = [
+        {"output": output, "factor": factor, **{name: values[o, f] for name, values in columns.items()}}
+        for o, output in enumerate(outputs)
+        for f, factor in enumerate(factors)
+    ]
+    return pd.DataFrame.from_records(records)
+
+
 # -- Sobol: the indices -----------------------------------------------------------------------
 @dataclass(frozen=True, eq=False)
 class SobolIndices:
@@ -232,21 +244,15 @@ class SobolIndices:
 
     def to_frame(self) -> pd.DataFrame:
         """One row per output and factor; ``interactions`` is total minus first order."""
-        records = []
-        for o, output in enumerate(self.outputs):
-            for f, factor in enumerate(self.factors):
-                records.append({
-                    "output": output,
-                    "factor": factor,
-                    "first_order": self.first_order[o, f],
-                    "first_order_low": self.first_order_ci[o, f, 0],
-                    "first_order_high": self.first_order_ci[o, f, 1],
-                    "total_order": self.total_order[o, f],
-                    "total_order_low": self.total_order_ci[o, f, 0],
-                    "total_order_high": self.total_order_ci[o, f, 1],
-                    "interactions": self.total_order[o, f] - self.first_order[o, f],
-                })
-        return pd.DataFrame.from_records(records)
+        return _per_output_and_factor(self.outputs, self.factors, {
+            "first_order": self.first_order,
+            "first_order_low": self.first_order_ci[..., 0],
+            "first_order_high": self.first_order_ci[..., 1],
+            "total_order": self.total_order,
+            "total_order_low": self.total_order_ci[..., 0],
+            "total_order_high": self.total_order_ci[..., 1],
+            "interactions": self.total_order - self.first_order,
+        })
 
     def summary(self) -> str:
         """A table per output, factors ranked by total order, with how to read it."""
@@ -472,18 +478,9 @@ class PrccResult:
 
     def to_frame(self) -> pd.DataFrame:
         """One row per output and factor."""
-        records = []
-        for o, output in enumerate(self.outputs):
-            for f, factor in enumerate(self.factors):
-                records.append({
-                    "output": output,
-                    "factor": factor,
-                    "prcc": self.coefficient[o, f],
-                    "p_value": self.p_value[o, f],
-                    "ci_low": self.ci_low[o, f],
-                    "ci_high": self.ci_high[o, f],
-                })
-        return pd.DataFrame.from_records(records)
+        return _per_output_and_factor(self.outputs, self.factors, {
+            "prcc": self.coefficient, "p_value": self.p_value, "ci_low": self.ci_low, "ci_high": self.ci_high,
+        })
 
     def summary(self) -> str:
         """A table per output, factors ranked by the size of their coefficient."""

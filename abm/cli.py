@@ -88,6 +88,12 @@ def cmd_run(args: argparse.Namespace) -> int:
 DEMO_EXPERIMENT = REPO_WORLDS / "kestrel_quay" / "demo_experiment.yaml"
 
 
+def _interrupted(command: str, out: str | Path) -> int:
+    """Ctrl-C during a resumable command: say what is kept and how to go on."""
+    print(f"undertow {command}: interrupted; complete runs are kept in {out}; add --resume to finish", file=sys.stderr)
+    return EXIT_INTERRUPTED
+
+
 def cmd_demo(args: argparse.Namespace) -> int:
     """Run the bundled demo experiment on local processes, then brief it."""
     from .analysis.estimator_check import cached_estimates
@@ -114,8 +120,7 @@ def cmd_demo(args: argparse.Namespace) -> int:
         result = run_batch(DEMO_EXPERIMENT, out, "processes", args.workers, None, resume, command,
                            extensions=(cached_estimates,))
     except KeyboardInterrupt:
-        print(f"undertow demo: interrupted; complete runs are kept in {out}; add --resume to finish", file=sys.stderr)
-        return EXIT_INTERRUPTED
+        return _interrupted("demo", out)
     print(f"{spec.name}: {result.total - result.failed} of {result.total} runs complete ({result.ran} run now)")
     if result.failed:
         print(f"undertow demo: {result.failed} runs failed; the briefing covers the rest (errors in {out})",
@@ -200,8 +205,7 @@ def cmd_batch(args: argparse.Namespace) -> int:
             extensions=(cached_estimates,),
         )
     except KeyboardInterrupt:
-        print(f"undertow batch: interrupted; complete runs are kept in {args.out}; add --resume to finish", file=sys.stderr)
-        return EXIT_INTERRUPTED
+        return _interrupted("batch", args.out)
     return EXIT_OK if ok else EXIT_FAULT
 
 
@@ -216,8 +220,7 @@ def cmd_calibrate(args: argparse.Namespace) -> int:
             ["undertow", *args.argv],
         )
     except KeyboardInterrupt:
-        print(f"undertow calibrate: interrupted; finished runs are kept in {args.out}; add --resume to finish", file=sys.stderr)
-        return EXIT_INTERRUPTED
+        return _interrupted("calibrate", args.out)
     return EXIT_OK
 
 
@@ -231,8 +234,7 @@ def cmd_optimise(args: argparse.Namespace) -> int:
             ["undertow", *args.argv],
         )
     except KeyboardInterrupt:
-        print(f"undertow optimise: interrupted; finished runs are kept in {args.out}; add --resume to finish", file=sys.stderr)
-        return EXIT_INTERRUPTED
+        return _interrupted("optimise", args.out)
     return EXIT_OK
 
 def _whole_number(minimum: int, what: str = "number") -> Callable[[str], int]:

@@ -104,7 +104,7 @@ class PortModel(mesa.Model):
         self.behaviour.start_of_day(day, staffing, self.behaviour_rng)
         groups = self.agents_by_type.get(ConcealmentAgent, ())
         attempting = [agent for agent in groups if agent.will_attempt(day)]
-        options = self.behaviour.choose(attempting, self.rng).astype(np.int64)
+        options = np.asarray(self.behaviour.choose(attempting, self.rng), dtype=np.int64)
         for agent, option in zip(attempting, options, strict=True):
             agent.option = int(option)
         point, band, vclass = self.options.unravel(options)

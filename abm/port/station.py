@@ -47,7 +47,8 @@ class StationRules:
 
 @dataclass(frozen=True)
 class MethodTables:
-    """Per-method factors of the day: detection, false alarms and durations by class, cargo and depth."""
+    """The day's factors: each method's detection, false alarms and durations by class, cargo and depth,
+    and each class's risk weight (for targeted selection)."""
 
     class_risk: np.ndarray  # (C,)
     service_factor: np.ndarray  # (M, C, K)

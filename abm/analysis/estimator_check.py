@@ -71,9 +71,8 @@ from __future__ import annotations
 import json
 import math
 import re
-from collections.abc import Callable, Iterable, Mapping, Sequence
+from collections.abc import Iterable, Mapping, Sequence
 from dataclasses import dataclass
-from functools import partial
 from pathlib import Path
 from typing import Any, Literal
 
@@ -82,25 +81,12 @@ import pandas as pd
 from scipy import stats
 
 from ..errors import InputError
-from ..estimate import (
-    chao,
-    chao_bias_corrected,
-    chapman,
-    expansion,
-    removal_carle_strub,
-    removal_relative_sensitivity,
-    removal_two_pass,
-    removal_zippin,
-    zelterman,
-    ztp,
-    ztp_regression,
-)
-from ..estimate.expansion import EXPANSION, Sensitivities, expansion_name
+from ..estimate.expansion import EXPANSION, Sensitivities
 from ..estimate.frequency import CHAO, CHAO_BC, ZELTERMAN, ZTP, ZTP_REGRESSION
-from ..estimate.inputs import primary_stations, read_tables
+from ..estimate.inputs import read_tables
 from ..estimate.removal import CARLE_STRUB, RELATIVE, TWO_PASS, ZIPPIN
-from ..estimate.report import relative_sensitivities, run_all
-from ..estimate.results import DEFAULT_LEVEL, EstimateResult, EstimatorCannotRun, z_value
+from ..estimate.report import run_all
+from ..estimate.results import DEFAULT_LEVEL, EstimateResult, z_value
 from ..estimate.twosample import CHAPMAN
 from ..estimate.windows import Window, check_window
 from ..records import read_truth, write_json
@@ -373,49 +359,10 @@ def _sensitivities(choice: SensitivityChoice, world: World | None) -> Sensitivit
     return choice
 
 
-def _one_by_one(
-    tables: Mapping[str, pd.DataFrame], window: Window, level: float, sensitivities: Sensitivities | None
-) -> tuple[list[EstimateResult], list[tuple[str, str]]]:
-    """The estimators of run_all, each isolated, so one failing in an unforeseen way spoils no other."""
-
-    def relative() -> EstimateResult:
-        weights = relative_sensitivities(tables, window, sensitivities)
-        return removal_relative_sensitivity(tables, window, level, sensitivities=weights)
-
-    jobs: list[tuple[str, Callable[[], EstimateResult]]] = [
-        (name, partial(fn, tables, window, level))
-        for name, fn in (
-            (CHAO, chao), (CHAO_BC, chao_bias_corrected), (ZELTERMAN, zelterman), (ZTP, ztp),
-            (ZTP_REGRESSION, ztp_regression), (CHAPMAN, chapman), (TWO_PASS, removal_two_pass),
-            (CARLE_STRUB, removal_carle_strub), (ZIPPIN, removal_zippin),
-        )
-    ]
-    jobs.append((RELATIVE, relative))
-    results: list[EstimateResult] = []
-    failures: list[tuple[str, str]] = []
-    try:
-        stations = primary_stations(tables["stations"], EXPANSION)
-    except Exception as exc:  # noqa: BLE001 - reported, not raised
-        failures.append((EXPANSION, str(exc)))
-        stations = []
-    jobs += [
-        (expansion_name(s), partial(expansion, tables, window, level, sensitivities=sensitivities, station=s))
-        for s in stations
-    ]
-    for name, job in jobs:
-        try:
-            results.append(job())
-        except EstimatorCannotRun as exc:
-            failures.append((name, exc.reason))
-        except Exception as exc:  # noqa: BLE001 - an estimator fault must not stop the others
-            failures.append((name, f"{type(exc).__name__}: {exc}"))
-    return results, failures
-
-
 def run_estimators(
     run_dir: str | Path, window: Window = None, level: float = DEFAULT_LEVEL, sensitivities: SensitivityChoice = "world"
 ) -> tuple[list[EstimateResult], list[tuple[str, str]]]:
-    """Every estimator on a run's observed records: run_all, or each isolated if run_all itself fails.
+    """Every estimator on a run's observed records (run_all, each estimator isolated from the others' faults).
 
     ``sensitivities="world"`` builds them from the run's world.json
     (:func:`sensitivities_from_world`); None leaves the expansion and the
@@ -424,13 +371,7 @@ def run_estimators(
     """
     world = read_world(run_dir) if isinstance(sensitivities, str) else None
     chosen = _sensitivities(sensitivities, world)
-    tables = read_tables(run_dir)
-    try:
-        return run_all(tables, window, level, chosen)
-    except EstimatorCannotRun:
-        raise
-    except Exception:  # noqa: BLE001 - a fault in one estimator: run them one by one
-        return _one_by_one(tables, window, level, chosen)
+    return run_all(read_tables(run_dir), window, level, chosen, isolate=True)
 
 
 # --------------------------------------------------------------------------- per-run comparison

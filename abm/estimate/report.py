@@ -71,8 +71,12 @@ def run_all(
     sensitivities: Sensitivities | None = None,
     *,
     rng: np.random.Generator | None = None,
+    isolate: bool = False,
 ) -> tuple[list[EstimateResult], list[tuple[str, str]]]:
     """Every estimator that can run, and (name, reason) for each that cannot.
+
+    With ``isolate`` an estimator that fails in an unforeseen way (any other
+    error) is listed among those that cannot run, so it spoils no other.
 
     Without ``sensitivities`` (Beta(a, b) per station or check method) the
     expansion and the relative-sensitivity removal cannot run. The relative
@@ -111,6 +115,11 @@ def run_all(
     except EstimatorCannotRun as exc:
         failures.append((EXPANSION, exc.reason))
         stations = []
+    except Exception as exc:
+        if not isolate:
+            raise
+        failures.append((EXPANSION, f"{type(exc).__name__}: {exc}"))
+        stations = []
     jobs += [
         (
             expansion_name(station),
@@ -123,6 +132,10 @@ def run_all(
             results.append(job())
         except EstimatorCannotRun as exc:
             failures.append((name, exc.reason))
+        except Exception as exc:
+            if not isolate:
+                raise
+            failures.append((name, f"{type(exc).__name__}: {exc}"))
     return results, failures
 
 

@@ -40,6 +40,7 @@ from abm.analysis.estimator_check import (
     passed_unfound,
     persons_at_risk,
     relative_bias_interval,
+    run_estimators,
     runs_from_store,
     sensitivities_from_world,
     summarise_check,
@@ -48,6 +49,7 @@ from abm.analysis.estimator_check import (
     wilson_interval,
 )
 from abm.estimate.expansion import expansion_name
+from abm.estimate.frequency import CHAO
 from abm.estimate.report import run_all
 from abm.experiment.single import run_to_directory
 from abm.world import load_world, parse_world, read_yaml_mapping
@@ -358,6 +360,24 @@ def test_estimates_for_run_are_finite_or_none_and_deterministic(layered_runs, tm
 
     truth = truth_for_run(run)
     assert truth["truth_removal_zippin"] == truth["truth_expansion_first_check"] > 0
+
+
+def test_an_estimator_that_breaks_unexpectedly_spoils_no_other(layered_runs, monkeypatch):
+    import abm.estimate.report as report
+
+    run = layered_runs[0][0]
+    clean, _ = run_estimators(run)
+    assert CHAO in [r.method for r in clean]
+
+    def broken(*args, **kwargs):
+        raise RuntimeError("deliberately broken for this test")
+
+    monkeypatch.setattr(report, "chao", broken)
+    results, failures = run_estimators(run)
+    assert (CHAO, "RuntimeError: deliberately broken for this test") in failures
+    assert [r.method for r in results] == [r.method for r in clean if r.method != CHAO]
+    with pytest.raises(RuntimeError):
+        run_all(run, None, 0.9)  # outside the check, a broken estimator is a bug that must be seen
 
 
 def test_estimates_for_run_never_raises_when_estimators_cannot_run(tmp_path):

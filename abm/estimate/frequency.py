@@ -21,9 +21,9 @@ import numpy as np
 import pandas as pd
 from scipy import optimize
 
-from .inputs import Observed, identified, load_tables
+from .inputs import Observed, load_tables
 from .results import DEFAULT_LEVEL, EstimateResult, EstimatorCannotRun, make_result
-from .windows import Window, check_window, in_window, window_text
+from .windows import Window, check_window, identified_in_window
 
 CHAO = "Chao (1987) lower bound"
 CHAO_BC = "Chao (1987) lower bound, bias-corrected"
@@ -77,12 +77,7 @@ def _persons(
     window = check_window(window, estimator)
     columns = ["encounter_id", "day", "minute", "person_ref", *covariates]
     encounters = load_tables(observed, {"encounters": list(dict.fromkeys(columns))}, estimator)["encounters"]
-    encounters = in_window(encounters, window)
-    if encounters.empty:
-        raise EstimatorCannotRun(estimator, f"no encounters in the window ({window_text(window)})")
-    known = identified(encounters)
-    if known.empty:
-        raise EstimatorCannotRun(estimator, f"no identified persons in the window ({window_text(window)})")
+    encounters, known = identified_in_window(encounters, window, estimator)
     known = known.sort_values(["day", "minute", "encounter_id"], kind="stable")
     grouped = known.groupby("person_ref", sort=True)
     persons = pd.DataFrame({"count": grouped["encounter_id"].nunique()})

@@ -10,9 +10,9 @@ from __future__ import annotations
 
 import dataclasses
 
-from .inputs import Observed, identified, load_tables
+from .inputs import Observed, load_tables
 from .results import DEFAULT_LEVEL, EstimateResult, EstimatorCannotRun, make_result
-from .windows import Window, check_window, in_window, span_of, split_window, window_text
+from .windows import Window, check_window, identified_in_window, in_window, span_of, split_window, window_text
 
 CHAPMAN = "Chapman (1951) two-sample estimator"
 SOURCE = "Chapman (1951); variance Seber (1982), The Estimation of Animal Abundance, 2nd ed."
@@ -66,12 +66,7 @@ def chapman(observed: Observed, window: Window = None, level: float = DEFAULT_LE
     tables = load_tables(observed, {"encounters": ["day", "person_ref"]}, CHAPMAN)
     encounters = tables["encounters"]
     span = window if window is not None else span_of(tables, CHAPMAN)
-    encounters = in_window(encounters, span)
-    if encounters.empty:
-        raise EstimatorCannotRun(CHAPMAN, f"no encounters in the window ({window_text(span)})")
-    known = identified(encounters)
-    if known.empty:
-        raise EstimatorCannotRun(CHAPMAN, f"no identified persons in the window ({window_text(span)})")
+    _, known = identified_in_window(encounters, span, CHAPMAN)
     early, late = split_window(span, CHAPMAN)
     first = set(in_window(known, early)["person_ref"])
     second = set(in_window(known, late)["person_ref"])

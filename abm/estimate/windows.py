@@ -7,7 +7,7 @@ from collections.abc import Callable, Iterable, Mapping
 import pandas as pd
 
 from ..errors import InputError
-from .inputs import Observed, read_tables
+from .inputs import Observed, identified, read_tables
 from .results import EstimateResult, EstimatorCannotRun
 
 Window = tuple[int, int] | None
@@ -81,3 +81,14 @@ def by_window(
             failures.append((window, exc.reason))
     frame = pd.concat(frames, ignore_index=True) if frames else pd.DataFrame()
     return frame, failures
+
+
+def identified_in_window(encounters: pd.DataFrame, window: Window, estimator: str) -> tuple[pd.DataFrame, pd.DataFrame]:
+    """The encounters in ``window`` and those of them that are identified; EstimatorCannotRun if either is empty."""
+    encounters = in_window(encounters, window)
+    if encounters.empty:
+        raise EstimatorCannotRun(estimator, f"no encounters in the window ({window_text(window)})")
+    known = identified(encounters)
+    if known.empty:
+        raise EstimatorCannotRun(estimator, f"no identified persons in the window ({window_text(window)})")
+    return encounters, known

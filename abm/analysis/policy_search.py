@@ -95,11 +95,11 @@ from typing import Annotated, Any, Literal, Protocol
 
 import numpy as np
 import pandas as pd
-from pydantic import Field, ValidationError
+from pydantic import Field
 from scipy import optimize, stats
 
 from ..experiment.compare import mean_interval
-from ..experiment.design import schema_error
+from ..experiment.design import read_project_file
 from ..errors import InputError
 from ..experiment.executors import Executor, choose_executor, make_executor
 from ..experiment.single import SUMMARY_SOURCES, package_versions
@@ -829,12 +829,7 @@ class OptimisationPlan:
 
 def load_optimisation(path: str | Path) -> OptimisationPlan:
     """Read and validate an optimisation file; raise :class:`OptimisationFileError` naming the key at fault."""
-    source = Path(path)
-    data = read_yaml_mapping(source)
-    try:
-        spec = Optimisation.model_validate(data)
-    except ValidationError as exc:
-        raise schema_error(exc, data, source, Optimisation, OptimisationFileError) from None
+    source, data, spec = read_project_file(path, Optimisation, OptimisationFileError)
 
     def fail(key: str, message: str) -> OptimisationFileError:
         return OptimisationFileError(source, key, message)

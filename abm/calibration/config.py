@@ -40,12 +40,12 @@ from pathlib import Path
 from typing import Annotated, Any, Literal
 
 import numpy as np
-from pydantic import Field, ValidationError
+from pydantic import Field
 
 from ..errors import InputError
 from ..world import WorldFileError, file_hash, parse_world, read_yaml_mapping
 from ..world.paths import PathProblem, get_path, set_path
-from ..experiment.design import schema_error
+from ..experiment.design import read_project_file
 from ..world.schema import NumberOnly, Strict
 from .priors import DISTRIBUTIONS, Prior, PriorError, PriorSet
 from .summaries import DEFAULT_GROUPS, SUMMARY_GROUPS, SummarySpec, observed_span
@@ -235,12 +235,7 @@ def _numbers_in(node: Any) -> bool:
 
 def load_calibration(path: str | Path) -> CalibrationPlan:
     """Read and validate a calibration file; raise :class:`CalibrationFileError` naming the key at fault."""
-    source = Path(path)
-    data = read_yaml_mapping(source)
-    try:
-        spec = Calibration.model_validate(data)
-    except ValidationError as exc:
-        raise schema_error(exc, data, source, Calibration, CalibrationFileError) from None
+    source, data, spec = read_project_file(path, Calibration, CalibrationFileError)
     _check_method(spec, source)
     for i, group in enumerate(spec.summaries):
         if group not in SUMMARY_GROUPS:

@@ -25,7 +25,7 @@ import json
 from collections.abc import Callable, Iterator, Sequence
 from dataclasses import dataclass
 from pathlib import Path
-from typing import Any
+from typing import Any, TypeVar
 
 import numpy as np
 from pydantic import BaseModel, ValidationError
@@ -172,12 +172,7 @@ def is_experiment_file(path: str | Path) -> bool:
 
 def load_plan(path: str | Path) -> Plan:
     """Read, validate and expand an experiment file; raise ExperimentFileError (or WorldFileError)."""
-    source = Path(path)
-    data = read_yaml_mapping(source)
-    try:
-        spec = Experiment.model_validate(data)
-    except ValidationError as exc:
-        raise schema_error(exc, data, source, Experiment, ExperimentFileError) from None
+    source, data, spec = read_project_file(path, Experiment, ExperimentFileError)
     _check_design_keys(spec, source)
     world_path = source.parent / spec.world
     if not world_path.is_file():
@@ -420,6 +415,25 @@ def _factorial_comparators(factors: Sequence[PlannedFactor], combos: Sequence[tu
 
 
 # -- helpers --------------------------------------------------------------------------------
+
+
+Spec = TypeVar("Spec", bound=BaseModel)
+
+
+def read_project_file(
+    path: str | Path, model: type[Spec], error_type: type[WorldFileError]
+) -> tuple[Path, dict[str, Any], Spec]:
+    """Read a project file (experiment, calibration, optimisation) and validate it against ``model``.
+
+    Returns the file's path, its raw mapping and the validated spec; a schema
+    problem raises ``error_type`` in one line naming the key (:func:`schema_error`).
+    """
+    source = Path(path)
+    data = read_yaml_mapping(source)
+    try:
+        return source, data, model.model_validate(data)
+    except ValidationError as exc:
+        raise schema_error(exc, data, source, model, error_type) from None
 
 
 def schema_error(

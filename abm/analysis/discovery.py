@@ -295,12 +295,14 @@ def _peel(
         if best is None:
             return pd.DataFrame.from_records(records)
         _, j, face, bound = best
-        if face == "low":
-            lows[j] = bound
-        else:
-            highs[j] = bound
-        inside = _inside(x, lows, highs)
+        inside = _move_face(x, lows, highs, j, face, bound)
         records.append(_record(len(records), f"{factors[j]} {face}", y, inside, lows, highs, factors))
+
+
+def _move_face(x: np.ndarray, lows: np.ndarray, highs: np.ndarray, j: int, face: str, bound: float) -> np.ndarray:
+    """Set factor ``j``'s ``face`` ("low" or "high") of the box to ``bound`` (in place); the runs now inside."""
+    (lows if face == "low" else highs)[j] = bound
+    return _inside(x, lows, highs)
 
 
 def _record(
@@ -353,11 +355,7 @@ def _paste(
         if best is None:
             return lows, highs, steps
         _, j, face, bound = best
-        if face == "low":
-            lows[j] = bound
-        else:
-            highs[j] = bound
-        inside = _inside(x, lows, highs)
+        inside = _move_face(x, lows, highs, j, face, bound)
         coverage, density, mass = _measures(y, inside)
         steps.append({"pasted": f"{factors[j]} {face}", "coverage": coverage, "density": density, "mass": mass,
                       "runs": int(inside.sum())})

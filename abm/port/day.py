@@ -10,9 +10,11 @@ referred vehicle skips the stations in between) and continues from there.
 After the last station come the boarding points before departure, then sailings.
 
 Lanes carry their state between days, so a vehicle still queueing at midnight
-is served by the next day's lanes: vehicles carry over. The only approximation
-is at that boundary: a late vehicle of one day is queued ahead of every vehicle
-of the next day at each station.
+is served by the next day's lanes: vehicles carry over, and checks start in
+arrival order across midnight too (:class:`abm.port.queues.FifoCarry`). The
+only approximation is at that boundary: a late vehicle of one day has its lane
+before the next day's pass at each station, so a vehicle of the next day that
+arrived before it cannot use that lane until the late check ends.
 
 Conditions of the day and of each vehicle change how methods work:
 
@@ -49,7 +51,7 @@ from .checks import StationDraws, draw_for_station
 from .layout import DEPARTURE, MONTH_OF_YEAR_DAY, Layout
 from .boarding import fitting_vehicles, stopping_of_class
 from .queues import board_sailings
-from .station import METHOD_COUNTERS, MethodTables, StationPass, StationRules, VehicleState, check_station
+from .station import METHOD_COUNTERS, FifoCarry, MethodTables, StationPass, StationRules, VehicleState, check_station
 from .traffic import MINUTES_PER_DAY, DayTraffic, generate_traffic
 
 SAILING_HORIZON_DAYS = 7  # sailings are looked up this many days ahead of the arrival day
@@ -154,7 +156,7 @@ class DayEngine:
         self.condition_rngs = [np.random.default_rng(s) for s in detection_seq.spawn(n_s)]
         self.free = [np.full(int(lanes), -np.inf) for lanes in layout.station_lanes]
         self.worked = [np.zeros(int(lanes)) for lanes in layout.station_lanes]  # minutes since each lane's rest
-        self.floor = [np.full(1, -np.inf) for _ in layout.station_lanes]  # each station's last check start (FIFO)
+        self.carry = [FifoCarry.empty() for _ in layout.station_lanes]  # each station's late checks (FIFO)
         self.sailing_left: dict[int, np.ndarray] = {}
         self._tables: dict[int, MethodTables] = {}
         self._rules: dict[tuple[int, int, int, bool], StationRules] = {}
@@ -308,7 +310,7 @@ class DayEngine:
             worked = self.worked[s] if np.isfinite(rules.work_limit) else np.zeros(self.free[s].shape[0])
             done = check_station(
                 rows, arrive, vehicles, service, busy_service, d.u_select, d.risk_noise, d.u_detect, d.u_false,
-                rules, tables, staffed, origin, self.free[s], worked, self.floor[s], counters, lay.station_method.shape[0],
+                rules, tables, staffed, origin, self.free[s], worked, self.carry[s], counters, lay.station_method.shape[0],
             )  # fmt: skip
             if done.unservable:
                 name = lay.world.stations[s].name

@@ -17,6 +17,15 @@ checks (idle or off duty) also counts as a rest. The minutes worked at the
 start of each check are returned so the caller can set that check's sensitivity.
 With infinite limits (the default) nothing rests and the queue is the plain one.
 
+First-in-first-out holds across midnight through a :class:`FifoCarry`: the
+checks of earlier days that start after the new day begins, with their
+arrivals. A vehicle of the new day starts no earlier than any of those that
+arrived before it; those that arrived after it do not hold it back (it was
+ahead of them in the queue). Lanes, though, keep their next free minute, so a
+lane busy with an earlier day's late check cannot be used before that check
+ends, even by a vehicle that arrived before it: the one approximation left at
+the day boundary.
+
 :func:`station_pass` wraps the recursion in a station's whole pass over a day
 (arrival order, selection chances, detection, alarms, referral, counts); its
 typed front is :func:`abm.port.station.check_station`. It lives here, beside
@@ -27,6 +36,8 @@ event simulator, which would dominate a simulated year.
 """
 
 from __future__ import annotations
+
+from dataclasses import dataclass
 
 import numba
 import numpy as np
@@ -51,6 +62,25 @@ _CHECKS, _ALARMS, _LOGGED_FALSE, _MINUTES, _OCCUPIED, _FOUND, _TRUE_ALARMS, _FAL
 
 
 NEVER = 1 << 30  # hours until a lane that is never on duty comes on duty
+MINUTES_PER_DAY = 1440.0
+
+
+@dataclass
+class FifoCarry:
+    """A station's checks from earlier days that start after the current day begins (kept for FIFO).
+
+    ``arrival`` is ascending; ``start`` is the latest check start among the
+    vehicles that arrived at or before each ``arrival`` (a running maximum), so a
+    new vehicle arriving at minute a may start no earlier than ``start`` at the
+    last ``arrival`` <= a.
+    """
+
+    arrival: np.ndarray
+    start: np.ndarray
+
+    @classmethod
+    def empty(cls) -> "FifoCarry":
+        return cls(np.zeros(0), np.zeros(0))
 
 
 @numba.njit(cache=True)
@@ -120,7 +150,7 @@ def serve_fifo(
     rest_minutes: float = np.inf,
     worked_at_start: np.ndarray | None = None,
     *,
-    floor: np.ndarray | None = None,
+    carry: FifoCarry | None = None,
 ) -> tuple[np.ndarray, np.ndarray, np.ndarray, np.ndarray]:
     """Run one station's queue for a day's arrivals (sorted ascending).
 
@@ -135,10 +165,9 @@ def serve_fifo(
     docstring; ``worked_at_start`` (one entry per vehicle) receives, for each
     checked vehicle, its lane's minutes worked when the check starts.
 
-    ``floor`` (one entry, absolute minutes) is the start of the station's last
-    check, updated in place: passed from day to day it keeps first-in-first-out
-    across midnight, so nobody of a new day starts before a late vehicle of the
-    day before that is still queueing.
+    ``carry`` (see :class:`FifoCarry`) is replaced by this day's: passed from day
+    to day it keeps first-in-first-out across midnight, so nobody of a new day
+    starts before a vehicle of an earlier day that arrived before it.
 
     Returns start, end (both equal to arrival for unchecked vehicles), a checked
     flag and a busy flag. An unservable vehicle (no lane ever fits) gets start inf.
@@ -148,12 +177,13 @@ def serve_fifo(
         worked = np.zeros(free.shape[0])
     if worked_at_start is None:
         worked_at_start = np.zeros(arrival.shape[0])
-    if floor is None:
-        floor = np.full(1, -np.inf)
-    return _serve(
+    if carry is None:
+        carry = FifoCarry.empty()
+    start, end, checked, busy, carry.arrival, carry.start = _serve(
         arrival, service, busy_service, u_select, p_normal, p_busy, queue_threshold, staffed, origin, free,
-        worked, float(work_limit), float(rest_minutes), worked_at_start, floor,
+        worked, float(work_limit), float(rest_minutes), worked_at_start, carry.arrival, carry.start,
     )  # fmt: skip
+    return start, end, checked, busy
 
 
 @numba.njit(cache=True)
@@ -172,9 +202,13 @@ def _serve(
     work_limit: float,
     rest_minutes: float,
     worked_at_start: np.ndarray,
-    floor: np.ndarray,
-) -> tuple[np.ndarray, np.ndarray, np.ndarray, np.ndarray]:
-    """The compiled recursion behind :func:`serve_fifo` (same arguments, all given)."""
+    carry_arrival: np.ndarray,
+    carry_start: np.ndarray,
+) -> tuple[np.ndarray, np.ndarray, np.ndarray, np.ndarray, np.ndarray, np.ndarray]:
+    """The compiled recursion behind :func:`serve_fifo` (same arguments, all given, the carry unpacked).
+
+    Returns start, end, checked, busy and the next day's carry (arrival, start).
+    """
     n = arrival.shape[0]
     start = arrival.copy()
     end = arrival.copy()
@@ -183,7 +217,9 @@ def _serve(
     starts = np.empty(n)  # starts of checked vehicles, non-decreasing by FIFO
     n_checked = 0
     head = 0  # first checked vehicle whose check has not begun at the current arrival
-    last_start = floor[0]
+    last_start = -np.inf
+    earlier = 0  # carried checks whose vehicles arrived at or before the current arrival
+    n_carry = carry_arrival.shape[0]
     lanes = free.shape[0]
     until_on, stays_on = duty_tables(staffed, lanes)
     for i in range(n):
@@ -197,7 +233,11 @@ def _serve(
         duration = busy_service[i] if is_busy else service[i]
         best_t = np.inf
         best_lane = -1
+        while earlier < n_carry and carry_arrival[earlier] <= a:
+            earlier += 1
         ready = max(a, last_start)
+        if earlier > 0:
+            ready = max(ready, carry_start[earlier - 1])
         for lane in range(lanes):
             earliest = max(ready, free[lane])
             if earliest >= best_t:
@@ -225,8 +265,38 @@ def _serve(
             last_start = best_t
         starts[n_checked] = best_t
         n_checked += 1
-    floor[0] = last_start
-    return start, end, checked, busy
+    next_arrival, next_start = _next_carry(carry_arrival, carry_start, arrival, start, checked, origin + MINUTES_PER_DAY)
+    return start, end, checked, busy, next_arrival, next_start
+
+
+@numba.njit(cache=True)
+def _next_carry(
+    carry_arrival: np.ndarray,
+    carry_start: np.ndarray,
+    arrival: np.ndarray,
+    start: np.ndarray,
+    checked: np.ndarray,
+    next_origin: float,
+) -> tuple[np.ndarray, np.ndarray]:
+    """The carry for the day starting at ``next_origin``: every check starting after it, in arrival order.
+
+    The old carry's running maxima stand for the checks they summarise (a new
+    vehicle's bound only needs the maximum over those that arrived before it).
+    """
+    keep_old = carry_start > next_origin
+    keep_new = checked & (start > next_origin)
+    n_old, n_new = int(keep_old.sum()), int(keep_new.sum())
+    arrivals = np.empty(n_old + n_new)
+    starts = np.empty(n_old + n_new)
+    arrivals[:n_old] = carry_arrival[keep_old]
+    starts[:n_old] = carry_start[keep_old]
+    arrivals[n_old:] = arrival[keep_new]
+    starts[n_old:] = start[keep_new]
+    order = np.argsort(arrivals, kind="mergesort")
+    arrivals, starts = arrivals[order], starts[order]
+    for i in range(1, starts.shape[0]):
+        starts[i] = max(starts[i], starts[i - 1])
+    return arrivals, starts
 
 
 @numba.njit(cache=True)
@@ -236,12 +306,14 @@ def station_pass(
     station, rule, secondary, stands_down, threshold, noise_sd,
     fraction, busy_fraction, queue_threshold, main, busy_method, refer, work_limit, rest_minutes,
     class_risk, service_factor, detect, cargo_detect, depth_detect, fatigue_decay, false_alarm, cargo_false,
-    staffed, origin, free, worked, floor, counters, n_stations,
+    staffed, origin, free, worked, carry_arrival, carry_start, counters, n_stations,
 ):  # fmt: skip
     """A station's pass over the day's vehicles: the compiled body of :func:`abm.port.station.check_station`.
 
     Takes that function's arguments unpacked (its dataclasses' fields in
-    order), with ``rows`` and ``arrival`` sorted by arrival, and returns :class:`abm.port.station.StationPass`'s fields in order.
+    order, the carry as its two arrays), with ``rows`` and ``arrival`` sorted by
+    arrival, and returns :class:`abm.port.station.StationPass`'s fields in order
+    with the next day's carry (arrival, start).
     """
     arrive = arrival
     n = rows.shape[0]
@@ -272,9 +344,9 @@ def station_pass(
         busy_duration[i] = busy_service[r] * service_factor[busy_method, c, k]
         u_sel[i] = u_select[r]
     worked_at_start = np.zeros(n)
-    start, end, checked, busy = _serve(
+    start, end, checked, busy, next_arrival, next_start = _serve(
         arrive, duration, busy_duration, u_sel, p_normal, p_busy, queue_threshold if queue_aware else 0,
-        staffed, origin, free, worked, work_limit, rest_minutes, worked_at_start, floor,
+        staffed, origin, free, worked, work_limit, rest_minutes, worked_at_start, carry_arrival, carry_start,
     )  # fmt: skip
 
     method = np.empty(n, dtype=np.int64)
@@ -329,7 +401,7 @@ def station_pass(
         cal_day = int(np.floor(arrive[i] / 1440.0))
         clock_hour = int(np.floor(arrive[i] / 60.0)) % 24
         key[i] = (((cal_day * 24 + clock_hour) * n_stations + station) * n_classes + c) * n_methods + m
-    return rows, arrive, start, end, checked, method, alarm, hit, logged_false, key
+    return (rows, arrive, start, end, checked, method, alarm, hit, logged_false, key), (next_arrival, next_start)
 
 
 @numba.njit(cache=True)

@@ -21,9 +21,9 @@ from dataclasses import dataclass
 
 import numpy as np
 
-from .queues import METHOD_COUNTERS, station_pass
+from .queues import METHOD_COUNTERS, FifoCarry, station_pass
 
-__all__ = ["METHOD_COUNTERS", "MethodTables", "StationPass", "StationRules", "VehicleState", "check_station"]
+__all__ = ["METHOD_COUNTERS", "FifoCarry", "MethodTables", "StationPass", "StationRules", "VehicleState", "check_station"]
 
 @dataclass(frozen=True)
 class StationRules:
@@ -112,14 +112,14 @@ def check_station(
     origin: float,
     free: np.ndarray,
     worked: np.ndarray,
-    floor: np.ndarray,
+    carry: FifoCarry,
     counters: np.ndarray,
     n_stations: int,
 ) -> StationPass:
     """Run station ``rules.station`` for vehicles ``rows`` arriving at ``arrival`` (any order).
 
     Per-vehicle draws (``service`` ... ``u_false``) are indexed by vehicle. The
-    lanes' state (``free``, ``worked``, ``floor``, as in :func:`abm.port.queues.serve_fifo`)
+    lanes' state (``free``, ``worked``, ``carry``, as in :func:`abm.port.queues.serve_fifo`)
     and ``vehicles`` are updated in place: found people leave ``aboard``, alarms
     refer vehicles on, every vehicle's ``ready`` becomes the end of its check.
     ``counters`` (len(METHOD_COUNTERS), methods x cargo types) accumulates the
@@ -135,6 +135,7 @@ def check_station(
         rules.work_limit, rules.rest_minutes,
         tables.class_risk, tables.service_factor, tables.detect, tables.cargo_detect, tables.depth_detect,
         tables.fatigue_decay, tables.false_alarm, tables.cargo_false,
-        staffed, origin, free, worked, floor, counters, n_stations,
+        staffed, origin, free, worked, carry.arrival, carry.start, counters, n_stations,
     )  # fmt: skip
-    return StationPass(*out)
+    fields, (carry.arrival, carry.start) = out
+    return StationPass(*fields)

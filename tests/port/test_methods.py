@@ -119,9 +119,10 @@ BEFORE: dict[str, dict[str, str]] = {
         "daily.parquet": "ffb404f97f4a8839d43331bb83a72b50c1fbffe07b1e118a4e0e67eb9221bc56",
         "observed/checks.parquet": "f17b668ad37069381670e3ca742589067ae0685a3877de798e188e6cb3279685",
         "observed/encounters.parquet": "126bfd0353c729819c10b5a7f566ab55fbc4f21f7c4581fd07707fceeb632a27",
-        # re-made after first-in-first-out was kept across midnight: a search that queued past midnight
-        # now starts after the previous day's late vehicles, which moves some false-alarm minutes
-        "observed/false_alarms.parquet": "2576af62906ba815b7708791079f6e9a2403491c0c68667d36c86aa1966c7ffe",
+        # back to what commit 0f96697 wrote once first-in-first-out across midnight went by arrival
+        # (FifoCarry): the single-value floor in between held a search that arrived after midnight behind
+        # the previous day's later arrivals, which moved some false-alarm minutes
+        "observed/false_alarms.parquet": "2a97add822a3b2f95a7d1b6a0dacc3d1ebf2d12f38fbc4084c3f3a31cf01fdd4",
         "observed/stations.parquet": "8bb3f381f21e48a86b42225ad2ae4ec9b6a1e97a759f0d8d45c1b3093ee7b76c",
         "truth/arrivals.parquet": "b2b591fcb1b0989d8a9aff98aaa78437b39405eaaae1d7b6362340e2e37f91be",
         "truth/attempts.parquet": "114594d95e788d4b0b206549b1a1aa3e3a15080b43e93f0f7f4a6b69fa85d485",

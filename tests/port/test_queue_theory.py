@@ -30,7 +30,7 @@ from scipy import stats
 import abm.port.day as day_module
 from abm.experiment.single import simulate
 from abm.port.day import DayEngine, DayResult
-from abm.port.queues import serve_fifo
+from abm.port.queues import FifoCarry, serve_fifo
 from abm.world import parse_world, read_yaml_mapping
 from abm.world.schema import World
 
@@ -483,13 +483,34 @@ def test_engine_keeps_to_a_two_team_roster() -> None:
 def test_fifo_holds_across_midnight_with_a_roster() -> None:
     day_roster = np.array([2] + [1] * 23)  # 2 lanes, lane 1 on duty 00:00-01:00 only
     free = np.full(2, -np.inf)
-    floor = np.full(1, -np.inf)  # the station's FIFO state, carried from day to day like ``free``
+    carry = FifoCarry.empty()  # the station's FIFO state, carried from day to day like ``free``
     ones = np.ones(2)
     day0 = serve_fifo(np.array([1380.0, 1381.0]), np.array([100.0, 90.0]), np.array([100.0, 90.0]),
-                      np.zeros(2), ones, ones, 0, as_staffed(day_roster), 0.0, free, floor=floor)  # fmt: skip
+                      np.zeros(2), ones, ones, 0, as_staffed(day_roster), 0.0, free, carry=carry)  # fmt: skip
     # the 90-minute check cannot fit lane 1's hour, so it waits for lane 0 (free at 1480)
     assert day0[0][1] == 1480.0
     day1 = serve_fifo(np.array([1441.0]), np.array([30.0]), np.array([30.0]),
-                      np.zeros(1), ones[:1], ones[:1], 0, as_staffed(day_roster), 1440.0, free, floor=floor)  # fmt: skip
+                      np.zeros(1), ones[:1], ones[:1], 0, as_staffed(day_roster), 1440.0, free, carry=carry)  # fmt: skip
     # a vehicle that arrived at 1441 must not start before one that arrived at 1381 and is still queued
     assert day1[0][0] >= day0[0][1]
+
+
+def test_a_late_vehicle_of_the_day_before_does_not_hold_back_one_that_arrived_first() -> None:
+    """First-in-first-out across midnight runs by arrival, not by day (the definition of FIFO).
+
+    Day 0's second vehicle reaches the station at 01:00 of day 1 (1500) and takes a
+    free lane; day 1's vehicle arrived at 00:05 (1445), before it, and a third lane
+    is free then, so it starts at once instead of queueing behind the later arrival.
+    """
+    staffed = as_staffed(np.full(24, 3))
+    free, carry = np.full(3, -np.inf), FifoCarry.empty()
+    one = np.ones(2)
+    day0 = serve_fifo(np.array([1430.0, 1500.0]), np.array([100.0, 10.0]), np.array([100.0, 10.0]),
+                      np.zeros(2), one, one, 0, staffed, 0.0, free, carry=carry)  # fmt: skip
+    assert day0[0].tolist() == [1430.0, 1500.0]
+    np.testing.assert_array_equal(carry.arrival, [1500.0])  # only checks starting after midnight are kept
+    day1 = serve_fifo(np.array([1445.0, 1505.0]), np.array([5.0, 5.0]), np.array([5.0, 5.0]),
+                      np.zeros(2), one, one, 0, staffed, 1440.0, free, carry=carry)  # fmt: skip
+    assert day1[0][0] == 1445.0
+    # the second arrived after the late vehicle, so it may not start before it (it does not need to here)
+    assert day1[0][1] >= 1500.0

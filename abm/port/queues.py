@@ -21,7 +21,8 @@ First-in-first-out holds across midnight through a :class:`FifoCarry`: the
 checks of earlier days that start after the new day begins, with their
 arrivals. A vehicle of the new day starts no earlier than any of those that
 arrived before it; those that arrived after it do not hold it back (it was
-ahead of them in the queue). Lanes, though, keep their next free minute, so a
+ahead of them in the queue). Those that arrived before it and start after it
+arrives are in the queue it finds, so the queue-aware rule counts them. Lanes, though, keep their next free minute, so a
 lane busy with an earlier day's late check cannot be used before that check
 ends, even by a vehicle that arrived before it: the one approximation left at
 the day boundary.
@@ -67,12 +68,11 @@ MINUTES_PER_DAY = 1440.0
 
 @dataclass
 class FifoCarry:
-    """A station's checks from earlier days that start after the current day begins (kept for FIFO).
+    """A station's checks from earlier days that start after the current day begins.
 
-    ``arrival`` is ascending; ``start`` is the latest check start among the
-    vehicles that arrived at or before each ``arrival`` (a running maximum), so a
-    new vehicle arriving at minute a may start no earlier than ``start`` at the
-    last ``arrival`` <= a.
+    ``arrival`` is ascending and ``start`` is each check's start. A new vehicle
+    arriving at minute a starts no earlier than the latest ``start`` among those
+    with ``arrival`` <= a, and finds in the queue those among them with ``start`` > a.
     """
 
     arrival: np.ndarray
@@ -220,24 +220,30 @@ def _serve(
     last_start = -np.inf
     earlier = 0  # carried checks whose vehicles arrived at or before the current arrival
     n_carry = carry_arrival.shape[0]
+    carried_bound = -np.inf  # latest start among those
+    carried_until = carry_start.max() if n_carry else -np.inf  # after this every carried check has begun
     lanes = free.shape[0]
     until_on, stays_on = duty_tables(staffed, lanes)
     for i in range(n):
         a = arrival[i]
         while head < n_checked and starts[head] <= a:
             head += 1
-        is_busy = queue_threshold > 0 and (n_checked - head) >= queue_threshold
+        while earlier < n_carry and carry_arrival[earlier] <= a:
+            carried_bound = max(carried_bound, carry_start[earlier])
+            earlier += 1
+        queued = n_checked - head
+        if queue_threshold > 0 and a < carried_until:
+            for j in range(earlier):  # a handful of vehicles, and only just after midnight
+                if carry_start[j] > a:
+                    queued += 1
+        is_busy = queue_threshold > 0 and queued >= queue_threshold
         p = p_busy[i] if is_busy else p_normal[i]
         if not u_select[i] < p:
             continue
         duration = busy_service[i] if is_busy else service[i]
         best_t = np.inf
         best_lane = -1
-        while earlier < n_carry and carry_arrival[earlier] <= a:
-            earlier += 1
-        ready = max(a, last_start)
-        if earlier > 0:
-            ready = max(ready, carry_start[earlier - 1])
+        ready = max(a, last_start, carried_bound)
         for lane in range(lanes):
             earliest = max(ready, free[lane])
             if earliest >= best_t:
@@ -278,11 +284,7 @@ def _next_carry(
     checked: np.ndarray,
     next_origin: float,
 ) -> tuple[np.ndarray, np.ndarray]:
-    """The carry for the day starting at ``next_origin``: every check starting after it, in arrival order.
-
-    The old carry's running maxima stand for the checks they summarise (a new
-    vehicle's bound only needs the maximum over those that arrived before it).
-    """
+    """The carry for the day starting at ``next_origin``: every check starting after it, in arrival order."""
     keep_old = carry_start > next_origin
     keep_new = checked & (start > next_origin)
     n_old, n_new = int(keep_old.sum()), int(keep_new.sum())
@@ -293,10 +295,7 @@ def _next_carry(
     arrivals[n_old:] = arrival[keep_new]
     starts[n_old:] = start[keep_new]
     order = np.argsort(arrivals, kind="mergesort")
-    arrivals, starts = arrivals[order], starts[order]
-    for i in range(1, starts.shape[0]):
-        starts[i] = max(starts[i], starts[i - 1])
-    return arrivals, starts
+    return arrivals[order], starts[order]
 
 
 @numba.njit(cache=True)

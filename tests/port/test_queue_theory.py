@@ -514,3 +514,24 @@ def test_a_late_vehicle_of_the_day_before_does_not_hold_back_one_that_arrived_fi
     assert day1[0][0] == 1445.0
     # the second arrived after the late vehicle, so it may not start before it (it does not need to here)
     assert day1[0][1] >= 1500.0
+
+
+def test_the_queue_aware_rule_counts_vehicles_still_queued_from_the_day_before() -> None:
+    """Queue length is what a vehicle finds on arrival (the definition), whichever day the others came on.
+
+    One lane, 30-minute checks: day 0's five vehicles arriving at 23:50-23:54 start at
+    1430, 1460, ..., 1550. At 1441 four of them are still waiting; with a threshold
+    of 3 the station is busy, and a busy-only selection (p_normal 0, p_busy 1) checks
+    the day-1 vehicle then; by 1600 they have all begun, and it is not busy.
+    """
+    staffed = as_staffed(np.full(24, 1))
+    free, carry = np.full(1, -np.inf), FifoCarry.empty()
+    service = np.full(5, 30.0)
+    day0 = serve_fifo(np.arange(1430.0, 1435.0), service, service, np.zeros(5), np.ones(5), np.ones(5), 0,
+                      staffed, 0.0, free, carry=carry)  # fmt: skip
+    assert day0[0].tolist() == [1430.0, 1460.0, 1490.0, 1520.0, 1550.0]
+    two = np.ones(2)
+    start, _, checked, busy = serve_fifo(np.array([1441.0, 1600.0]), two, two, np.full(2, 0.5), np.zeros(2), two, 3,
+                                         staffed, 1440.0, free, carry=carry)  # fmt: skip
+    assert checked.tolist() == [True, False] and busy.tolist() == [True, False]
+    assert start[0] == 1580.0  # behind the five that arrived before it

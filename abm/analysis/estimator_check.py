@@ -791,18 +791,31 @@ def estimates_for_run(
 ESTIMATES_CACHE = "estimates_summary.json"
 
 
-def cached_estimates(run_dir: str | Path) -> dict[str, float | None]:
-    """:func:`estimates_for_run` with the run's defaults, kept in ``RUN_DIR/estimates_summary.json``.
+def summarised_days(run_dir: str | Path) -> tuple[int, int]:
+    """The days a run's summary covers, (first, last) inclusive: after its warm-up, from its manifest."""
+    manifest = json.loads((Path(run_dir) / MANIFEST_FILE).read_text(encoding="utf-8"))
+    warmup = int(manifest.get("warmup_days", 0))
+    return warmup, warmup + int(manifest["days"]) - 1
 
-    A batch store calls this for every run each time it rebuilds its summary;
-    the cache is derived from the run's own observed records, written
-    atomically, and recomputed whenever it is missing.
+
+def cached_estimates(run_dir: str | Path) -> dict[str, float | None]:
+    """:func:`estimates_for_run` over the days the run's summary covers, kept in ``RUN_DIR/estimates_summary.json``.
+
+    The window is the one of the run's other summary figures (the warm-up left
+    out, as the briefing does), so the ``est_`` columns of a batch summary
+    estimate what its figures count. A batch store calls this for every run each
+    time it rebuilds its summary; the cache is derived from the run's own
+    observed records, written atomically, names its window, and is recomputed
+    when it is missing or covers other days.
     """
+    window = summarised_days(run_dir)
     path = Path(run_dir) / ESTIMATES_CACHE
     if path.is_file():
-        return json.loads(path.read_text(encoding="utf-8"))
-    values = estimates_for_run(run_dir)
-    write_json(values, path)
+        cached = json.loads(path.read_text(encoding="utf-8"))
+        if cached.get("window") == list(window):
+            return cached["estimates"]
+    values = estimates_for_run(run_dir, window)
+    write_json({"window": list(window), "estimates": values}, path)
     return values
 
 

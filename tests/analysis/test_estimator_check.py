@@ -27,12 +27,14 @@ import pytest
 from scipy import stats
 
 from abm.analysis.estimator_check import (
+    ESTIMATES_CACHE,
     PER_RUN_COLUMNS,
     TRUTH_TABLE,
     Route,
     attempts_reaching,
     bias_sentence,
     briefing_sentences,
+    cached_estimates,
     check_runs,
     clopper_pearson_interval,
     estimates_for_run,
@@ -420,3 +422,17 @@ def test_runs_from_store_reads_factor_values(tmp_path, layered_runs):
     assert [labels for _, labels in found] == [{"lanes": 1}, {"lanes": 2}]
     per_run, _ = check_runs(found)
     assert per_run.attrs["factors"] == ["behaviour", "lanes"]
+
+
+def test_cached_estimates_cover_the_days_the_summary_covers(tmp_path):
+    """A batch summary's est_ columns estimate over the summarised days: the warm-up is left out, as in summary.json."""
+    run = tmp_path / "run"
+    run_to_directory(load_world(DEMO), "test", 12, 5, run, warmup=6)
+    values = cached_estimates(run)
+    assert values == estimates_for_run(run, (6, 17))
+    assert values != estimates_for_run(run)  # every recorded day, warm-up included, estimates something else
+    cache = json.loads((run / ESTIMATES_CACHE).read_text(encoding="utf-8"))
+    assert cache == {"window": [6, 17], "estimates": values}
+    # a cache written for other days (or in the old flat layout) is recomputed, not trusted
+    (run / ESTIMATES_CACHE).write_text(json.dumps({"est_chao": 1.0}), encoding="utf-8")
+    assert cached_estimates(run) == values

@@ -107,9 +107,9 @@ class PortModel(mesa.Model):
         options = np.asarray(self.behaviour.choose(attempting, self.rng), dtype=np.int64)
         for agent, option in zip(attempting, options, strict=True):
             agent.option = int(option)
-        point, band, vclass = self.options.unravel(options)
+        point, band, vclass, depth = (index.astype(np.int64) for index in self.options.unravel(options))
         sizes = np.array([agent.size for agent in attempting], dtype=np.int64)
-        attempts = Attempts(point.astype(np.int64), band.astype(np.int64), vclass.astype(np.int64), sizes)
+        attempts = Attempts(point, band, vclass, sizes, depth)
         result = self.engine.run_day(day, attempts, staffing)
         self.command.observe(self, attempts, result)
 
@@ -135,6 +135,7 @@ class PortModel(mesa.Model):
             attempts_point=attempts.point,
             attempts_band=attempts.band,
             attempts_class=attempts.vehicle_class,
+            attempts_depth=attempts.depth,
             staff_hours=staffing.staff_hours(),
             in_system=self.persons_in_system(),
         )

@@ -41,6 +41,7 @@ TRUTH_COLUMNS: dict[str, dict[str, str]] = {
         "point": "string",
         "band": "string",
         "vehicle_class": "string",
+        "depth": "string",
         "outcome": "string",
         "station": "string",
         "method": "string",
@@ -112,6 +113,7 @@ class RecordBook:
         attempts_point: np.ndarray,
         attempts_band: np.ndarray,
         attempts_class: np.ndarray,
+        attempts_depth: np.ndarray,
         staff_hours: float,
         in_system: int,
     ) -> None:
@@ -133,6 +135,7 @@ class RecordBook:
                 "point": attempts_point,
                 "band": attempts_band,
                 "vehicle_class": attempts_class,
+                "depth": attempts_depth,
                 "outcome": res.outcome,
                 "station": res.station,
                 "method": res.method,
@@ -201,6 +204,7 @@ class RecordBook:
             codes["point"] = np.array(world.point_names, dtype=object)[codes["point"]]
             codes["band"] = np.array(world.band_names, dtype=object)[codes["band"]]
             codes["vehicle_class"] = np.array(world.class_names, dtype=object)[codes["vehicle_class"]]
+            codes["depth"] = np.array([d.name for d in world.depths], dtype=object)[codes["depth"]]
             codes["outcome"] = outcome_names[codes["outcome"]]
             codes["station"] = np.array(world.station_names + [""], dtype=object)[codes["station"]]
             codes["method"] = np.array(world.method_names + [""], dtype=object)[codes["method"]]

@@ -106,7 +106,10 @@ class _Quiet:
 
 
 class StaticBehaviour(_Quiet):
-    """Fixed option probabilities: the product of the world's point, band and class shares."""
+    """Fixed option probabilities: the product of the world's point, band, class and depth shares.
+
+    Without depth shares every attempt hides at the first (shallowest) level.
+    """
 
     name = "static"
 
@@ -118,7 +121,11 @@ class StaticBehaviour(_Quiet):
         point = np.array([shares.point_shares.get(p, 0.0) for p in world.point_names])
         band = np.array([shares.band_shares.get(b, 0.0) for b in world.band_names])
         vclass = np.array([shares.class_shares.get(c, 0.0) for c in world.class_names])
-        flat = (point[:, None, None] * band[None, :, None] * vclass[None, None, :]).reshape(options.size)
+        depth = np.array([shares.depth_shares.get(d.name, 0.0) for d in world.depths])
+        if not shares.depth_shares:
+            depth[0] = 1.0
+        product = point[:, None, None, None] * band[None, :, None, None] * vclass[None, None, :, None]
+        flat = (product * depth[None, None, None, :]).reshape(options.size)
         self.probabilities = flat / flat.sum()
 
     def choose(self, agents: Sequence["ConcealmentAgent"], rng: np.random.Generator) -> np.ndarray:

@@ -19,7 +19,7 @@ Measures
 --------
 Attempt shares
     Persons attempting per option (point x band x vehicle class), per boarding
-    point, per time band and per vehicle class, as shares of all attempts in the
+    point, per time band, per vehicle class and per concealment depth, as shares of all attempts in the
     window (truth), with the total-variation distance ``0.5 * sum |p - q|`` and
     the Jensen-Shannon distance (base 2, so both lie in [0, 1]) between the two
     share vectors.
@@ -51,9 +51,11 @@ Crossings against detections
 Out of the system and hazard
     Persons leaving for a route outside the model per day (truth exits with
     state ``displaced_out``), and the hazard-weighted share of attempts
-    ``sum(persons x hazard(point)) / sum(persons)`` (truth). Hazards come from the
-    first window's world for both windows, so a change reflects where people
-    board, not a re-scored hazard.
+    ``sum(persons x hazard) / sum(persons)`` (truth), an attempt's hazard being
+    its boarding point's plus its depth's, at most 1
+    (:func:`abm.analysis.policy_table.hazard_weighted_share`). Hazards come from the
+    first window's world for both windows, so a change reflects where and how
+    deep people hide, not a re-scored hazard.
 """
 
 from __future__ import annotations
@@ -71,6 +73,7 @@ from scipy.spatial.distance import jensenshannon
 
 from ..errors import InputError
 from ..experiment.single import WORLD_FILE
+from .policy_table import hazard_weighted_share
 from ..observed import read_observed
 from ..records import TRUTH_COLUMNS, TRUTH_DIR, read_truth, write_json
 from ..world import parse_world
@@ -81,7 +84,7 @@ MANIFEST_FILE = "manifest.json"
 DAILY_FILE = "daily.parquet"
 DISPLACEMENT_FILE = "displacement.json"
 # Share tables, each named by the attempts column it counts by ("option" is point/band/vehicle_class).
-DIMENSIONS = ("option", "point", "band", "vehicle_class")
+DIMENSIONS = ("option", "point", "band", "vehicle_class", "depth")
 AREAS = ("response", "buffer", "control")
 DEFAULT_TOLERANCE = 0.10
 WEIGHTED_FIGURES = (
@@ -489,6 +492,8 @@ def _read_run(run_dir: str | Path) -> _Run:
     encounters = read_observed(path)["encounters"]
     attempts = truth["attempts"].copy()
     attempts["option"] = attempts["point"] + "/" + attempts["band"] + "/" + attempts["vehicle_class"]
+    if "depth" not in attempts:  # records from before depth was recorded: every attempt at the first level
+        attempts["depth"] = world.depths[0].name
     seed, warmup = manifest.get("seed"), manifest.get("warmup_days", 0)
     return _Run(
         path=path,
@@ -517,7 +522,10 @@ def _in_window(frame: pd.DataFrame, window: Window) -> pd.DataFrame:
 
 def _option_keys(world: World, dimension: str) -> list[str]:
     """Every value of a dimension in the world's option space, in world order."""
-    names = {"point": world.point_names, "band": world.band_names, "vehicle_class": world.class_names}
+    names = {
+        "point": world.point_names, "band": world.band_names, "vehicle_class": world.class_names,
+        "depth": [d.name for d in world.depths],
+    }  # fmt: skip
     if dimension == "option":
         return [f"{p}/{b}/{c}" for p in names["point"] for b in names["band"] for c in names["vehicle_class"]]
     return list(names[dimension])
@@ -575,11 +583,6 @@ def _weighted(
     )
 
 
-def _hazard_share(frame: pd.DataFrame, hazard: dict[str, float]) -> float:
-    persons = frame["persons"].to_numpy(float)
-    return float((persons * frame["point"].map(hazard).to_numpy(float)).sum() / persons.sum())
-
-
 def _compare(
     design: str,
     label: str,
@@ -622,6 +625,7 @@ def _compare(
     )
     verdict, reason = read_verdict(*crossings, *detections, tolerance=tolerance)
     hazard = {p.name: p.hazard for p in first.world.boarding_points}
+    depth_hazard = {d.name: d.hazard for d in first.world.depths}
     return DisplacementResult(
         design=design,
         label=label,
@@ -646,7 +650,8 @@ def _compare(
             "displaced_out_per_day", TRUTH, exits_per_day(first, before), exits_per_day(second, after)
         ),
         hazard_weighted_share=BeforeAfter(
-            "hazard_weighted_share", TRUTH, _hazard_share(att_b, hazard), _hazard_share(att_a, hazard)
+            "hazard_weighted_share", TRUTH,
+            hazard_weighted_share(att_b, hazard, depth_hazard), hazard_weighted_share(att_a, hazard, depth_hazard),
         ),
         notes=tuple(notes),
     )

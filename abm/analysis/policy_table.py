@@ -32,17 +32,24 @@ from ..experiment.compare import mean_interval
 from ..experiment.single import WORLD_FILE
 
 
-def hazard_weighted_share(attempts: pd.DataFrame, hazards: Mapping[str, float]) -> float | None:
-    """``sum(persons x hazard(point)) / sum(persons)`` over attempt rows; None without attempts.
+def hazard_weighted_share(
+    attempts: pd.DataFrame, hazards: Mapping[str, float], depth_hazards: Mapping[str, float] | None = None
+) -> float | None:
+    """``sum(persons x hazard) / sum(persons)`` over attempt rows; None without attempts.
 
-    The same measure as the displacement analysis' hazard-weighted share
-    (:mod:`abm.analysis.displacement`): 0 when everyone boards where boarding
-    is safest, 1 when everyone boards at a point of hazard 1.
+    An attempt's hazard is its boarding point's plus its concealment depth's
+    (``depth_hazards``; attempt rows from before depth was recorded count
+    none), at most 1, as in the agents' option space. The displacement
+    analysis' hazard-weighted share (:mod:`abm.analysis.displacement`) is this
+    measure: 0 when everyone boards where boarding is safest and hides at the
+    safest depth, 1 when everyone boards and hides at hazard 1.
     """
     persons = attempts["persons"].to_numpy(float)
     if persons.sum() <= 0:
         return None
     weights = attempts["point"].map(hazards).to_numpy(float)
+    if depth_hazards and "depth" in attempts:
+        weights = np.minimum(weights + attempts["depth"].map(depth_hazards).fillna(0.0).to_numpy(float), 1.0)
     return float((persons * weights).sum() / persons.sum())
 
 
@@ -64,14 +71,18 @@ def run_truth_figures(attempts: pd.DataFrame, world: Mapping[str, Any]) -> dict[
     """Truth figures of one run from its attempt rows (already limited to the summarised days) and world.
 
     ``hazard_weighted_share``: see :func:`hazard_weighted_share`, with the
-    run's own boarding-point hazards. ``crossings_after_checks``: persons who
+    run's own boarding-point and depth hazards. ``crossings_after_checks``: persons who
     crossed having boarded after the last primary station, so that no check
     could have found them and no estimator can count them.
     """
     hazards = {p["name"]: float(p["hazard"]) for p in world["boarding_points"]}
+    depth_hazards = {d["name"]: float(d.get("hazard", 0.0)) for d in world.get("depths", [])}
     crossed = attempts[attempts["outcome"] == "crossed"]
     unseen = int(crossed.loc[crossed["point"].isin(after_last_check(world)), "persons"].sum())
-    return {"hazard_weighted_share": hazard_weighted_share(attempts, hazards), "crossings_after_checks": unseen}
+    return {
+        "hazard_weighted_share": hazard_weighted_share(attempts, hazards, depth_hazards),
+        "crossings_after_checks": unseen,
+    }
 
 
 def attempt_shares(attempts: pd.DataFrame, points: Sequence[str], bands: Sequence[str]) -> pd.DataFrame:

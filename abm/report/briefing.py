@@ -63,8 +63,8 @@ BEHAVIOUR_WORDS = {
 
 SAFETY = (
     "People hidden in vehicles risk suffocation, heat, cold and crushing. A policy that displaces attempts can push "
-    "people toward more dangerous boarding — moving vehicles, sealed or refrigerated loads, remote lay-bys — or to "
-    "routes outside this crossing where nobody is looking out for them. Every figure here is a model estimate, not "
+    "people toward more dangerous boarding — moving vehicles, sealed or refrigerated loads, remote lay-bys — "
+    "toward hiding deeper in the load, or to routes outside this crossing where nobody is looking out for them. Every figure here is a model estimate, not "
     "a count of real people, from a fictional world whose numbers are illustrative. Nothing in this briefing "
     "replaces the law, safeguarding duties toward people found in vehicles, or the agencies' own licensed practice "
     "and procedures; defer to them."
@@ -510,8 +510,8 @@ def section_comparison(ctx: Context) -> Section:
         f"{ctx.baseline_name} with its 95% interval (t-interval on the per-replication differences; common random "
         f"numbers). Counts are over the {b.days} summarised days. Detections, time in port, missed departures and "
         "staff-hours are observed records; crossings, displacement out of the system and hazard-weighted boarding "
-        "are model truth. Hazard-weighted boarding is the attempt-weighted mean hazard score (0 to 1) of the "
-        "boarding points people used."))
+        "are model truth. Hazard-weighted boarding is the attempt-weighted mean hazard score (0 to 1) of where "
+        "people boarded and how deep they hid (the boarding point's hazard plus the depth's, at most 1)."))
     blocks.append(Paragraph(_proxy_words(ctx), lead="The estimate row."))
     for index, scenario in enumerate(ctx.scenario_points):
         blocks.append(_comparison_table(ctx, scenario, index))

@@ -155,6 +155,8 @@ def check_references(world: World) -> None:
         _require(key, bands, f"adversary.static.band_shares.{key}", "time band")
     for key in static.class_shares:
         _require(key, classes, f"adversary.static.class_shares.{key}", "vehicle class")
+    for key in static.depth_shares:
+        _require(key, [d.name for d in world.depths], f"adversary.static.depth_shares.{key}", "depth level")
 
 
 def _check_weather(world: World) -> None:

@@ -265,7 +265,9 @@ class DepthLevel(Strict):
     """How deep in the load people hide; deeper is harder to find and more dangerous."""
 
     name: Name
-    hazard: NonNegative = Field(0.0, description="hazard added to the boarding point's for hiding this deep")
+    hazard: NonNegative = Field(
+        0.0, description="hazard added to the boarding point's for hiding this deep (their sum counts at most 1)"
+    )
 
 
 class Posting(Strict):
@@ -327,13 +329,16 @@ class Roster(Strict):
 
 
 class StaticChoice(Strict):
-    """Fixed option probabilities, factorised as point x band x class shares."""
+    """Fixed option probabilities, factorised as point x band x class (x depth) shares."""
 
     point_shares: dict[str, Probability]
     band_shares: dict[str, Probability]
     class_shares: dict[str, Probability]
+    depth_shares: dict[str, Probability] = Field(
+        default_factory=dict, description="share of attempts hiding at each depth level; empty: all at the first"
+    )
 
-    @field_validator("point_shares", "band_shares", "class_shares")
+    @field_validator("point_shares", "band_shares", "class_shares", "depth_shares")
     @classmethod
     def _sum_to_one(cls, v: dict[str, float], info) -> dict[str, float]:
         return _check_shares(v, info.field_name)
@@ -463,7 +468,7 @@ class World(Strict):
     depths: list[DepthLevel] = Field(
         default_factory=lambda: [DepthLevel(name="normal")],
         min_length=1,
-        description="concealment depth levels, shallowest first; attempts choose one (default the first)",
+        description="concealment depth levels, shallowest first; each attempt hides at one (chosen by the behaviour)",
     )
 
     @field_validator("interventions")

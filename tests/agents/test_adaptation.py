@@ -61,6 +61,44 @@ def test_static_attempts_do_not_react_to_checking() -> None:
     assert abs(after - before) < 3.3 * se
 
 
+def depth_world(fraction: float, deep_hazard: float, hazard_aversion: float) -> dict:
+    """One point and one station; hiding deep cuts the check's detection chance from 0.8 to 0.08."""
+    world = two_option_world(0.0, 0.0, rationality=1.0, exploration=0.02, hazard_aversion=hazard_aversion)
+    world["methods"] = [{"name": "scan", "service": {"dist": "deterministic", "mean": 0.2},
+                         "detection": {"default": 0.8}, "depth_factor": {"deep": 0.1}}]  # fmt: skip
+    world["stations"] = [{"name": "gate", "method": "scan", "lanes": 2, "selection": {"rule": "fraction", "fraction": fraction}}]
+    world["boarding_points"] = [{"name": "a", "before_station": "gate", "stops": {"lorry": {"share": 1.0}}}]
+    world["adversary"]["static"]["point_shares"] = {"a": 1.0}
+    world["depths"] = [{"name": "normal"}, {"name": "deep", "hazard": deep_hazard}]
+    return world
+
+
+def deep_share(world: dict, days: int = 120, warmup: int = 60) -> float:
+    model = PortModel(parse_world(world), seed=5)  # same seed: common random numbers
+    for _ in range(days):
+        model.step()
+    attempts = model.records.truth_tables()["attempts"]
+    late = attempts[attempts["day"] >= warmup]
+    assert len(late) > 1000
+    return float((late["depth"] == "deep").mean())
+
+
+def test_adaptive_people_hide_deep_when_it_is_safer_from_checks_and_no_more_dangerous() -> None:
+    # perceived risk about 0.8 at the normal depth and 0.08 deep, the same hazard: the logit
+    # (lambda 1, detection cost 5) puts about 0.97 of attempts deep
+    assert deep_share(depth_world(1.0, deep_hazard=0.0, hazard_aversion=1.0)) > 0.8
+    # deep now costs 10 x 0.8 in utility, more than the 3.6 it saves: about 0.01 deep
+    assert deep_share(depth_world(1.0, deep_hazard=0.8, hazard_aversion=10.0)) < 0.2
+
+
+def test_more_checking_pushes_adaptive_people_to_hide_deeper_and_in_more_danger() -> None:
+    """The safety cost of displacement: checks that find people make hiding deep, and dangerous, worth it."""
+    light, heavy = (depth_world(f, deep_hazard=0.3, hazard_aversion=5.0) for f in (0.1, 1.0))
+    # utility of deep minus normal: 5 x 0.72 x fraction - 5 x 0.3 = -1.14 at 0.1, +2.1 at 1.0:
+    # logit shares of about 0.24 and 0.89 deep
+    assert deep_share(heavy) > deep_share(light) + 0.3
+
+
 @pytest.mark.parametrize("behaviour", ["adaptive", "reinforcement"])
 def test_reactive_command_and_adaptive_people_conserve_everyone_every_day(behaviour: str) -> None:
     """Both sides adapting: a long run where nobody is lost or counted twice on any day."""

@@ -1,7 +1,8 @@
 """Static concealment agents: chosen options and group sizes follow the world's configured shares.
 
 Under the ``static`` behaviour each attempt picks boarding point x time band x
-vehicle class with probability point_share x band_share x class_share,
+vehicle class x concealment depth with probability point_share x band_share x
+class_share x depth_share (without depth shares, every attempt at the first level),
 independently of outcomes, and each new group's size is drawn from
 ``group_size``. Both are checked over many draws with Pearson's chi-square
 goodness-of-fit test, ``scipy.stats.chisquare`` (SciPy's reference
@@ -39,6 +40,7 @@ def many_attempts_data() -> dict[str, Any]:
     adv["arrivals_per_day"] = 700
     adv["attempt_chance"] = 1.0
     adv["group_size"] = {1: 0.4, 2: 0.25, 3: 0.15, 4: 0.1, 5: 0.06, 7: 0.04}
+    adv["static"]["depth_shares"] = {"normal": 0.7, "deep": 0.3}
     # so many detections would swamp the demo's 40-minute manual search; a quicker search keeps the
     # secondary station within capacity (choice shares do not depend on it)
     search = next(m for m in data["methods"] if m["name"] == "manual_search")
@@ -56,19 +58,23 @@ def tables() -> dict[str, Any]:
 
 def expected_option_shares(world) -> pd.Series:
     static = world.adversary.static
-    index = pd.MultiIndex.from_product([world.point_names, world.band_names, world.class_names], names=["point", "band", "vehicle_class"])
+    depths = [d.name for d in world.depths]
+    index = pd.MultiIndex.from_product(
+        [world.point_names, world.band_names, world.class_names, depths], names=["point", "band", "vehicle_class", "depth"]
+    )
     shares = [
         static.point_shares.get(p, 0.0) * static.band_shares.get(b, 0.0) * static.class_shares.get(c, 0.0)
-        for p, b, c in index
+        * static.depth_shares.get(d, 0.0)
+        for p, b, c, d in index
     ]
     return pd.Series(shares, index=index)
 
 
-def test_chosen_options_match_the_product_of_point_band_and_class_shares(tables):
+def test_chosen_options_match_the_product_of_point_band_class_and_depth_shares(tables):
     world, attempts = tables["world"], tables["attempts"]
     expected = expected_option_shares(world)
     assert abs(expected.sum() - 1.0) < 1e-12
-    counts = attempts.groupby(["point", "band", "vehicle_class"]).size()
+    counts = attempts.groupby(["point", "band", "vehicle_class", "depth"]).size()
     counts.index = counts.index.set_names(expected.index.names)
     counts = counts.reindex(expected.index, fill_value=0)
     # options with zero probability (tankers are in no class share) are never chosen
@@ -82,7 +88,10 @@ def test_chosen_options_match_the_product_of_point_band_and_class_shares(tables)
     assert pvalue > ALPHA, f"option shares differ from the configured product (chi2={stat:.1f}, p={pvalue:.2g})"
 
 
-@pytest.mark.parametrize("column,shares_of", [("point", "point_shares"), ("band", "band_shares"), ("vehicle_class", "class_shares")])
+@pytest.mark.parametrize(
+    "column,shares_of",
+    [("point", "point_shares"), ("band", "band_shares"), ("vehicle_class", "class_shares"), ("depth", "depth_shares")],
+)
 def test_each_margin_matches_its_configured_share(tables, column, shares_of):
     world, attempts = tables["world"], tables["attempts"]
     shares = getattr(world.adversary.static, shares_of)
@@ -112,10 +121,23 @@ def test_static_behaviour_probabilities_are_the_normalised_product():
     assert behaviour.name == "static"
     expected = expected_option_shares(world).to_numpy()
     np.testing.assert_allclose(behaviour.probabilities, expected, rtol=0, atol=1e-12)
-    # flat option indices unravel to the same (point, band, class) order
-    point, band, vclass = options.unravel(np.arange(options.size))
-    names = [(world.point_names[p], world.band_names[b], world.class_names[c]) for p, b, c in zip(point, band, vclass, strict=True)]
+    # flat option indices unravel to the same (point, band, class, depth) order
+    point, band, vclass, depth = options.unravel(np.arange(options.size))
+    depths = [d.name for d in world.depths]
+    names = [
+        (world.point_names[p], world.band_names[b], world.class_names[c], depths[d])
+        for p, b, c, d in zip(point, band, vclass, depth, strict=True)
+    ]
     assert names == list(expected_option_shares(world).index)
+
+
+def test_without_depth_shares_every_attempt_hides_at_the_first_level():
+    data = many_attempts_data()
+    del data["adversary"]["static"]["depth_shares"]
+    data["adversary"]["arrivals_per_day"] = 50
+    attempts = simulate(parse_world(data, "no depth shares"), 5, seed=3).records.truth_tables()["attempts"]
+    assert len(attempts) > 100
+    assert set(attempts["depth"]) == {"normal"}
 
 
 def test_static_behaviour_draws_match_its_probabilities():

@@ -75,6 +75,7 @@ def fake_run(
             "agent_id": i,
             "band": "night",
             "vehicle_class": "curtain_sided",
+            "depth": "normal",
             "outcome": "crossed",
             "station": "",
             "method": "",
@@ -207,6 +208,8 @@ def test_shares_move_toward_the_new_point_and_hazard_rises(tmp_path):
     band = dict(zip(result.share("band").keys, result.share("band").after))
     assert band["evening"] == pytest.approx(0.8) and band["night"] == pytest.approx(0.2)
     assert result.share("vehicle_class").total_variation == 0
+    depth = result.share("depth")  # every depth level of the world, even one nobody used
+    assert depth.keys == ("normal", "deep") and depth.before == depth.after == (1.0, 0.0)
     option = result.share("option")
     assert dict(zip(option.keys, option.after))["holding_yard/evening/curtain_sided"] == pytest.approx(0.8)
     # 0.8 x 0.3 + 0.2 x 0.7 = 0.38 before; 0.2 x 0.3 + 0.8 x 0.7 = 0.62 after: pushed toward danger.

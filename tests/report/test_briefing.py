@@ -244,7 +244,9 @@ def test_derived_figures_are_recomputed_from_the_runs(briefed: Briefed) -> None:
         world = json.loads((run / "world.json").read_text(encoding="utf-8"))
         attempts = pd.read_parquet(run / "truth" / "attempts.parquet")
         attempts = attempts[attempts["day"] >= 2]  # after the warm-up
+        # an attempt's hazard: its boarding point's plus its concealment depth's, at most 1
         hazard = attempts["point"].map({p["name"]: p["hazard"] for p in world["boarding_points"]})
+        hazard = (hazard + attempts["depth"].map({d["name"]: d["hazard"] for d in world["depths"]})).clip(upper=1.0)
         expected = (attempts["persons"] * hazard).sum() / attempts["persons"].sum()
         assert math.isclose(row["hazard_weighted_share"], expected)
         crossed = attempts[(attempts["outcome"] == "crossed") & (attempts["point"] == "holding_yard")]

@@ -288,6 +288,12 @@ DICT_CASES = [
         ("sum to 1",),
     ),
     Case(
+        "depth-shares",
+        lambda w: w["adversary"]["static"]["depth_shares"].update(deep=0.5),
+        "adversary.static.depth_shares",
+        ("sum to 1", "1.3"),
+    ),
+    Case(
         "group-size-shares",
         lambda w: w["adversary"]["group_size"].update({1: 0.6}),
         "adversary.group_size",
@@ -317,6 +323,12 @@ DICT_CASES = [
         lambda w: _rename(w["adversary"]["static"]["class_shares"], "box", "boxx"),
         "adversary.static.class_shares.boxx",
         ("did you mean 'box'",),
+    ),
+    Case(
+        "undefined-depth-in-shares",
+        lambda w: _rename(w["adversary"]["static"]["depth_shares"], "deep", "deeep"),
+        "adversary.static.depth_shares.deeep",
+        ("not a defined depth level", "did you mean 'deep'"),
     ),
     Case(
         "undefined-method",

@@ -16,7 +16,9 @@ Tables (one Parquet file each under ``RUN_DIR/observed/``):
     midnight), kind (detection / interdiction), place (station or boarding
     point), place_kind (station / boarding_point), vehicle_class, method
     (empty for interdictions), person_ref (pseudonymous id; empty when the
-    person was not identified).
+    person was not identified), referred_by (for a detection at a secondary
+    station, the primary station whose alarm sent the vehicle there; empty
+    otherwise: the agency made that referral itself, so it knows).
 ``false_alarms``
     one row per alarm after which nothing was found: day, minute, station,
     method, vehicle_class.
@@ -54,6 +56,7 @@ OBSERVED_COLUMNS: dict[str, dict[str, str]] = {
         "vehicle_class": "string",
         "method": "string",
         "person_ref": "string",
+        "referred_by": "string",
     },
     "false_alarms": {
         "day": "int64",
@@ -63,6 +66,10 @@ OBSERVED_COLUMNS: dict[str, dict[str, str]] = {
         "vehicle_class": "string",
     },
 }
+
+
+# Columns added to the schema after records were first written, with the value older records mean.
+LATER_COLUMNS: dict[str, dict[str, str]] = {"encounters": {"referred_by": ""}}  # no referral known
 
 
 class ObservedRecordsError(InputError):
@@ -75,8 +82,14 @@ def empty_table(name: str) -> pd.DataFrame:
 
 
 def conform(name: str, frame: pd.DataFrame) -> pd.DataFrame:
-    """Check that ``frame`` has every column of table ``name`` and cast it to the schema's dtypes."""
+    """Check that ``frame`` has every column of table ``name`` and cast it to the schema's dtypes.
+
+    A column of :data:`LATER_COLUMNS` that ``frame`` lacks (records written before it existed) gets its default.
+    """
     columns = OBSERVED_COLUMNS[name]
+    later = {col: value for col, value in LATER_COLUMNS.get(name, {}).items() if col not in frame.columns}
+    if later:
+        frame = frame.assign(**later)
     missing = [col for col in columns if col not in frame.columns]
     if missing:
         raise ObservedRecordsError(f"observed table '{name}' lacks column(s): {', '.join(missing)}")

@@ -157,6 +157,7 @@ class RecordBook:
                         "vehicle_class": world.class_names[result.traffic.vehicle_class[res.vehicle[a]]] if detected else "",
                         "method": method_names[res.method[a]] if detected else "",
                         "person_ref": ref or "",
+                        "referred_by": station_names[res.referred_by[a]] if detected else "",
                     }
                 )
         self._checks.append(result.check_rows)

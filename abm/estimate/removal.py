@@ -7,10 +7,12 @@ window. With k passes, T = Σ C_i and X = Σ (k−i)·C_i. Every estimator here
 estimates the attempts (persons, counting a retry again) that reached the
 first primary station; ``observed`` is T.
 
-Detections credited to secondary stations are not counted as a pass (they
-follow referrals from several primary stations, and the records do not say
-which); interdictions at boarding points are not passes either. Their counts
-are reported among the parameters.
+A detection at a secondary station counts in the catch of the primary
+station whose alarm referred the vehicle there (``referred_by``): that pass
+removed the person. Detections at a secondary station without a known referral
+(records written before referrals were recorded) are not counted as a pass, nor
+are interdictions at boarding points; both counts are reported among the
+parameters, with how many referred detections were credited.
 
 Which variant each function implements, on Carle & Strub's example (38, 26, 12):
 
@@ -240,16 +242,17 @@ class Passes:
     stations: tuple[str, ...]
     catches: tuple[int, ...]
     window: Window
+    referred_detections: int  # found at a secondary station, counted in the referring station's catch
     other_station_detections: int
     boarding_point_encounters: int
 
 
 def removal_catches(observed: Observed, window: Window = None, *, estimator: str = "removal") -> Passes:
-    """Persons detected at each primary station in route order, in the window."""
+    """Persons detected at each primary station in route order, or after its referral, in the window."""
     window = check_window(window, estimator)
     tables = load_tables(
         observed,
-        {"stations": ["station", "position", "role"], "encounters": ["day", "kind", "place", "place_kind"]},
+        {"stations": ["station", "position", "role"], "encounters": ["day", "kind", "place", "place_kind", "referred_by"]},
         estimator,
     )
     stations = primary_stations(tables["stations"], estimator)
@@ -259,12 +262,16 @@ def removal_catches(observed: Observed, window: Window = None, *, estimator: str
     if encounters.empty:
         raise EstimatorCannotRun(estimator, f"no encounters in the window ({window_text(window)})")
     detections = station_detections(encounters)
-    counts = detections["place"].value_counts()
-    catches = tuple(int(counts.get(name, 0)) for name in stations)
+    at_primary = detections["place"].isin(stations)
+    referred = ~at_primary & detections["referred_by"].isin(stations)
+    counts = detections.loc[at_primary, "place"].value_counts()
+    credited = detections.loc[referred, "referred_by"].value_counts()
+    catches = tuple(int(counts.get(name, 0)) + int(credited.get(name, 0)) for name in stations)
     return Passes(
         stations=tuple(stations),
         catches=catches,
         window=window,
+        referred_detections=int(referred.sum()),
         other_station_detections=len(detections) - sum(catches),
         boarding_point_encounters=len(encounters) - len(detections),
     )
@@ -273,6 +280,7 @@ def removal_catches(observed: Observed, window: Window = None, *, estimator: str
 def _on_records(result: EstimateResult, passes: Passes) -> EstimateResult:
     order = ", ".join(f"{name} ({c})" for name, c in zip(passes.stations, passes.catches))
     extra = (
+        ("referred_detections", float(passes.referred_detections)),
         ("other_station_detections", float(passes.other_station_detections)),
         ("boarding_point_encounters", float(passes.boarding_point_encounters)),
     )

@@ -113,6 +113,7 @@ class AttemptResult:
     method: np.ndarray  # method index of detection, -1 otherwise
     minute: np.ndarray  # absolute minute of the encounter or crossing; NaN for no vehicle
     vehicle: np.ndarray  # vehicle row boarded, -1 when none
+    referred_by: np.ndarray  # detected at a secondary station: the station whose alarm sent the vehicle there; -1 otherwise
 
 
 @dataclass
@@ -273,6 +274,7 @@ class DayEngine:
             method=np.full(a_n, -1, dtype=np.int64),
             minute=np.full(a_n, np.nan),
             vehicle=np.full(a_n, -1, dtype=np.int64),
+            referred_by=np.full(a_n, -1, dtype=np.int64),
         )
         self._interdict(day, attempts, staffing, result)
 
@@ -316,7 +318,9 @@ class DayEngine:
                 name = lay.world.stations[s].name
                 raise StationUnservable(f"station '{name}' selected a vehicle on day {day} that no staffed lane can check")
             if done.hit.any():
-                self._found(result, done.rows[done.hit], s, done.method[done.hit], done.end[done.hit])
+                found = done.rows[done.hit]
+                referred_by = vehicles.alarm_station[found] if secondary else np.full(found.shape[0], -1)
+                self._found(result, found, s, done.method[done.hit], done.end[done.hit], referred_by)
             if done.logged_false.any():
                 empty, rows_empty = done.logged_false, done.rows[done.logged_false]
                 if secondary:
@@ -409,8 +413,12 @@ class DayEngine:
         station: int,
         methods: np.ndarray,
         when: np.ndarray,
+        referred_by: np.ndarray,
     ) -> None:
-        """Every pending attempt aboard one of ``vehicles`` (checks that found people) is detected there."""
+        """Every pending attempt aboard one of ``vehicles`` (checks that found people) is detected there.
+
+        ``referred_by`` is, per vehicle, the station whose alarm referred it to this one (-1: none).
+        """
         lookup = {int(v): i for i, v in enumerate(vehicles)}
         for a in np.flatnonzero(result.outcome == PENDING):
             i = lookup.get(int(result.vehicle[a]))
@@ -420,6 +428,7 @@ class DayEngine:
             result.station[a] = station
             result.method[a] = methods[i]
             result.minute[a] = when[i]
+            result.referred_by[a] = referred_by[i]
 
     def _depart(self, day: int, traffic: DayTraffic, ready: np.ndarray) -> tuple[np.ndarray, np.ndarray]:
         """Minute each vehicle leaves the port and whether it missed its booked sailing."""

@@ -96,7 +96,7 @@ def fake_run(
         write_parquet(frame.astype(TRUTH_COLUMNS[name]), directory / TRUTH_DIR / f"{name}.parquet")
     encounters = pd.DataFrame(
         [
-            (k, d, 600.0, "detection", "gate_imaging", "station", "curtain_sided", "imaging_portal", "")
+            (k, d, 600.0, "detection", "gate_imaging", "station", "curtain_sided", "imaging_portal", "", "")
             for d, n in (detections or {}).items()
             for k in range(n)
         ],

@@ -88,7 +88,7 @@ def test_relative_sensitivity_on_records_is_keyed_by_station():
     assert result.estimate == pytest.approx(94.93, abs=0.005)
 
 
-def test_secondary_station_and_boarding_point_encounters_are_not_passes():
+def test_unreferred_secondary_and_boarding_point_encounters_are_not_passes():
     extra = [
         {"place": SECONDARY},
         {"place": "lay_by", "place_kind": "boarding_point", "kind": "interdiction"},
@@ -102,6 +102,18 @@ def test_secondary_station_and_boarding_point_encounters_are_not_passes():
     assert result.params["other_station_detections"] == 1
     assert result.params["boarding_point_encounters"] == 1
     assert result.observed == 76
+
+
+def test_a_find_after_a_referral_counts_in_the_referring_stations_catch():
+    """The referring pass removed the person: Carle & Strub's catches (38, 26, 12) with 5 + 2 of them found in search."""
+    extra = [{"place": SECONDARY, "referred_by": "gate"}] * 5 + [{"place": SECONDARY, "referred_by": "checkin"}] * 2
+    records = records_with_catches((33, 26, 10), extra)
+    records["stations"] = stations_table()
+    passes = removal_catches(records)
+    assert passes.catches == CARLE_STRUB_EXAMPLE and passes.referred_detections == 7
+    result = removal_zippin(records)
+    assert result.estimate == pytest.approx(94.93, abs=0.005)  # Zippin on (38, 26, 12), as above
+    assert result.params["referred_detections"] == 7 and result.params["other_station_detections"] == 0
 
 
 def test_passes_follow_station_positions_not_table_order():

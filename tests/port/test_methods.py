@@ -118,7 +118,9 @@ BEFORE: dict[str, dict[str, str]] = {
     "kestrel_quay": {
         "daily.parquet": "ffb404f97f4a8839d43331bb83a72b50c1fbffe07b1e118a4e0e67eb9221bc56",
         "observed/checks.parquet": "f17b668ad37069381670e3ca742589067ae0685a3877de798e188e6cb3279685",
-        "observed/encounters.parquet": "126bfd0353c729819c10b5a7f566ab55fbc4f21f7c4581fd07707fceeb632a27",
+        # re-made when encounters gained their referred_by column (empty for every row here); the other
+        # columns were compared with the previous file and are equal
+        "observed/encounters.parquet": "0d8585189b493f72a1c9643c12950acacac2359624a23df9bf8c9e0372aabf76",
         # back to what commit 0f96697 wrote once first-in-first-out across midnight went by arrival
         # (FifoCarry): the single-value floor in between held a search that arrived after midnight behind
         # the previous day's later arrivals, which moved some false-alarm minutes
@@ -133,7 +135,7 @@ BEFORE: dict[str, dict[str, str]] = {
     "corran_ridge": {
         "daily.parquet": "da93df63f60a474ce459bd5332cbd47642fea7b10040375ea52702a58d15827e",
         "observed/checks.parquet": "df46c783d6be767f177f42b7082bc860ab72faaf7f8aa43a34afc5bdc7569ea3",
-        "observed/encounters.parquet": "d9f1a5725bd6a71e828e66a5203691ff08656e5187125779f17fe7f2cfc13a4e",
+        "observed/encounters.parquet": "f534369016de5fa1debb6afd11c8e06a2c65c875b1a6528cc4134fb38167acc8",  # referred_by, as above
         "observed/false_alarms.parquet": "c408d12027b3cd0ba4da5ba0d1198a4eeaaab7283fa74184c6d0ba3d919059a8",
         "observed/stations.parquet": "c0275fedee8ed561a0eea1f711e2958fa2d09ecbb6b77a182154e1a97d808a1a",
         "truth/arrivals.parquet": "095c289a630997f0111dead6fa1d893801446eadb46a231c8cdbb465c08a5358",

@@ -19,8 +19,9 @@ Measures
 --------
 Attempt shares
     Persons attempting per option (point x band x vehicle class), per boarding
-    point, per time band, per vehicle class and per concealment depth, as shares of all attempts in the
-    window (truth), with the total-variation distance ``0.5 * sum |p - q|`` and
+    point, per time band, per vehicle class and per concealment depth, as
+    shares of all attempts in the window (truth), with the total-variation
+    distance ``0.5 * sum |p - q|`` and
     the Jensen-Shannon distance (base 2, so both lie in [0, 1]) between the two
     share vectors.
 Weighted displacement quotient (Bowers & Johnson 2003; Guerette 2009, tool guide 10)
@@ -73,11 +74,11 @@ from scipy.spatial.distance import jensenshannon
 
 from ..errors import InputError
 from ..experiment.single import WORLD_FILE
-from .policy_table import hazard_weighted_share
 from ..observed import read_observed
 from ..records import TRUTH_COLUMNS, TRUTH_DIR, read_truth, write_json
 from ..world import parse_world
 from ..world.schema import AreaSelector, DisplacementAreas, World
+from .policy_table import hazard_weighted_share
 
 TRUTH, OBSERVED = "truth", "observed"
 MANIFEST_FILE = "manifest.json"

@@ -113,7 +113,7 @@ class AttemptResult:
     method: np.ndarray  # method index of detection, -1 otherwise
     minute: np.ndarray  # absolute minute of the encounter or crossing; NaN for no vehicle
     vehicle: np.ndarray  # vehicle row boarded, -1 when none
-    referred_by: np.ndarray  # detected at a secondary station: the station whose alarm sent the vehicle there; -1 otherwise
+    referred_by: np.ndarray  # found at a secondary station: the station whose alarm sent it there; -1 otherwise
 
 
 @dataclass

@@ -22,10 +22,10 @@ checks of earlier days that start after the new day begins, with their
 arrivals. A vehicle of the new day starts no earlier than any of those that
 arrived before it; those that arrived after it do not hold it back (it was
 ahead of them in the queue). Those that arrived before it and start after it
-arrives are in the queue it finds, so the queue-aware rule counts them. Lanes, though, keep their next free minute, so a
-lane busy with an earlier day's late check cannot be used before that check
-ends, even by a vehicle that arrived before it: the one approximation left at
-the day boundary.
+arrives are in the queue it finds, so the queue-aware rule counts them.
+Lanes, though, keep their next free minute, so a lane busy with an earlier
+day's late check cannot be used before that check ends, even by a vehicle
+that arrived before it: the one approximation left at the day boundary.
 
 :func:`station_pass` wraps the recursion in a station's whole pass over a day
 (arrival order, selection chances, detection, alarms, referral, counts); its
@@ -271,7 +271,8 @@ def _serve(
             last_start = best_t
         starts[n_checked] = best_t
         n_checked += 1
-    next_arrival, next_start = _next_carry(carry_arrival, carry_start, arrival, start, checked, origin + MINUTES_PER_DAY)
+    next_origin = origin + MINUTES_PER_DAY
+    next_arrival, next_start = _next_carry(carry_arrival, carry_start, arrival, start, checked, next_origin)
     return start, end, checked, busy, next_arrival, next_start
 
 

@@ -23,7 +23,9 @@ import numpy as np
 
 from .queues import METHOD_COUNTERS, FifoCarry, station_pass
 
-__all__ = ["METHOD_COUNTERS", "FifoCarry", "MethodTables", "StationPass", "StationRules", "VehicleState", "check_station"]
+__all__ = [
+    "METHOD_COUNTERS", "FifoCarry", "MethodTables", "StationPass", "StationRules", "VehicleState", "check_station",
+]
 
 @dataclass(frozen=True)
 class StationRules:

@@ -64,7 +64,8 @@ BEHAVIOUR_WORDS = {
 SAFETY = (
     "People hidden in vehicles risk suffocation, heat, cold and crushing. A policy that displaces attempts can push "
     "people toward more dangerous boarding — moving vehicles, sealed or refrigerated loads, remote lay-bys — "
-    "toward hiding deeper in the load, or to routes outside this crossing where nobody is looking out for them. Every figure here is a model estimate, not "
+    "toward hiding deeper in the load, or to routes outside this crossing where nobody is looking out for them. "
+    "Every figure here is a model estimate, not "
     "a count of real people, from a fictional world whose numbers are illustrative. Nothing in this briefing "
     "replaces the law, safeguarding duties toward people found in vehicles, or the agencies' own licensed practice "
     "and procedures; defer to them."

@@ -44,7 +44,9 @@ class BatchResult:
         return len(self.failures)
 
 
-def _tasks(plan: Plan, todo: Sequence[RunSpec], store: Store, command: Sequence[str]) -> Iterator[RunTask]:
+def _tasks(
+    plan: Plan, todo: Sequence[RunSpec], store: Store, command: Sequence[str], extensions: Sequence[SummaryExtension]
+) -> Iterator[RunTask]:
     """Task messages, built as the executor asks for them; a point's world is built once for its replications."""
     cached: tuple[int, dict[str, Any]] | None = None
     for spec in todo:
@@ -62,6 +64,7 @@ def _tasks(plan: Plan, todo: Sequence[RunSpec], store: Store, command: Sequence[
             out=str(store.run_dir(spec.run_id).resolve()),
             command=tuple(command),
             values=plan.points[spec.point].values,
+            extensions=tuple(extensions),
         )
 
 
@@ -87,7 +90,9 @@ def run_batch(
 
     A run that raises is recorded in failures.parquet and the batch goes on.
     ``show_progress`` None shows a bar only on a terminal. ``extensions`` add
-    summary columns per run (the command line adds every estimator's result).
+    summary columns per run (the command line adds every estimator's result);
+    workers call them as each run finishes, so whatever they cache is computed
+    in parallel, and the store calls them again when it builds the summary.
     """
     plan = load_plan(experiment)
     store = Store(out)
@@ -99,7 +104,7 @@ def run_batch(
     failed = 0
     if todo:
         with runner, _progress(plan.total_runs, len(done), show_progress) as bar:
-            for answer in runner.imap(_tasks(plan, todo, store, command)):
+            for answer in runner.imap(_tasks(plan, todo, store, command, extensions)):
                 if not answer["ok"]:
                     failed += 1
                     store.record_failure(by_id[answer["run_id"]], answer["error"], answer["traceback"])

@@ -3,13 +3,17 @@
 A task is small and self-contained: the design point's world as plain data,
 the seed, the days and where to write. The worker writes the run directory
 itself (atomically, through :func:`abm.experiment.single.run_to_directory`);
-only the run's summary, or its error, travels back.
+only the run's summary, or its error, travels back. A task may also carry the
+batch's summary extensions: the worker calls them once the run is written, so
+what they derive from the run (e.g. the estimates cache) is made in parallel
+instead of by the coordinator afterwards.
 """
 
 from __future__ import annotations
 
 import json
 import traceback
+from collections.abc import Callable, Mapping
 from dataclasses import dataclass, field
 from pathlib import Path
 from typing import Any
@@ -35,6 +39,8 @@ class RunTask:
     out: str  # the run directory to create (absolute, so any worker can reach it)
     command: tuple[str, ...] = ()
     values: dict[str, Any] = field(default_factory=dict)  # factor label -> value, for the manifest
+    # module-level functions of the run directory (they travel by name); see the module docstring
+    extensions: tuple[Callable[[Path], Mapping[str, Any]], ...] = ()
 
 
 def is_complete(run_dir: Path) -> bool:
@@ -74,4 +80,9 @@ def execute_run(task: RunTask) -> dict[str, Any]:
             # A straggler from an interrupted batch finished this very run first; runs are deterministic.
             return {"run_id": task.run_id, "ok": True, "summary": json.loads((out / SUMMARY_FILE).read_text())}
         return failure(task, " ".join(f"{exc.__class__.__name__}: {exc}".split()), traceback.format_exc())
+    for extension in task.extensions:
+        try:
+            extension(out)
+        except Exception:  # noqa: BLE001 - the store calls it again when it builds the summary, and reports it there
+            pass
     return {"run_id": task.run_id, "ok": True, "summary": summary}

@@ -8,10 +8,13 @@ from pathlib import Path
 import pandas as pd
 import pytest
 
+from abm.analysis.estimator_check import ESTIMATES_CACHE, cached_estimates
 from abm.experiment.batch import run_batch
 from abm.experiment.store import FAILURES_TABLE, SUMMARY_TABLE
+from abm.experiment.worker import RunTask, execute_run
+from abm.world import load_world
 
-from .helpers import POLICY_FACTOR, experiment, write_yaml
+from .helpers import DEMO_WORLD, POLICY_FACTOR, experiment, write_yaml
 
 
 def _files(run_dir: Path) -> dict[str, bytes]:
@@ -20,14 +23,18 @@ def _files(run_dir: Path) -> dict[str, bytes]:
 
 @pytest.fixture(scope="module")
 def batches(tmp_path_factory: pytest.TempPathFactory) -> dict[str, Path]:
-    """The same four-run experiment through each executor (two workers where there are workers)."""
+    """The same four-run experiment through each executor (two workers where there are workers).
+
+    With the estimators' summary columns, as the command line adds them: workers compute them.
+    """
     folder = tmp_path_factory.mktemp("executors")
     data = experiment(factors=[{**POLICY_FACTOR, "levels": POLICY_FACTOR["levels"][:2]}])
     path = write_yaml(folder / "experiment.yaml", data)
     outs = {}
     for name in ("serial", "processes", "dask"):
         out = folder / name
-        result = run_batch(path, out, executor=name, workers=None if name == "serial" else 2, show_progress=False)
+        result = run_batch(path, out, executor=name, workers=None if name == "serial" else 2, show_progress=False,
+                           extensions=(cached_estimates,))  # fmt: skip
         assert result.failed == 0 and len(result.summary) == 4
         outs[name] = out
     return outs
@@ -67,3 +74,23 @@ def test_summary_rows_carry_point_values_and_seeds(batches: dict[str, Path]) -> 
     assert manifest["experiment_run"] == run
     figures = {"detections", "crossings", "displaced_out", "time_in_port_p95_min", "missed_departure_share"}
     assert figures <= set(summary.columns)
+
+
+def test_summary_tables_carry_the_estimates_the_workers_cached(batches: dict[str, Path]) -> None:
+    summary = pd.read_parquet(batches["processes"] / SUMMARY_TABLE)
+    assert any(column.startswith("est_") for column in summary.columns)
+    for run_id in summary["run_id"]:
+        assert (batches["processes"] / "runs" / run_id / ESTIMATES_CACHE).is_file()
+
+
+def test_a_worker_runs_the_extensions_once_the_run_is_written_and_survives_a_failing_one(tmp_path: Path) -> None:
+    def broken(run_dir: Path) -> dict[str, float]:
+        raise RuntimeError("an extension fault is reported by the store's rebuild, not by the run")
+
+    world = load_world(DEMO_WORLD)
+    task = RunTask(run_id="p000-r00", point=0, replication=0, seed=3, days=4, warmup=1,
+                   world=world.model_dump(mode="json"), world_sha256="test", out=str(tmp_path / "run"),
+                   extensions=(broken, cached_estimates))  # fmt: skip
+    answer = execute_run(task)
+    assert answer["ok"]
+    assert json.loads((tmp_path / "run" / ESTIMATES_CACHE).read_text())["window"] == [1, 4]

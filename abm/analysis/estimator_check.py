@@ -502,8 +502,10 @@ def check_runs(
             attempts = read_truth(path)["attempts"]
         except (OSError, ValueError) as exc:
             raise EstimatorCheckError(f"{path}: no truth records to compare with ({exc})") from None
-        chosen = _sensitivities(sensitivities, world)
-        results, failures = run_estimators(path, window, level, chosen)
+        if _cached_setting(path, window, level, sensitivities):
+            results, failures = cached_results(path)  # what the batch's workers already computed
+        else:
+            results, failures = run_estimators(path, window, level, _sensitivities(sensitivities, world))
         for name, reason in failures:
             skipped.append({**labels, "run": str(path), "slug": method_slug(name) or slug_of(name), "method": name,
                             "why": f"cannot run: {reason}"})
@@ -537,6 +539,16 @@ def check_runs(
     for frame in (per_run, skipped_frame):
         frame.attrs["factors"] = list(factors)
     return per_run, skipped_frame
+
+
+def _cached_setting(path: Path, window: Window, level: float, sensitivities: SensitivityChoice) -> bool:
+    """The request is the one :func:`cached_results` answers for this run."""
+    if not (isinstance(sensitivities, str) and sensitivities == "world" and level == DEFAULT_LEVEL):
+        return False
+    try:
+        return window == summarised_days(path)
+    except (OSError, KeyError, ValueError):  # no manifest to say which days the run summarises
+        return False
 
 
 # --------------------------------------------------------------------------- aggregation
@@ -765,6 +777,13 @@ def estimates_for_run(
     NaN or infinite. Deterministic: no bootstrap. Truth is not read. A bad
     window or level, or a directory without observed records, still raises.
     """
+    return _flat_estimates(*_results_for_run(run_dir, window, level, sensitivities))
+
+
+def _results_for_run(
+    run_dir: str | Path, window: Window = None, level: float = DEFAULT_LEVEL, sensitivities: SensitivityChoice = "world"
+) -> tuple[list[EstimateResult], list[tuple[str, str]]]:
+    """:func:`run_estimators`, the world's sensitivities left out (not failing) when its world.json cannot be read."""
     window = check_window(window, "estimates")
     z_value(level, "estimates")
     if isinstance(sensitivities, str) and sensitivities == "world":
@@ -774,7 +793,10 @@ def estimates_for_run(
             chosen = None
     else:
         chosen = _sensitivities(sensitivities, None)
-    results, failures = run_estimators(run_dir, window, level, chosen)
+    return run_estimators(run_dir, window, level, chosen)
+
+
+def _flat_estimates(results: list[EstimateResult], failures: list[tuple[str, str]]) -> dict[str, float | None]:
     out: dict[str, float | None] = {}
     for name, _ in failures:
         slug = method_slug(name)
@@ -798,25 +820,37 @@ def summarised_days(run_dir: str | Path) -> tuple[int, int]:
     return warmup, warmup + int(manifest["days"]) - 1
 
 
-def cached_estimates(run_dir: str | Path) -> dict[str, float | None]:
-    """:func:`estimates_for_run` over the days the run's summary covers, kept in ``RUN_DIR/estimates_summary.json``.
+def cached_results(run_dir: str | Path) -> tuple[list[EstimateResult], list[tuple[str, str]]]:
+    """Every estimator over the days the run's summary covers, at the default level with the world's sensitivities.
 
     The window is the one of the run's other summary figures (the warm-up left
-    out, as the briefing does), so the ``est_`` columns of a batch summary
-    estimate what its figures count. A batch store calls this for every run each
-    time it rebuilds its summary; the cache is derived from the run's own
-    observed records, written atomically, names its window, and is recomputed
-    when it is missing or covers other days.
+    out, as the briefing does). Kept in ``RUN_DIR/estimates_summary.json``:
+    derived from the run's own observed records, written atomically, naming
+    its window and level, and recomputed when it is missing or covers other
+    days. A batch's workers write it as each run finishes; the store's summary
+    columns (:func:`cached_estimates`) and the briefing's estimator check read it.
     """
     window = summarised_days(run_dir)
     path = Path(run_dir) / ESTIMATES_CACHE
     if path.is_file():
         cached = json.loads(path.read_text(encoding="utf-8"))
-        if cached.get("window") == list(window):
-            return cached["estimates"]
-    values = estimates_for_run(run_dir, window)
-    write_json({"window": list(window), "estimates": values}, path)
-    return values
+        if cached.get("window") == list(window) and cached.get("level") == DEFAULT_LEVEL and "results" in cached:
+            results = [EstimateResult.from_dict(r) for r in cached["results"]]
+            return results, [(str(name), str(why)) for name, why in cached["failures"]]
+    results, failures = _results_for_run(run_dir, window)
+    # parameters as pairs: they keep the order each estimator reports them in (JSON objects are written sorted)
+    written = [{**r.to_dict(), "parameters": [list(p) for p in r.parameters]} for r in results]
+    write_json({"window": list(window), "level": DEFAULT_LEVEL, "results": written, "failures": failures}, path)
+    return results, failures
+
+
+def cached_estimates(run_dir: str | Path) -> dict[str, float | None]:
+    """:func:`estimates_for_run` over the days the run's summary covers, from :func:`cached_results`.
+
+    The summary extension a batch store uses for its ``est_`` columns, so they
+    estimate what the summary's other figures count.
+    """
+    return _flat_estimates(*cached_results(run_dir))
 
 
 def truth_for_run(run_dir: str | Path, window: Window = None) -> dict[str, int | None]:

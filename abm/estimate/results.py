@@ -100,6 +100,28 @@ class EstimateResult:
             "parameters": dict(self.parameters),
         }
 
+    @classmethod
+    def from_dict(cls, data: Mapping[str, object]) -> "EstimateResult":
+        """The result :meth:`to_dict` describes; ``parameters`` a mapping or (name, value) pairs (which keep order)."""
+        parameters = data.get("parameters", ())
+        pairs = parameters.items() if isinstance(parameters, Mapping) else parameters
+        window = data.get("window")
+        return cls(
+            method=str(data["method"]),
+            source=str(data["source"]),
+            target=str(data["target"]),
+            estimate=float(data["estimate"]),
+            observed=int(data["observed"]),
+            se=float(data["se"]),
+            ci_low=float(data["ci_low"]),
+            ci_high=float(data["ci_high"]),
+            level=float(data["level"]),
+            interval=str(data["interval"]),
+            assumptions=tuple(str(a) for a in data["assumptions"]),
+            window=None if window is None else (int(window[0]), int(window[1])),
+            parameters=tuple((str(name), float(value)) for name, value in pairs),
+        )
+
     def to_frame(self) -> pd.DataFrame:
         """One-row DataFrame; assumptions joined by ' | ', parameters left to ``to_dict``."""
         start, end = (pd.NA, pd.NA) if self.window is None else self.window

@@ -35,6 +35,7 @@ from abm.analysis.estimator_check import (
     bias_sentence,
     briefing_sentences,
     cached_estimates,
+    cached_results,
     check_runs,
     clopper_pearson_interval,
     estimates_for_run,
@@ -53,6 +54,7 @@ from abm.analysis.estimator_check import (
 from abm.estimate.expansion import expansion_name
 from abm.estimate.frequency import CHAO
 from abm.estimate.report import run_all
+from abm.estimate.results import DEFAULT_LEVEL
 from abm.experiment.single import run_to_directory
 from abm.world import load_world, parse_world, read_yaml_mapping
 from abm.world.paths import set_path
@@ -432,7 +434,23 @@ def test_cached_estimates_cover_the_days_the_summary_covers(tmp_path):
     assert values == estimates_for_run(run, (6, 17))
     assert values != estimates_for_run(run)  # every recorded day, warm-up included, estimates something else
     cache = json.loads((run / ESTIMATES_CACHE).read_text(encoding="utf-8"))
-    assert cache == {"window": [6, 17], "estimates": values}
-    # a cache written for other days (or in the old flat layout) is recomputed, not trusted
-    (run / ESTIMATES_CACHE).write_text(json.dumps({"est_chao": 1.0}), encoding="utf-8")
+    assert cache["window"] == [6, 17] and cache["level"] == DEFAULT_LEVEL
+    # the cached results are the estimators' own, parameters in their order, read back as they were written
+    fresh, failures = run_estimators(run, (6, 17))
+    cached, cached_failures = cached_results(run)
+    assert [json.dumps(r.to_dict()) for r in cached] == [json.dumps(r.to_dict()) for r in fresh]
+    assert [r.parameters for r in cached] == [r.parameters for r in fresh] and cached_failures == failures
+    # a cache written for other days (or in an older layout) is recomputed, not trusted
+    (run / ESTIMATES_CACHE).write_text(json.dumps({"window": [6, 17], "estimates": {"est_chao": 1.0}}), encoding="utf-8")
     assert cached_estimates(run) == values
+
+
+def test_the_estimator_check_over_the_summarised_days_reads_the_cache_and_agrees_with_a_fresh_run(tmp_path):
+    run = tmp_path / "run"
+    run_to_directory(load_world(DEMO), "test", 12, 5, run, warmup=6)
+    cached_results(run)
+    from_cache, _ = check_runs([run], window=(6, 17), include_inexact=True)
+    # explicit sensitivities (the world's own) bypass the cache: every estimator runs again
+    fresh, _ = check_runs([run], window=(6, 17), include_inexact=True, sensitivities=sensitivities_from_world(load_world(DEMO)))
+    pd.testing.assert_frame_equal(from_cache, fresh)
+    assert len(from_cache) > 5

@@ -454,3 +454,25 @@ def test_the_estimator_check_over_the_summarised_days_reads_the_cache_and_agrees
     fresh, _ = check_runs([run], window=(6, 17), include_inexact=True, sensitivities=sensitivities_from_world(load_world(DEMO)))
     pd.testing.assert_frame_equal(from_cache, fresh)
     assert len(from_cache) > 5
+
+
+def test_people_who_learn_to_hide_deep_make_the_expansion_undercount(tmp_path):
+    """How wrong an estimate goes when people adapt: the analyst's sensitivity is the kit's trialled 0.8.
+
+    In this world hiding deep cuts the check's detection chance to 0.08 at no extra hazard. Static
+    groups all hide at the normal depth and the expansion recovers the truth; adaptive groups learn to
+    hide deep, the checks find a tenth as many, and the expansion, still dividing by 0.8, counts a
+    fraction of those who reached the station.
+    """
+    from tests.agents.test_adaptation import depth_world
+
+    ratios = {}
+    for behaviour in ("static", "adaptive"):
+        world = depth_world(1.0, deep_hazard=0.0, hazard_aversion=1.0)
+        world["adversary"]["behaviour"] = behaviour
+        run = tmp_path / behaviour
+        run_to_directory(parse_world(world), "test", 80, 5, run, warmup=40)
+        rows, _ = check_runs([run], window=(40, 119), include_inexact=True)
+        ratios[behaviour] = float(rows.loc[rows["slug"] == "expansion_gate", "ratio"].iloc[0])
+    assert 0.8 < ratios["static"] < 1.2
+    assert ratios["adaptive"] < 0.4

@@ -788,7 +788,10 @@ def section_estimators(ctx: Context) -> Section:
         f"method); coverage is the share of runs whose {level:.0%} interval held the truth (95% Wilson interval); "
         f"the score is |relative bias| + |coverage − {level:.0%}|, lower is better. Estimators that ran in fewer "
         f"than half of the {ctx.batch.runs} runs are not ranked; ≈ marks a truth that can only be counted "
-        "approximately (a vehicle referred past a station after a false alarm is not recorded in truth).",
+        "approximately (a vehicle referred past a station after a false alarm is not recorded in truth). The "
+        "expansion estimators divide by each check's sensitivity as trialled (the world's detection chances by "
+        "class); where people hide deeper in the load, or in cargo that confounds the kit, or teams tire, checks "
+        "find fewer than that and the expansion undercounts.",
         lead="How reliability is judged."))
     pooled = ev.reliability[ev.reliability["behaviour"] == ALL_BEHAVIOURS]
     pooled = pooled.sort_values(["eligible", "score", "exact"], ascending=[False, True, False])

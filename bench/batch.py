@@ -16,8 +16,11 @@ as the mean of its two. Reported, as ratios measured in this one sitting:
   task's world, the store's bookkeeping, the summary and failure tables,
   validating the experiment), per run, over the time of a run. Each run
   (``run_to_directory``, which writes the run directory as a run without a
-  store would) is timed inside the same batch, so drift cancels; in wall and
-  in CPU time.
+  store would, and the estimates a worker derives from it right after) is
+  timed inside the same batch, so drift cancels; in wall and in CPU time.
+
+Batches run as ``undertow batch`` runs them: with every estimator's summary
+columns, which the workers compute as each run finishes.
 
 Wall times include starting the pool or cluster, as a user waits for them.
 """
@@ -62,35 +65,49 @@ def write_experiment(folder: Path, runs: int, days: int) -> Path:
     return path
 
 
-def timed_batch(path: Path, out: Path, executor: str, workers: int | None) -> tuple[float, float]:
-    """Wall time and this process's CPU time of one batch."""
+def timed_batch(path: Path, out: Path, executor: str, workers: int | None, extensions=None) -> tuple[float, float]:
+    """Wall time and this process's CPU time of one batch, with the estimators' summary columns as ``undertow batch``."""
+    from abm.analysis.estimator_check import cached_estimates
     from abm.experiment.batch import run_batch
 
     start, cpu = time.perf_counter(), time.process_time()
-    result = run_batch(path, out, executor=executor, workers=workers, show_progress=False)
+    result = run_batch(path, out, executor=executor, workers=workers, show_progress=False,
+                       extensions=extensions or (cached_estimates,))  # fmt: skip
     elapsed = time.perf_counter() - start, time.process_time() - cpu
     assert result.failed == 0, result.failures
     return elapsed
 
 
 def timed_serial(path: Path, out: Path) -> tuple[float, float, float, float]:
-    """A serial batch's wall and CPU time, and the wall and CPU time of its runs themselves."""
+    """A serial batch's wall and CPU time, and the wall and CPU time of its runs themselves.
+
+    A run is its run directory and the estimates derived from it (a worker's whole job); the store
+    reading those estimates back into its summary is the store's.
+    """
     import abm.experiment.worker as worker
+    from abm.analysis.estimator_check import ESTIMATES_CACHE, cached_estimates
 
     real = worker.run_to_directory
     in_runs = [0.0, 0.0]
 
-    def timed_run(*args, **kwargs):
-        start, cpu = time.perf_counter(), time.process_time()
-        try:
-            return real(*args, **kwargs)
-        finally:
-            in_runs[0] += time.perf_counter() - start
-            in_runs[1] += time.process_time() - cpu
+    def timed(function, counts=lambda *args: True):
+        def wrapper(*args, **kwargs):
+            counted = counts(*args)
+            start, cpu = time.perf_counter(), time.process_time()
+            try:
+                return function(*args, **kwargs)
+            finally:
+                if counted:
+                    in_runs[0] += time.perf_counter() - start
+                    in_runs[1] += time.process_time() - cpu
 
-    worker.run_to_directory = timed_run
+        return wrapper
+
+    worker.run_to_directory = timed(real)
+    # estimating is the run's work when it computes (the worker, right after the run); a read of the cache is the store's
+    estimates = timed(cached_estimates, lambda run_dir: not (Path(run_dir) / ESTIMATES_CACHE).is_file())
     try:
-        wall, cpu = timed_batch(path, out, "serial", None)
+        wall, cpu = timed_batch(path, out, "serial", None, extensions=(estimates,))
     finally:
         worker.run_to_directory = real
     return wall, cpu, in_runs[0], in_runs[1]

@@ -16,6 +16,7 @@ from __future__ import annotations
 
 import json
 import os
+import uuid
 from dataclasses import dataclass, field
 from pathlib import Path
 from typing import Any
@@ -287,12 +288,22 @@ class RecordBook:
 
 
 # -- writing ----------------------------------------------------------------------------
+def _private_tmp(path: Path) -> Path:
+    """A temporary name beside ``path`` that no other writer uses.
+
+    Two processes may write the same derived file at once (a straggler of an
+    interrupted batch and the resumed one): each writes its own whole file and
+    renames it into place, so a reader only ever sees a complete one.
+    """
+    return path.with_name(f".{path.name}.{os.getpid()}.{uuid.uuid4().hex[:8]}.tmp")
+
+
 def write_parquet(frame: pd.DataFrame, path: Path) -> None:
     """Write a table atomically with deterministic bytes (no pandas metadata index, no timestamps)."""
     path.parent.mkdir(parents=True, exist_ok=True)
     table = pa.Table.from_pandas(frame, preserve_index=False)
     table = table.replace_schema_metadata(None)
-    tmp = path.with_name(f".{path.name}.tmp")
+    tmp = _private_tmp(path)
     pq.write_table(table, tmp, compression="zstd")
     os.replace(tmp, path)
 
@@ -300,7 +311,7 @@ def write_parquet(frame: pd.DataFrame, path: Path) -> None:
 def write_json(data: Any, path: Path) -> None:
     """Write JSON atomically, keys sorted."""
     path.parent.mkdir(parents=True, exist_ok=True)
-    tmp = path.with_name(f".{path.name}.tmp")
+    tmp = _private_tmp(path)
     tmp.write_text(json.dumps(data, indent=2, sort_keys=True, default=float) + "\n", encoding="utf-8")
     os.replace(tmp, path)
 

@@ -10,8 +10,10 @@ Measured in one run, on the same machine, one after another:
     the roster, the same selection rules and shares (drawn per vehicle), the same service
     distributions scaled by class and cargo, false alarms by weather and cargo, a method
     suspended in a storm replaced as the world says, dog-team lanes resting by their rule,
-    and referral to the secondary station after an alarm. A process per vehicle, a
-    PriorityResource per station (Python's ``random`` for per-vehicle draws).
+    and referral to the secondary station after an alarm; lanes follow the roster and only
+    start a check they can finish before going off duty. A process per vehicle, a FIFO queue
+    and the lanes' state per station, a dispatch at every arrival, check end and hour
+    (Python's ``random`` for per-vehicle draws).
 (c) Bare replay: the same inputs, each station's random numbers drawn beforehand, then per
     day the SAME compiled ``abm.port.queues.serve_fifo`` station by station with only the
     numpy needed to set durations and route vehicles from one station to the next (no
@@ -27,7 +29,6 @@ Run: ``make bench`` or ``.venv/bin/python bench/engine.py [--days 365] [--seed 1
 from __future__ import annotations
 
 import argparse
-import heapq
 import json
 import math
 import random
@@ -35,6 +36,7 @@ import resource
 import subprocess
 import sys
 import time
+from collections import deque
 from dataclasses import dataclass
 from pathlib import Path
 
@@ -214,13 +216,16 @@ def service_sampler(layout, method: int, rnd: random.Random):
 
 
 def run_simpy(layout, lanes_by_hour: np.ndarray, inputs: YearInputs, seed: int) -> tuple[float, dict]:
-    """The same crossing as a SimPy model: a process per vehicle, a resource per station, lanes that rest.
+    """The same crossing as a SimPy model: a process per vehicle, a queue and a set of lanes per station.
 
     Conditions as in the engine: the day's weather (shared with Undertow) sets each
     method's false-alarm chance and suspends outdoor methods; class and cargo scale
     a check's duration, cargo its false-alarm chance; a method's fatigue rule rests
     the lane that checked (a lane that has worked ``work_minutes`` since its last rest
     rests ``rest_minutes`` after its check; a gap that long between its checks is a rest).
+    Lanes follow the roster hour by hour and, as in the engine, a lane only starts a
+    check it can finish before it goes off duty; checks start in arrival order, the
+    head of the queue taking the lowest-numbered lane that can start it.
     """
     import simpy
 
@@ -248,35 +253,56 @@ def run_simpy(layout, lanes_by_hour: np.ndarray, inputs: YearInputs, seed: int) 
     draw = [service_sampler(layout, m, rnd) for m in range(layout.method_dist.shape[0])]
     uniform, gauss = rnd.random, rnd.gauss
 
-    resources = [simpy.PriorityResource(env, capacity=int(layout.station_lanes[s])) for s in range(n_s)]
-    idle = [list(range(int(n))) for n in layout.station_lanes]  # heaps of idle lane numbers
-    lane_free = [[-math.inf] * int(n) for n in layout.station_lanes]  # end of each lane's last check (or rest)
-    lane_worked = [[0.0] * int(n) for n in layout.station_lanes]  # minutes since each lane's last rest
-    waiting = [0] * n_s  # vehicles queued for a check (not the roster's blockers)
+    n_lanes = [int(n) for n in layout.station_lanes]
+    staffed = [[int(x) for x in lanes_by_hour[s]] for s in range(n_s)]
+    queue: list[deque] = [deque() for _ in range(n_s)]  # vehicles waiting: (duration, method of the day, done event)
+    busy = [[False] * n for n in n_lanes]  # checking or resting
+    lane_free = [[-math.inf] * n for n in n_lanes]  # end of each lane's last check (or rest)
+    lane_worked = [[0.0] * n for n in n_lanes]  # minutes since each lane's last rest
     wait_sum, checks = [0.0] * n_s, [0] * n_s
 
-    def roster(s: int):
-        """Hold (lanes - staffed) lanes with top-priority requests: a lane goes off duty when its check ends."""
-        res, blockers, physical = resources[s], [], int(layout.station_lanes[s])
-        staffed = [int(x) for x in lanes_by_hour[s]]
-        while True:
-            off = physical - staffed[int(env.now // 60.0) % 24]
-            while len(blockers) < off:
-                blockers.append(res.request(priority=-1))
-            while len(blockers) > off:
-                req = blockers.pop()
-                if req.triggered:
-                    res.release(req)
-                else:
-                    req.cancel()
-            yield env.timeout(60.0)
+    def off_duty_at(s: int, lane: int) -> float:
+        """When the lane next goes off duty (now if it is off; inf if it never does)."""
+        hour = int(env.now // 60.0)
+        for k in range(25):
+            if staffed[s][(hour + k) % 24] <= lane:
+                return max(env.now, (hour + k) * 60.0)
+        return math.inf
 
-    def rest(s: int, lane: int, req, minutes: float):
-        """The lane rests, holding its place in the resource, then goes back to the idle lanes."""
-        yield env.timeout(minutes)
+    def dispatch(s: int) -> None:
+        """Start checks for the head of the queue while a free lane on duty can finish it before its shift ends."""
+        while queue[s]:
+            duration, main, arrived, done = queue[s][0]
+            lane = next((k for k in range(n_lanes[s]) if not busy[s][k] and env.now + duration <= off_duty_at(s, k)), -1)
+            if lane < 0:
+                return  # strict FIFO: nobody overtakes the head
+            queue[s].popleft()
+            busy[s][lane] = True
+            wait_sum[s] += env.now - arrived
+            checks[s] += 1
+            env.process(check(s, lane, duration, main, done))
+
+    def check(s: int, lane: int, duration: float, main: int, done):
+        limit, pause = work_limit[main], rest_minutes[main]  # the rule of the station's method today
+        worked = 0.0 if env.now - lane_free[s][lane] >= pause else lane_worked[s][lane]
+        yield env.timeout(duration)
         lane_free[s][lane] = env.now
-        resources[s].release(req)
-        heapq.heappush(idle[s], lane)
+        done.succeed()
+        if limit != math.inf:  # lanes of a method without a rule do not track work
+            worked += duration
+            lane_worked[s][lane] = 0.0 if worked >= limit else worked
+            if worked >= limit:
+                yield env.timeout(pause)
+                lane_free[s][lane] = env.now
+        busy[s][lane] = False
+        dispatch(s)
+
+    def roster():
+        """Every hour lanes come on and off duty: give the queues a chance."""
+        while True:
+            for s in range(n_s):
+                dispatch(s)
+            yield env.timeout(60.0 - env.now % 60.0)
 
     def vehicle(cls: int, cargo: int, weather: int):
         heading = -1  # secondary station the vehicle was referred to
@@ -290,43 +316,23 @@ def run_simpy(layout, lanes_by_hour: np.ndarray, inputs: YearInputs, seed: int) 
                 heading = -1
             if main < 0:
                 continue  # the station stands down in this weather
-            method, busy = main, False
+            method, is_busy = main, False
             if secondary[s]:
                 p = 1.0
             elif rule[s] == "targeted":
                 p = 1.0 if risk[cls] + noise_sd[s] * gauss(0.0, 1.0) > cut[s] else 0.0
             else:
                 hour = int(env.now // 60.0) % 24
-                busy = rule[s] == "queue_aware" and waiting[s] >= threshold[s] > 0
-                p = busy_fraction[s][hour][cls] if busy else fraction[s][hour][cls]
-                if busy:
+                is_busy = rule[s] == "queue_aware" and len(queue[s]) >= threshold[s] > 0
+                p = busy_fraction[s][hour][cls] if is_busy else fraction[s][hour][cls]
+                if is_busy:
                     method = busy_method
             if not uniform() < p:
                 continue
-            arrived = env.now
-            res = resources[s]
-            waiting[s] += 1
-            req = res.request(priority=0)
-            yield req
-            waiting[s] -= 1
-            wait_sum[s] += env.now - arrived
-            checks[s] += 1
-            lane = heapq.heappop(idle[s])
-            limit, pause = work_limit[main], rest_minutes[main]  # the rule of the station's method today
-            worked = 0.0 if env.now - lane_free[s][lane] >= pause else lane_worked[s][lane]
-            duration = draw[method]() * service_factor[method][cls][cargo]
-            yield env.timeout(duration)
-            lane_free[s][lane] = env.now
-            tired = False
-            if limit != math.inf:  # lanes of a method without a rule do not track work
-                worked += duration
-                tired = worked >= limit
-                lane_worked[s][lane] = 0.0 if tired else worked
-            if tired:
-                env.process(rest(s, lane, req, pause))
-            else:
-                res.release(req)
-                heapq.heappush(idle[s], lane)
+            done = env.event()
+            queue[s].append((draw[method]() * service_factor[method][cls][cargo], main, env.now, done))
+            dispatch(s)
+            yield done
             if not secondary[s] and refer[s] >= 0 and uniform() < false_alarm[method][weather] * cargo_false[method][cargo]:
                 heading = refer[s]  # nobody is hidden in this benchmark: every alarm is a false alarm
 
@@ -336,8 +342,7 @@ def run_simpy(layout, lanes_by_hour: np.ndarray, inputs: YearInputs, seed: int) 
                 yield env.timeout(t - env.now)
                 env.process(vehicle(c, k, weather))
 
-    for s in range(n_s):
-        env.process(roster(s))
+    env.process(roster())
     env.process(source())
     t = time.perf_counter()
     env.run(until=len(inputs.arrivals) * 1440.0 + 2 * 1440.0)  # two extra days to drain the queues
@@ -654,10 +659,9 @@ def main(argv: list[str] | None = None) -> int:
     print()
     print("notes:")
     print("  - All three run the same conditions: the day's weather (false alarms, dogs replaced in storms), class")
-    print("    and cargo factors on durations and false alarms, and dog-team rests. SimPy roster: each station holds")
-    print("    (lanes - staffed) lanes with top-priority requests that change every hour, so a lane goes off duty")
-    print("    when its current check ends; Undertow instead only starts a check that fits before the lane goes off")
-    print("    duty. Nobody is hidden in the SimPy or bare-replay vehicles (alarms are false alarms only, so the")
+    print("    and cargo factors on durations and false alarms, dog-team rests, and the roster hour by hour (a lane")
+    print("    only starts a check it can finish before it goes off duty). Nobody is hidden in the SimPy or")
+    print("    bare-replay vehicles (alarms are false alarms only, so the")
     print("    search station sees a few more referrals in Undertow); boarding points and sailings are not modelled")
     print("    there. Undertow does all of that plus agents and records, so the SimPy ratio, if anything, flatters SimPy.")
     print("  - Waits at the dog and search stations, near saturation with rests and storms, vary by 10-20% between")

@@ -17,6 +17,7 @@ from __future__ import annotations
 import json
 import os
 import uuid
+from collections.abc import Callable
 from dataclasses import dataclass, field
 from pathlib import Path
 from typing import Any
@@ -298,22 +299,27 @@ def _private_tmp(path: Path) -> Path:
     return path.with_name(f".{path.name}.{os.getpid()}.{uuid.uuid4().hex[:8]}.tmp")
 
 
+def write_atomically(path: Path, write: Callable[[Path], object]) -> Path:
+    """Write ``path`` whole or not at all: ``write`` fills a temporary name of this writer's own beside it,
+    which is then renamed into place (creating the folder if needed). Returns ``path``."""
+    path.parent.mkdir(parents=True, exist_ok=True)
+    tmp = _private_tmp(path)
+    write(tmp)
+    os.replace(tmp, path)
+    return path
+
+
 def write_parquet(frame: pd.DataFrame, path: Path) -> None:
     """Write a table atomically with deterministic bytes (no pandas metadata index, no timestamps)."""
-    path.parent.mkdir(parents=True, exist_ok=True)
     table = pa.Table.from_pandas(frame, preserve_index=False)
     table = table.replace_schema_metadata(None)
-    tmp = _private_tmp(path)
-    pq.write_table(table, tmp, compression="zstd")
-    os.replace(tmp, path)
+    write_atomically(path, lambda tmp: pq.write_table(table, tmp, compression="zstd"))
 
 
 def write_json(data: Any, path: Path) -> None:
     """Write JSON atomically, keys sorted."""
-    path.parent.mkdir(parents=True, exist_ok=True)
-    tmp = _private_tmp(path)
-    tmp.write_text(json.dumps(data, indent=2, sort_keys=True, default=float) + "\n", encoding="utf-8")
-    os.replace(tmp, path)
+    text = json.dumps(data, indent=2, sort_keys=True, default=float) + "\n"
+    write_atomically(path, lambda tmp: tmp.write_text(text, encoding="utf-8"))
 
 
 def write_records(book: RecordBook, out: Path) -> None:

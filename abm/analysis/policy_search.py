@@ -104,7 +104,7 @@ from ..errors import InputError
 from ..experiment.executors import Executor, choose_executor, make_executor
 from ..experiment.single import SUMMARY_SOURCES, package_versions
 from ..experiment.worker import SUMMARY_FILE, RunTask, is_complete
-from ..records import METHODS_FILE, write_json, write_parquet
+from ..records import METHODS_FILE, write_atomically, write_json, write_parquet
 from ..world import WorldFileError, file_hash, parse_world, read_yaml_mapping
 from ..world.paths import PathProblem, apply_changes, set_path
 from ..world.schema import NumberOnly, Strict
@@ -1001,15 +1001,10 @@ def run_optimisation(
     write_parquet(_plain(result.selection), out / "selection.parquet")
     write_parquet(_plain(result.history), out / "history.parquet")
     write_parquet(_plain(result.frontier), out / "frontier.parquet")
-    text = out / "summary.txt"
-    tmp = text.with_name(".summary.txt.tmp")
-    tmp.write_text(result.summary() + "\n", encoding="utf-8")
-    tmp.replace(text)
+    write_atomically(out / "summary.txt", lambda tmp: tmp.write_text(result.summary() + "\n", encoding="utf-8"))
     if figure:
         fig = result.frontier_figure()
-        tmp = out / ".frontier.png.tmp"
-        fig.savefig(tmp, dpi=110, format="png")
-        tmp.replace(out / "frontier.png")
+        write_atomically(out / "frontier.png", lambda tmp: fig.savefig(tmp, dpi=110, format="png"))
     return result
 
 

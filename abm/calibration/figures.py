@@ -14,6 +14,7 @@ import numpy as np
 from matplotlib.backends.backend_agg import FigureCanvasAgg
 from matplotlib.figure import Figure
 
+from ..records import write_atomically
 from .abc import weighted_quantile
 
 if TYPE_CHECKING:
@@ -85,9 +86,5 @@ def write_figures(result: "CalibrationResult", folder: str | Path) -> list[Path]
     paths = []
     for name, fig in figures:
         FigureCanvasAgg(fig)
-        path = folder / name
-        tmp = path.with_name(f".{name}.tmp")
-        fig.savefig(tmp, dpi=110, format="png")
-        tmp.replace(path)
-        paths.append(path)
+        paths.append(write_atomically(folder / name, lambda tmp: fig.savefig(tmp, dpi=110, format="png")))
     return paths

@@ -17,7 +17,7 @@ import pandas as pd
 
 from ..errors import InputError
 from ..experiment.executors import Executor, choose_executor, make_executor
-from ..records import write_parquet
+from ..records import write_atomically, write_parquet
 from .abc import REJECTION, REJECTION_PLAIN, ABCPosterior, PredictiveCheck, abc_smc, predictive_check, rejection_abc
 from .config import LATENT, LATENT_MEANING, CalibrationPlan, describe_calibration, load_calibration
 from .figures import write_figures
@@ -174,10 +174,7 @@ def _write_outputs(result: CalibrationResult, out: Path, figures: bool) -> None:
     write_parquet(result.posterior.diagnostics(), out / "diagnostics.parquet")
     if result.predictive is not None:
         write_parquet(result.predictive.to_frame(), out / "predictive_check.parquet")
-    text = out / "summary.txt"
-    tmp = text.with_name(".summary.txt.tmp")
-    tmp.write_text(result.summary() + "\n", encoding="utf-8")
-    tmp.replace(text)
+    write_atomically(out / "summary.txt", lambda tmp: tmp.write_text(result.summary() + "\n", encoding="utf-8"))
     if figures:
         write_figures(result, out / "figures")
 

@@ -33,6 +33,7 @@ from ..experiment.compare import mean_interval
 from ..estimate import frequency, removal, twosample
 from ..estimate.expansion import EXPANSION
 from ..estimate.expansion import SOURCE as EXPANSION_SOURCE
+from ..records import write_atomically
 from . import html as html_renderer
 from . import markdown as markdown_renderer
 from .document import (
@@ -1055,21 +1056,14 @@ def write(briefing: Briefing, formats: Sequence[str] = FORMATS) -> dict[str, Pat
         for key in FIGURE_KEYS - {f.key for f in figures}:  # a figure an earlier briefing drew and this one does not
             (out / markdown_renderer.FIGURES_DIR / f"{key}.png").unlink(missing_ok=True)
         for figure in figures:
-            target = out / markdown_renderer.figure_path(figure)
-            target.parent.mkdir(parents=True, exist_ok=True)
-            tmp = target.with_name(f".{target.name}.tmp")
-            tmp.write_bytes(figure.png)
-            tmp.replace(target)
+            write_atomically(out / markdown_renderer.figure_path(figure), lambda tmp: tmp.write_bytes(figure.png))
         paths["md"] = _write_text(out / MD_FILE, markdown_renderer.render(briefing.document))
     return paths
 
 
 def _write_text(path: Path, text: str) -> Path:
     """Write atomically (temporary name, then rename), as runs are written."""
-    tmp = path.with_name(f".{path.name}.tmp")
-    tmp.write_text(text, encoding="utf-8")
-    tmp.replace(path)
-    return path
+    return write_atomically(path, lambda tmp: tmp.write_text(text, encoding="utf-8"))
 
 
 def brief(out: str | Path, baseline: str | None = None, formats: Sequence[str] = FORMATS,

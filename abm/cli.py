@@ -86,6 +86,8 @@ def cmd_run(args: argparse.Namespace) -> int:
 
 
 DEMO_EXPERIMENT = REPO_WORLDS / "kestrel_quay" / "demo_experiment.yaml"
+# Where the summary extension of batches and the demo (cached_estimates) lives, for the pool's server to preload.
+BATCH_EXTENSION_MODULES = ("abm.analysis.estimator_check",)
 
 
 def _interrupted(command: str, out: str | Path) -> int:
@@ -96,6 +98,7 @@ def _interrupted(command: str, out: str | Path) -> int:
 
 def cmd_demo(args: argparse.Namespace) -> int:
     """Run the bundled demo experiment on local processes, then brief it."""
+    _start_pool_server("processes", BATCH_EXTENSION_MODULES)
     from .analysis.estimator_check import cached_estimates
     from .experiment.batch import run_batch
     from .experiment.design import load_plan
@@ -192,8 +195,20 @@ def cmd_estimate(args: argparse.Namespace) -> int:
     return EXIT_OK
 
 
+def _start_pool_server(executor: str | None, extension_modules: tuple[str, ...] = ()) -> None:
+    """For the processes executor, start the pool's fork server before this process imports the engine.
+
+    Both imports then run at once on two cores instead of one after the other (about 1.5 s each).
+    """
+    if executor == "processes":
+        from .experiment.fork_server import start_fork_server
+
+        start_fork_server(extension_modules)
+
+
 def cmd_batch(args: argparse.Namespace) -> int:
     """Run every run of an experiment into a batch folder; print the per-design-point comparison."""
+    _start_pool_server(args.executor, BATCH_EXTENSION_MODULES)
     from .analysis.estimator_check import cached_estimates
     from .experiment.batch import batch_command
 
@@ -212,6 +227,7 @@ def cmd_batch(args: argparse.Namespace) -> int:
 
 def cmd_calibrate(args: argparse.Namespace) -> int:
     """Fit unknown inflow and behaviour to observed records by ABC over the model; print the posterior."""
+    _start_pool_server(args.executor)
     from .calibration.run import calibrate_command
 
     try:
@@ -226,6 +242,7 @@ def cmd_calibrate(args: argparse.Namespace) -> int:
 
 def cmd_optimise(args: argparse.Namespace) -> int:
     """Search policies under constraints with common random numbers; print the best and the runner-ups."""
+    _start_pool_server(args.executor)
     from .analysis.policy_search import optimise_command
 
     try:

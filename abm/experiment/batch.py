@@ -94,9 +94,10 @@ def run_batch(
     workers call them as each run finishes, so whatever they cache is computed
     in parallel, and the store calls them again when it builds the summary.
     """
+    # The executor first: a process pool's server then imports the engine while the plan is read.
+    runner = make_executor(executor, workers, scheduler, preload=[extension.__module__ for extension in extensions])
     plan = load_plan(experiment)
     store = Store(out)
-    runner = make_executor(executor, workers, scheduler)
     store.open(plan, list(command), resume)
     done = store.complete(plan)
     todo = [spec for spec in plan.runs() if spec.run_id not in done]

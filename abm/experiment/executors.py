@@ -18,13 +18,14 @@ import threading
 import traceback
 import uuid
 from collections import deque
-from collections.abc import Iterable, Iterator
+from collections.abc import Iterable, Iterator, Sequence
 from concurrent.futures import FIRST_COMPLETED, Future, ProcessPoolExecutor, wait
 from concurrent.futures.process import BrokenProcessPool
 from types import TracebackType
 from typing import Any, Protocol
 
 from ..errors import InputError
+from .fork_server import start_fork_server, start_method
 from .worker import RunTask, execute_run, failure
 
 EXECUTORS = ("serial", "processes", "dask")
@@ -85,26 +86,24 @@ class SerialExecutor:
             yield execute_run(task)
 
 
-def _start_method() -> str:
-    # Never fork a process that may hold threads (tqdm, numba); forkserver starts workers cheaply where it exists.
-    return "forkserver" if "forkserver" in multiprocessing.get_all_start_methods() else "spawn"
-
-
 class ProcessExecutor:
     """A local pool of worker processes (``concurrent.futures``, forkserver or spawn)."""
 
     name = "processes"
 
-    def __init__(self, workers: int | None = None) -> None:
+    def __init__(self, workers: int | None = None, preload: Sequence[str] = ()) -> None:
+        """``preload``: modules the tasks will need beyond the engine (their summary extensions').
+
+        The fork server starts here, not on entering, so it imports while the caller prepares the tasks.
+        """
         self.workers = workers or os.cpu_count() or 1
+        self.preload = tuple(preload)
         self._pool: ProcessPoolExecutor | None = None
+        start_fork_server(self.preload)
 
     def _new_pool(self) -> ProcessPoolExecutor:
-        context = multiprocessing.get_context(_start_method())
-        if context.get_start_method() == "forkserver":
-            # Workers forked from a server that has already imported the engine start in milliseconds.
-            context.set_forkserver_preload(["abm.experiment.worker"])
-        return ProcessPoolExecutor(max_workers=self.workers, mp_context=context)
+        start_fork_server(self.preload)  # again: after a worker died, the server may have gone too
+        return ProcessPoolExecutor(max_workers=self.workers, mp_context=multiprocessing.get_context(start_method()))
 
     def __enter__(self) -> "ProcessExecutor":
         self._pool = self._new_pool()
@@ -257,12 +256,14 @@ def choose_executor(executor: str | None, workers: int | None, scheduler: str | 
     return chosen
 
 
-def make_executor(name: str, workers: int | None = None, scheduler: str | None = None) -> Executor:
-    """The executor called ``name`` (one of :data:`EXECUTORS`)."""
+def make_executor(
+    name: str, workers: int | None = None, scheduler: str | None = None, preload: Sequence[str] = ()
+) -> Executor:
+    """The executor called ``name`` (one of :data:`EXECUTORS`); ``preload`` as for :class:`ProcessExecutor`."""
     if name == "serial":
         return SerialExecutor()
     if name == "processes":
-        return ProcessExecutor(workers)
+        return ProcessExecutor(workers, preload)
     if name == "dask":
         return DaskExecutor(workers, scheduler)
     raise InputError(f"unknown executor '{name}'; expected one of {', '.join(EXECUTORS)}")

@@ -9,7 +9,10 @@ import pandas as pd
 import pytest
 
 from abm.analysis.estimator_check import ESTIMATES_CACHE, cached_estimates
+from abm.cli import BATCH_EXTENSION_MODULES
 from abm.experiment.batch import run_batch
+from abm.experiment.executors import ProcessExecutor
+from abm.experiment.fork_server import start_method
 from abm.experiment.store import FAILURES_TABLE, SUMMARY_TABLE
 from abm.experiment.worker import RunTask, execute_run
 from abm.world import load_world
@@ -94,3 +97,16 @@ def test_a_worker_runs_the_extensions_once_the_run_is_written_and_survives_a_fai
     answer = execute_run(task)
     assert answer["ok"]
     assert json.loads((tmp_path / "run" / ESTIMATES_CACHE).read_text())["window"] == [1, 4]
+
+
+@pytest.mark.skipif(start_method() != "forkserver", reason="workers come from a fork server only where there is one")
+def test_pool_workers_start_with_the_engine_and_the_extensions_modules_loaded() -> None:
+    # eval is pickled by name, so sending it imports nothing in the worker: what it sees was preloaded.
+    loaded = "[name in __import__('sys').modules for name in ('abm.experiment.worker', 'abm.analysis.estimator_check')]"
+    with ProcessExecutor(1, preload=[cached_estimates.__module__]) as pool:
+        assert pool._pool is not None
+        assert pool._pool.submit(eval, loaded).result() == [True, True]
+
+
+def test_the_command_line_preloads_the_module_of_its_batch_extension() -> None:
+    assert cached_estimates.__module__ in BATCH_EXTENSION_MODULES

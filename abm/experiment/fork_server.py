@@ -1,0 +1,41 @@
+"""The server process a local pool forks its workers from, and starting it early.
+
+A pool forks each worker from one server process that has already imported
+what a run needs (the engine, and the modules of a batch's summary
+extensions), so a worker starts in milliseconds instead of importing it all
+again. The server's own imports take about 1.5 s on the 2-core reference
+machine; a command that will use the pool starts the server first, so it
+imports on the other core while the command imports and reads its input.
+
+This module uses only the standard library, so calling it first costs nothing.
+"""
+
+from __future__ import annotations
+
+import multiprocessing
+import multiprocessing.forkserver
+from collections.abc import Iterable
+
+WORKER_MODULE = "abm.experiment.worker"
+
+
+def start_method() -> str:
+    """``forkserver`` where the platform has it, else ``spawn``.
+
+    Never plain ``fork``: the commands' processes hold threads (numpy's BLAS, tqdm) and forking
+    a process with threads can deadlock the child.
+    """
+    return "forkserver" if "forkserver" in multiprocessing.get_all_start_methods() else "spawn"
+
+
+def start_fork_server(extension_modules: Iterable[str] = ()) -> None:
+    """Start the fork server now (if the platform has one and it is not running), preloading a worker's modules.
+
+    Returns at once: the server imports in the background, and the first worker asked of it waits
+    for that. A server already running keeps what it preloaded; workers import anything else themselves.
+    """
+    if start_method() != "forkserver":
+        return
+    modules = dict.fromkeys([WORKER_MODULE, *extension_modules])  # ordered, without repeats
+    multiprocessing.get_context("forkserver").set_forkserver_preload(list(modules))
+    multiprocessing.forkserver.ensure_running()

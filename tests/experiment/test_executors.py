@@ -3,6 +3,8 @@
 from __future__ import annotations
 
 import json
+import subprocess
+import sys
 from pathlib import Path
 
 import pandas as pd
@@ -110,3 +112,10 @@ def test_pool_workers_start_with_the_engine_and_the_extensions_modules_loaded() 
 
 def test_the_command_line_preloads_the_module_of_its_batch_extension() -> None:
     assert cached_estimates.__module__ in BATCH_EXTENSION_MODULES
+
+
+def test_a_worker_and_its_estimates_do_not_import_scipy_stats() -> None:
+    # scipy.stats takes about 0.45 s to import, paid by every worker process; scipy.special has the quantiles.
+    code = "import sys, abm.experiment.worker, abm.analysis.estimator_check; print('scipy.stats' in sys.modules)"
+    shown = subprocess.run([sys.executable, "-c", code], capture_output=True, text=True, check=True)
+    assert shown.stdout.strip() == "False"

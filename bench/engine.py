@@ -630,6 +630,11 @@ def main(argv: list[str] | None = None) -> int:
         print(f"  {label:52s}{breakdown[label]:7.2f} s")
     drawing = breakdown["traffic draws (arrivals, classes, stops, cargo)"] + breakdown["station draws (durations, uniforms)"]
     print(f"  random numbers drawn inside the year: {drawing:.2f} s, {drawing / bare_wall:.1f}x the bare replay by themselves")
+    # A floor for any engine that draws its own numbers and keeps Mesa agents: those two, plus the very
+    # recursion the bare replay times (its serve_fifo calls), before boarding, sailings or records.
+    floor = drawing + statistics.median(recursion_runs) + breakdown["agents, command and model glue"]
+    print(f"  floor: those draws + the bare replay's own serve_fifo time + the agents = {floor:.2f} s, "
+          f"{floor / bare_wall:.1f}x the bare replay")
     print()
     print("mean wait (min) / checks per station, a sanity check that the three run the same crossing:")
     print(f"  {'station':16s}{'Undertow':>20s}{'SimPy':>20s}{'bare replay':>20s}")

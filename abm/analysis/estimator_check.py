@@ -68,6 +68,8 @@ truth <= hi). :func:`summarise_check` aggregates per estimator x factor levels:
 
 from __future__ import annotations
 
+import functools
+import hashlib
 import json
 import math
 import re
@@ -80,6 +82,8 @@ import numpy as np
 import pandas as pd
 from scipy import special  # quantile functions without scipy.stats, whose import costs each worker about 0.45 s
 
+from .. import estimate as estimate_package
+from .. import observed as observed_module
 from ..errors import InputError
 from ..estimate.expansion import EXPANSION, Sensitivities
 from ..estimate.frequency import CHAO, CHAO_BC, ZELTERMAN, ZTP, ZTP_REGRESSION
@@ -813,6 +817,21 @@ def _flat_estimates(results: list[EstimateResult], failures: list[tuple[str, str
 ESTIMATES_CACHE = "estimates_summary.json"
 
 
+@functools.cache
+def estimators_fingerprint() -> str:
+    """SHA-256 over the source of the estimators and the observed schema they read.
+
+    A cached result is trusted only under the code that computed it: a changed
+    estimator (a fix, a new method) recomputes every run's cache instead of a
+    briefing quietly showing the old figures.
+    """
+    sources = sorted(Path(estimate_package.__file__).parent.glob("*.py")) + [Path(observed_module.__file__)]
+    digest = hashlib.sha256()
+    for source in sources:
+        digest.update(source.name.encode() + b"\0" + source.read_bytes() + b"\0")
+    return digest.hexdigest()
+
+
 def summarised_days(run_dir: str | Path) -> tuple[int, int]:
     """The days a run's summary covers, (first, last) inclusive: after its warm-up, from its manifest."""
     manifest = json.loads((Path(run_dir) / MANIFEST_FILE).read_text(encoding="utf-8"))
@@ -826,21 +845,23 @@ def cached_results(run_dir: str | Path) -> tuple[list[EstimateResult], list[tupl
     The window is the one of the run's other summary figures (the warm-up left
     out, as the briefing does). Kept in ``RUN_DIR/estimates_summary.json``:
     derived from the run's own observed records, written atomically, naming
-    its window and level, and recomputed when it is missing or covers other
-    days. A batch's workers write it as each run finishes; the store's summary
+    its window, level and :func:`estimators_fingerprint`, and recomputed when
+    it is missing, covers other days or came from other estimator code. A batch's workers write it as each run finishes; the store's summary
     columns (:func:`cached_estimates`) and the briefing's estimator check read it.
     """
     window = summarised_days(run_dir)
     path = Path(run_dir) / ESTIMATES_CACHE
     if path.is_file():
         cached = json.loads(path.read_text(encoding="utf-8"))
-        if cached.get("window") == list(window) and cached.get("level") == DEFAULT_LEVEL and "results" in cached:
+        same_request = cached.get("window") == list(window) and cached.get("level") == DEFAULT_LEVEL
+        if same_request and cached.get("estimators") == estimators_fingerprint() and "results" in cached:
             results = [EstimateResult.from_dict(r) for r in cached["results"]]
             return results, [(str(name), str(why)) for name, why in cached["failures"]]
     results, failures = _results_for_run(run_dir, window)
     # parameters as pairs: they keep the order each estimator reports them in (JSON objects are written sorted)
     written = [{**r.to_dict(), "parameters": [list(p) for p in r.parameters]} for r in results]
-    write_json({"window": list(window), "level": DEFAULT_LEVEL, "results": written, "failures": failures}, path)
+    record = {"window": list(window), "level": DEFAULT_LEVEL, "estimators": estimators_fingerprint()}
+    write_json({**record, "results": written, "failures": failures}, path)
     return results, failures
 
 

@@ -39,6 +39,7 @@ from abm.analysis.estimator_check import (
     check_runs,
     clopper_pearson_interval,
     estimates_for_run,
+    estimators_fingerprint,
     method_slug,
     passed_unfound,
     persons_at_risk,
@@ -443,6 +444,14 @@ def test_cached_estimates_cover_the_days_the_summary_covers(tmp_path):
     # a cache written for other days (or in an older layout) is recomputed, not trusted
     (run / ESTIMATES_CACHE).write_text(json.dumps({"window": [6, 17], "estimates": {"est_chao": 1.0}}), encoding="utf-8")
     assert cached_estimates(run) == values
+    # so is one written by other estimator code, however well it matches the request
+    stale = json.loads((run / ESTIMATES_CACHE).read_text(encoding="utf-8"))
+    assert stale["estimators"] == estimators_fingerprint()
+    stale["estimators"] = "0" * 64
+    stale["results"][0]["estimate"] = -1.0
+    (run / ESTIMATES_CACHE).write_text(json.dumps(stale), encoding="utf-8")
+    assert cached_estimates(run) == values
+    assert json.loads((run / ESTIMATES_CACHE).read_text(encoding="utf-8"))["estimators"] == estimators_fingerprint()
 
 
 def test_the_estimator_check_over_the_summarised_days_reads_the_cache_and_agrees_with_a_fresh_run(tmp_path):

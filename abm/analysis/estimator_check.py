@@ -846,8 +846,9 @@ def cached_results(run_dir: str | Path) -> tuple[list[EstimateResult], list[tupl
     out, as the briefing does). Kept in ``RUN_DIR/estimates_summary.json``:
     derived from the run's own observed records, written atomically, naming
     its window, level and :func:`estimators_fingerprint`, and recomputed when
-    it is missing, covers other days or came from other estimator code. A batch's workers write it as each run finishes; the store's summary
-    columns (:func:`cached_estimates`) and the briefing's estimator check read it.
+    it is missing, covers other days or came from other estimator code. A
+    batch's workers write it as each run finishes; the store's summary columns
+    (:func:`cached_estimates`) and the briefing's estimator check read it.
     """
     window = summarised_days(run_dir)
     path = Path(run_dir) / ESTIMATES_CACHE

@@ -13,7 +13,6 @@ import pytest
 from abm.analysis.estimator_check import ESTIMATES_CACHE, cached_estimates
 from abm.cli import BATCH_EXTENSION_MODULES
 from abm.experiment.batch import run_batch
-from abm.experiment.executors import ProcessExecutor
 from abm.experiment.fork_server import start_method
 from abm.experiment.store import FAILURES_TABLE, SUMMARY_TABLE
 from abm.experiment.worker import RunTask, execute_run
@@ -103,11 +102,18 @@ def test_a_worker_runs_the_extensions_once_the_run_is_written_and_survives_a_fai
 
 @pytest.mark.skipif(start_method() != "forkserver", reason="workers come from a fork server only where there is one")
 def test_pool_workers_start_with_the_engine_and_the_extensions_modules_loaded() -> None:
+    # In a fresh interpreter: this one's fork server may already run with what an earlier test preloaded.
     # eval is pickled by name, so sending it imports nothing in the worker: what it sees was preloaded.
-    loaded = "[name in __import__('sys').modules for name in ('abm.experiment.worker', 'abm.analysis.estimator_check')]"
+    code = """
+from abm.analysis.estimator_check import cached_estimates
+from abm.experiment.executors import ProcessExecutor
+loaded = "[name in __import__('sys').modules for name in ('abm.experiment.worker', 'abm.analysis.estimator_check')]"
+if __name__ == "__main__":
     with ProcessExecutor(1, preload=[cached_estimates.__module__]) as pool:
-        assert pool._pool is not None
-        assert pool._pool.submit(eval, loaded).result() == [True, True]
+        print(pool._pool.submit(eval, loaded).result())
+"""
+    shown = subprocess.run([sys.executable, "-c", code], capture_output=True, text=True, check=True)
+    assert shown.stdout.strip() == "[True, True]"
 
 
 def test_the_command_line_preloads_the_module_of_its_batch_extension() -> None:

@@ -207,7 +207,7 @@ class RecordBook:
             codes["point"] = np.array(world.point_names, dtype=object)[codes["point"]]
             codes["band"] = np.array(world.band_names, dtype=object)[codes["band"]]
             codes["vehicle_class"] = np.array(world.class_names, dtype=object)[codes["vehicle_class"]]
-            codes["depth"] = np.array([d.name for d in world.depths], dtype=object)[codes["depth"]]
+            codes["depth"] = np.array(world.depth_names, dtype=object)[codes["depth"]]
             codes["outcome"] = outcome_names[codes["outcome"]]
             codes["station"] = np.array(world.station_names + [""], dtype=object)[codes["station"]]
             codes["method"] = np.array(world.method_names + [""], dtype=object)[codes["method"]]

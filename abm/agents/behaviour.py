@@ -121,7 +121,7 @@ class StaticBehaviour(_Quiet):
         point = np.array([shares.point_shares.get(p, 0.0) for p in world.point_names])
         band = np.array([shares.band_shares.get(b, 0.0) for b in world.band_names])
         vclass = np.array([shares.class_shares.get(c, 0.0) for c in world.class_names])
-        depth = np.array([shares.depth_shares.get(d.name, 0.0) for d in world.depths])
+        depth = np.array([shares.depth_shares.get(d, 0.0) for d in world.depth_names])
         if not shares.depth_shares:
             depth[0] = 1.0
         product = point[:, None, None, None] * band[None, :, None, None] * vclass[None, None, :, None]

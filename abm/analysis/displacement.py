@@ -523,10 +523,8 @@ def _in_window(frame: pd.DataFrame, window: Window) -> pd.DataFrame:
 
 def _option_keys(world: World, dimension: str) -> list[str]:
     """Every value of a dimension in the world's option space, in world order."""
-    names = {
-        "point": world.point_names, "band": world.band_names, "vehicle_class": world.class_names,
-        "depth": [d.name for d in world.depths],
-    }  # fmt: skip
+    names = {"point": world.point_names, "band": world.band_names, "vehicle_class": world.class_names,
+             "depth": world.depth_names}  # fmt: skip
     if dimension == "option":
         return [f"{p}/{b}/{c}" for p in names["point"] for b in names["band"] for c in names["vehicle_class"]]
     return list(names[dimension])

@@ -166,7 +166,7 @@ def build_layout(world: World) -> Layout:
     cargo = world.cargo_names
     if not cargo or any(not c.cargo for c in world.vehicle_classes):
         cargo = cargo + [UNSTATED]
-    depths = [d.name for d in world.depths]
+    depths = world.depth_names
     n_m = len(methods)
     false_weather = np.array(
         [[m.weather[w].false_alarm if w in m.weather else m.false_alarm for w in weather_names] for m in methods]

@@ -53,7 +53,7 @@ def check_references(world: World) -> None:
     _unique(world.station_names, "stations", "station")
     _unique(world.point_names, "boarding_points", "boarding point")
     _unique([t.name for t in world.roster.teams], "roster.teams", "team")
-    _unique([d.name for d in world.depths], "depths", "depth level")
+    _unique(world.depth_names, "depths", "depth level")
     _check_bands(world)
     _check_weather(world)
     classes, bands = world.class_names, world.band_names
@@ -156,7 +156,7 @@ def check_references(world: World) -> None:
     for key in static.class_shares:
         _require(key, classes, f"adversary.static.class_shares.{key}", "vehicle class")
     for key in static.depth_shares:
-        _require(key, [d.name for d in world.depths], f"adversary.static.depth_shares.{key}", "depth level")
+        _require(key, world.depth_names, f"adversary.static.depth_shares.{key}", "depth level")
 
 
 def _check_weather(world: World) -> None:
@@ -198,7 +198,7 @@ def _check_method_conditions(world: World, i: int) -> None:
     for key in method.cargo:
         _require(key, cargo, f"{path}.cargo.{key}", "cargo type (see vehicle_classes[].cargo)")
     for key in method.depth_factor:
-        _require(key, [d.name for d in world.depths], f"{path}.depth_factor.{key}", "depth level")
+        _require(key, world.depth_names, f"{path}.depth_factor.{key}", "depth level")
     for key in method.service.class_factor:
         if key != DEFAULT_KEY:
             _require(key, world.class_names, f"{path}.service.class_factor.{key}", "vehicle class")

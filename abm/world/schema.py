@@ -499,6 +499,10 @@ class World(Strict):
         return [p.name for p in self.boarding_points]
 
     @property
+    def depth_names(self) -> list[str]:
+        return [d.name for d in self.depths]
+
+    @property
     def station_names(self) -> list[str]:
         return [s.name for s in self.stations]
 

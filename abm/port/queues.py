@@ -44,6 +44,7 @@ import numba
 import numpy as np
 
 from .layout import RULES
+from .traffic import MINUTES_PER_DAY
 
 MINUTES_PER_HOUR = 60.0
 TARGETED, QUEUE_AWARE = RULES.index("targeted"), RULES.index("queue_aware")
@@ -63,7 +64,6 @@ _CHECKS, _ALARMS, _LOGGED_FALSE, _MINUTES, _OCCUPIED, _FOUND, _TRUE_ALARMS, _FAL
 
 
 NEVER = 1 << 30  # hours until a lane that is never on duty comes on duty
-MINUTES_PER_DAY = 1440.0
 
 
 @dataclass
@@ -398,7 +398,7 @@ def station_pass(
             depth[r] = 0
         ready[r] = end[i]
         # vehicles are counted by the hour they reach the station, so passes per hour do not depend on policy
-        cal_day = int(np.floor(arrive[i] / 1440.0))
+        cal_day = int(np.floor(arrive[i] / MINUTES_PER_DAY))
         clock_hour = int(np.floor(arrive[i] / 60.0)) % 24
         key[i] = (((cal_day * 24 + clock_hour) * n_stations + station) * n_classes + c) * n_methods + m
     return (rows, arrive, start, end, checked, method, alarm, hit, logged_false, key), (next_arrival, next_start)

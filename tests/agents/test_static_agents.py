@@ -58,7 +58,7 @@ def tables() -> dict[str, Any]:
 
 def expected_option_shares(world) -> pd.Series:
     static = world.adversary.static
-    depths = [d.name for d in world.depths]
+    depths = world.depth_names
     index = pd.MultiIndex.from_product(
         [world.point_names, world.band_names, world.class_names, depths], names=["point", "band", "vehicle_class", "depth"]
     )
@@ -123,7 +123,7 @@ def test_static_behaviour_probabilities_are_the_normalised_product():
     np.testing.assert_allclose(behaviour.probabilities, expected, rtol=0, atol=1e-12)
     # flat option indices unravel to the same (point, band, class, depth) order
     point, band, vclass, depth = options.unravel(np.arange(options.size))
-    depths = [d.name for d in world.depths]
+    depths = world.depth_names
     names = [
         (world.point_names[p], world.band_names[b], world.class_names[c], depths[d])
         for p, b, c, d in zip(point, band, vclass, depth, strict=True)

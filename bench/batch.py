@@ -74,13 +74,13 @@ def write_experiment(folder: Path, runs: int, days: int) -> Path:
     return path
 
 
-def timed_batch(path: Path, out: Path, executor: str, workers: int | None, extensions=None) -> tuple[float, float]:
-    """Wall time and this process's CPU time of one batch, with the estimators' summary columns as ``undertow batch``."""
+def timed_batch(path: Path, out: Path, extensions=None) -> tuple[float, float]:
+    """Wall time and this process's CPU time of one serial batch in this process, with the estimators' summary columns."""
     from abm.analysis.estimator_check import cached_estimates
     from abm.experiment.batch import run_batch
 
     start, cpu = time.perf_counter(), time.process_time()
-    result = run_batch(path, out, executor=executor, workers=workers, show_progress=False,
+    result = run_batch(path, out, executor="serial", show_progress=False,
                        extensions=extensions or (cached_estimates,))  # fmt: skip
     elapsed = time.perf_counter() - start, time.process_time() - cpu
     assert result.failed == 0, result.failures
@@ -126,7 +126,7 @@ def timed_serial(path: Path, out: Path) -> tuple[float, float, float, float]:
     # estimating is the run's work when it computes (the worker, right after the run); a read of the cache is the store's
     estimates = timed(cached_estimates, lambda run_dir: not (Path(run_dir) / ESTIMATES_CACHE).is_file())
     try:
-        wall, cpu = timed_batch(path, out, "serial", None, extensions=(estimates,))
+        wall, cpu = timed_batch(path, out, extensions=(estimates,))
     finally:
         worker.run_to_directory = real
     return wall, cpu, in_runs[0], in_runs[1]
@@ -155,7 +155,7 @@ def main() -> None:
             (folder / name).mkdir()
         whole = write_experiment(folder / "whole", runs, args.days)
         # compiled code and file caches warm before anything is timed
-        timed_batch(write_experiment(folder / "warm", 2, args.days), folder / "warm-out", "serial", None)
+        timed_batch(write_experiment(folder / "warm", 2, args.days), folder / "warm-out")
         times: dict[str, list[float]] = {"serial": [], "processes": [], "dask": []}
         outs = []
         for index, name in enumerate(ORDER):

@@ -1,4 +1,4 @@
-"""The server process a local pool forks its workers from, and starting it early.
+"""The server process a local pool or Dask cluster forks its workers from, and starting it early.
 
 A pool forks each worker from one server process that has already imported
 what a run needs (the engine, and the modules of a batch's summary
@@ -17,6 +17,7 @@ import multiprocessing.forkserver
 from collections.abc import Iterable
 
 WORKER_MODULE = "abm.experiment.worker"
+DASK_WORKER_MODULE = "distributed"  # a local Dask cluster's workers are Dask workers too
 
 
 def start_method() -> str:
@@ -39,3 +40,8 @@ def start_fork_server(extension_modules: Iterable[str] = ()) -> None:
     modules = dict.fromkeys([WORKER_MODULE, *extension_modules])  # ordered, without repeats
     multiprocessing.get_context("forkserver").set_forkserver_preload(list(modules))
     multiprocessing.forkserver.ensure_running()
+
+
+def local_cluster_preload(extension_modules: Iterable[str] = ()) -> tuple[str, ...]:
+    """The extension modules to preload for a local Dask cluster's workers: a pool worker's, and Dask's."""
+    return (*extension_modules, DASK_WORKER_MODULE)

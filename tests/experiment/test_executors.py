@@ -116,6 +116,24 @@ if __name__ == "__main__":
     assert shown.stdout.strip() == "[True, True]"
 
 
+@pytest.mark.skipif(start_method() != "forkserver", reason="workers come from a fork server only where there is one")
+def test_local_dask_workers_fork_from_the_server_with_the_engine_loaded() -> None:
+    # As above, in a fresh interpreter; a worker forked from the server has the modules it preloaded, so
+    # its parent is the server and not this process (a worker Dask spawned would be this process's child).
+    code = """
+import os
+from abm.analysis.estimator_check import cached_estimates
+from abm.experiment.executors import DaskExecutor
+loaded = "[name in __import__('sys').modules for name in ('abm.experiment.worker', 'abm.analysis.estimator_check')]"
+if __name__ == "__main__":
+    with DaskExecutor(1, preload=[cached_estimates.__module__]) as cluster:
+        parent = cluster._client.submit(eval, "__import__('os').getppid()", pure=False).result()
+        print(cluster._client.submit(eval, loaded, pure=False).result(), parent != os.getpid())
+"""
+    shown = subprocess.run([sys.executable, "-c", code], capture_output=True, text=True, check=True)
+    assert shown.stdout.strip() == "[True, True] True"
+
+
 def test_the_command_line_preloads_the_module_of_its_batch_extension() -> None:
     assert cached_estimates.__module__ in BATCH_EXTENSION_MODULES
 

@@ -98,13 +98,17 @@ def test_killed_coordinator_resumes_to_the_uninterrupted_summary(
 
 
 @pytest.mark.skipif(not Path("/proc/self/stat").exists(), reason="finds worker processes through /proc")
-def test_killed_worker_process_is_replaced_and_no_run_is_lost(tmp_path: Path, resumable: tuple[Path, Path]) -> None:
+@pytest.mark.parametrize("executor", ["processes", "dask"])
+def test_killed_worker_process_is_replaced_and_no_run_is_lost(
+    tmp_path: Path, resumable: tuple[Path, Path], executor: str
+) -> None:
     path, reference = resumable
     out = tmp_path / "out"
-    process = _start_batch(path, out, "--executor", "processes", "--workers", "2")
+    process = _start_batch(path, out, "--executor", executor, "--workers", "2")
     try:
         _wait_for_runs(process, out, 2)
-        # workers are the children of the pool's fork server, itself a child of the coordinator
+        # workers (a pool's, or a local Dask cluster's) are the children of the fork server, itself a
+        # child of the coordinator
         workers = [w for child in _children(process.pid) for w in _children(child)]
         assert workers, "found no worker process"
         os.kill(workers[0], signal.SIGKILL)

@@ -254,8 +254,18 @@ class DaskExecutor:
 
 
 def _close_local(client: Any, cluster: Any) -> None:
+    # A worker stops its heartbeat and then closes its connections, and a heartbeat already under way then
+    # fails, logging a traceback at ERROR (dask/distributed issue 7105): noise of a teardown that follows
+    # the last answer, so the workers' Dask logs are quieted first.
+    client.run(quiet_dask_logs, on_error="ignore")
     client.close()
     cluster.close()
+
+
+def quiet_dask_logs() -> None:
+    """Let this process's Dask (and its Tornado loop) log only critical messages from now on."""
+    for name in ("distributed", "tornado.application"):
+        logging.getLogger(name).setLevel(logging.CRITICAL)
 
 
 def choose_executor(executor: str | None, workers: int | None, scheduler: str | None) -> str:

@@ -134,6 +134,24 @@ if __name__ == "__main__":
     assert shown.stdout.strip() == "[True, True] True"
 
 
+def test_quieted_local_dask_workers_keep_teardown_errors_off_the_terminal() -> None:
+    # A worker's error goes to the terminal until the worker is quieted, as a local cluster's are before closing.
+    code = """
+import logging
+from abm.experiment.executors import DaskExecutor, quiet_dask_logs
+def shout(text):
+    logging.getLogger("distributed.worker").error(text)
+if __name__ == "__main__":
+    with DaskExecutor(1) as cluster:
+        cluster._client.run(shout, "heard before quieting")
+        cluster._client.run(quiet_dask_logs)
+        cluster._client.run(shout, "heard after quieting")
+"""
+    shown = subprocess.run([sys.executable, "-c", code], capture_output=True, text=True, check=True)
+    assert "heard before quieting" in shown.stderr
+    assert "heard after quieting" not in shown.stderr
+
+
 def test_the_command_line_preloads_the_module_of_its_batch_extension() -> None:
     assert cached_estimates.__module__ in BATCH_EXTENSION_MODULES
 

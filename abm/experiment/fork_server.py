@@ -3,9 +3,11 @@
 A pool forks each worker from one server process that has already imported
 what a run needs (the engine, and the modules of a batch's summary
 extensions), so a worker starts in milliseconds instead of importing it all
-again. The server's own imports take about 1.5 s on the 2-core reference
-machine; a command that will use the pool starts the server first, so it
-imports on the other core while the command imports and reads its input.
+again. A local Dask cluster's nannies fork their workers from the same server,
+which then imports Dask too. The server's own imports take about 1.5 s on the
+2-core reference machine; a command that will use the pool or a local cluster
+starts the server first, so it imports on the other core while the command
+imports and reads its input.
 
 This module uses only the standard library, so calling it first costs nothing.
 """

@@ -100,35 +100,31 @@ def test_a_worker_runs_the_extensions_once_the_run_is_written_and_survives_a_fai
     assert json.loads((tmp_path / "run" / ESTIMATES_CACHE).read_text())["window"] == [1, 4]
 
 
+# How each executor is made with the batch's extension module to preload, and how a worker is asked a question.
+WORKER_PROBES = {
+    "processes": ("ProcessExecutor(1, preload=[cached_estimates.__module__])", "ex._pool.submit(eval, {!r}).result()"),
+    "dask": (
+        "DaskExecutor(1, preload=[cached_estimates.__module__])",
+        "ex._client.submit(eval, {!r}, pure=False).result()",
+    ),
+}
+
+
 @pytest.mark.skipif(start_method() != "forkserver", reason="workers come from a fork server only where there is one")
-def test_pool_workers_start_with_the_engine_and_the_extensions_modules_loaded() -> None:
+@pytest.mark.parametrize("executor", sorted(WORKER_PROBES))
+def test_workers_fork_from_the_server_with_the_engine_and_the_extensions_modules_loaded(executor: str) -> None:
     # In a fresh interpreter: this one's fork server may already run with what an earlier test preloaded.
-    # eval is pickled by name, so sending it imports nothing in the worker: what it sees was preloaded.
-    code = """
-from abm.analysis.estimator_check import cached_estimates
-from abm.experiment.executors import ProcessExecutor
-loaded = "[name in __import__('sys').modules for name in ('abm.experiment.worker', 'abm.analysis.estimator_check')]"
-if __name__ == "__main__":
-    with ProcessExecutor(1, preload=[cached_estimates.__module__]) as pool:
-        print(pool._pool.submit(eval, loaded).result())
-"""
-    shown = subprocess.run([sys.executable, "-c", code], capture_output=True, text=True, check=True)
-    assert shown.stdout.strip() == "[True, True]"
-
-
-@pytest.mark.skipif(start_method() != "forkserver", reason="workers come from a fork server only where there is one")
-def test_local_dask_workers_fork_from_the_server_with_the_engine_loaded() -> None:
-    # As above, in a fresh interpreter; a worker forked from the server has the modules it preloaded, so
-    # its parent is the server and not this process (a worker Dask spawned would be this process's child).
-    code = """
+    # eval is pickled by name, so sending it imports nothing in the worker: what it sees was preloaded. A
+    # worker forked from the server is the server's child, not this process's (as a spawned worker would be).
+    make, ask = WORKER_PROBES[executor]
+    loaded = "[name in __import__('sys').modules for name in ('abm.experiment.worker', 'abm.analysis.estimator_check')]"
+    code = f"""
 import os
 from abm.analysis.estimator_check import cached_estimates
-from abm.experiment.executors import DaskExecutor
-loaded = "[name in __import__('sys').modules for name in ('abm.experiment.worker', 'abm.analysis.estimator_check')]"
+from abm.experiment.executors import {make.split("(")[0]}
 if __name__ == "__main__":
-    with DaskExecutor(1, preload=[cached_estimates.__module__]) as cluster:
-        parent = cluster._client.submit(eval, "__import__('os').getppid()", pure=False).result()
-        print(cluster._client.submit(eval, loaded, pure=False).result(), parent != os.getpid())
+    with {make} as ex:
+        print({ask.format(loaded)}, {ask.format("__import__('os').getppid()")} != os.getpid())
 """
     shown = subprocess.run([sys.executable, "-c", code], capture_output=True, text=True, check=True)
     assert shown.stdout.strip() == "[True, True] True"

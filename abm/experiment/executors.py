@@ -212,9 +212,9 @@ class DaskExecutor:
             if client is not None:
                 client.close()  # a cluster reached with --scheduler stays up for others
             return
-        # Every answer is in and every run directory written: the local workers' teardown (an interpreter
-        # each, with the engine's libraries loaded: over half a second) need not hold up the batch, just as
-        # the process pool lets its workers exit on their own. Not a daemon: the program exits after it.
+        # Every answer is in and every run directory written: the local cluster's teardown need not hold up
+        # the batch's tables, just as the process pool lets its workers exit on their own. Not a daemon: the
+        # program exits after it.
         threading.Thread(target=_close_local, args=(client, cluster), name="undertow-dask-close").start()
 
     def imap(self, tasks: Iterable[RunTask]) -> Iterator[dict[str, Any]]:

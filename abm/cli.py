@@ -203,12 +203,9 @@ def _start_pool_server(
     It starts before this process imports the engine, so both imports (about 1.5 s each) run at once
     on two cores instead of one after the other.
     """
-    from .experiment.fork_server import local_cluster_preload, start_fork_server
+    from .experiment.fork_server import start_server_for
 
-    if executor == "processes":
-        start_fork_server(extension_modules)
-    elif executor == "dask" and not scheduler:
-        start_fork_server(local_cluster_preload(extension_modules))
+    start_server_for(executor, scheduler, extension_modules)
 
 
 def cmd_batch(args: argparse.Namespace) -> int:

@@ -25,7 +25,7 @@ from types import TracebackType
 from typing import Any, Protocol
 
 from ..errors import InputError
-from .fork_server import local_cluster_preload, start_fork_server, start_method
+from .fork_server import start_fork_server, start_method, start_server_for
 from .worker import RunTask, execute_run, failure
 
 EXECUTORS = ("serial", "processes", "dask")
@@ -178,8 +178,7 @@ class DaskExecutor:
         self.scheduler = scheduler
         self._cluster: Any = None
         self._client: Any = None
-        if not scheduler:
-            start_fork_server(local_cluster_preload(preload))
+        start_server_for(self.name, scheduler, preload)
 
     def __enter__(self) -> "DaskExecutor":
         from distributed import Client, LocalCluster

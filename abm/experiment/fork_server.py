@@ -44,6 +44,12 @@ def start_fork_server(extension_modules: Iterable[str] = ()) -> None:
     multiprocessing.forkserver.ensure_running()
 
 
-def local_cluster_preload(extension_modules: Iterable[str] = ()) -> tuple[str, ...]:
-    """The extension modules to preload for a local Dask cluster's workers: a pool worker's, and Dask's."""
-    return (*extension_modules, DASK_WORKER_MODULE)
+def start_server_for(executor: str | None, scheduler: str | None, extension_modules: Iterable[str] = ()) -> None:
+    """Start the fork server if ``executor``'s workers fork from it: a local pool's, or a local Dask cluster's.
+
+    A Dask cluster's workers also preload Dask; a cluster reached at ``scheduler`` has workers of its own.
+    """
+    if executor == "processes":
+        start_fork_server(extension_modules)
+    elif executor == "dask" and not scheduler:
+        start_fork_server((*extension_modules, DASK_WORKER_MODULE))

@@ -1,4 +1,4 @@
-"""Getting observed tables into an estimator: a run directory or a dict of DataFrames.
+"""Getting observed tables into an estimator: a run directory, an extract folder or a dict of DataFrames.
 
 Only the observed-record schema is used here; each estimator names the tables
 and columns it needs, so a dict that lacks one fails with that estimator's name.
@@ -11,17 +11,17 @@ from collections.abc import Mapping, Sequence
 
 import pandas as pd
 
-from ..observed import OBSERVED_COLUMNS, ObservedRecordsError, read_observed
+from ..observed import OBSERVED_COLUMNS, ObservedRecordsError, read_records
 from .results import EstimatorCannotRun
 
 Observed = str | os.PathLike[str] | Mapping[str, pd.DataFrame]
-"""A run directory holding ``observed/*.parquet``, or observed tables by name."""
+"""A run directory holding ``observed/*.parquet``, a folder of observed tables (CSV or Parquet), or tables by name."""
 
 
 def read_tables(observed: Observed) -> Mapping[str, pd.DataFrame]:
-    """The observed tables: read from a run directory, or the given mapping as is."""
+    """The observed tables: read and checked from a run directory or extract folder, or the given mapping as is."""
     if isinstance(observed, (str, os.PathLike)):
-        return read_observed(observed)
+        return read_records(observed)
     return observed
 
 

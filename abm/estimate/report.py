@@ -1,4 +1,4 @@
-"""Run every estimator on a run's observed records, print a table, write estimates.csv and estimates.json."""
+"""Run every estimator on observed records (a run or an extract); print a table, write estimates.csv and .json."""
 
 from __future__ import annotations
 
@@ -231,20 +231,29 @@ def parse_sensitivity(text: str) -> tuple[str, tuple[float, float]]:
 
 
 def estimate_command(
-    run_dir: str,
+    records: str,
     window: str | None = None,
     level: float = DEFAULT_LEVEL,
     sensitivity: Sequence[str] = (),
     seed: int | None = None,
     out: TextIO | None = None,
+    out_dir: str | None = None,
 ) -> None:
-    """What ``undertow estimate`` does: run every estimator, print the table, write the two files."""
+    """What ``undertow estimate`` does: run every estimator, print the table, write the two files.
+
+    ``records`` is a run directory or a folder of observed tables; the files go to ``out_dir``
+    (created if missing; default ``records``). The records are read and checked before anything is written.
+    """
     if not 0.0 < level < 1.0:
         raise InputError(f"--level must lie strictly between 0 and 1, got {level}")
     span = parse_window(window) if window is not None else None
     sensitivities = dict(parse_sensitivity(text) for text in sensitivity)
     rng = np.random.default_rng(seed) if seed is not None else None
-    results, failures = run_all(run_dir, span, level, sensitivities or None, rng=rng)
-    csv_path, json_path = write_estimates(run_dir, results, failures, window=span, level=level)
+    results, failures = run_all(records, span, level, sensitivities or None, rng=rng)
+    target = Path(records if out_dir is None else out_dir)
+    if target.exists() and not target.is_dir():
+        raise InputError(f"--out {target} exists and is not a folder")
+    target.mkdir(parents=True, exist_ok=True)
+    csv_path, json_path = write_estimates(target, results, failures, window=span, level=level)
     print(format_table(results, failures, level), file=out)
     print(f"\nwrote {csv_path} and {json_path}", file=out)

@@ -47,11 +47,12 @@ class BatchResult:
 def _tasks(
     plan: Plan, todo: Sequence[RunSpec], store: Store, command: Sequence[str], extensions: Sequence[SummaryExtension]
 ) -> Iterator[RunTask]:
-    """Task messages, built as the executor asks for them; a point's world is built once for its replications."""
-    cached: tuple[int, dict[str, Any]] | None = None
+    """Task messages, built as the executor asks for them; a world is built once per point and posterior draw."""
+    cached: tuple[tuple[int, int | None], dict[str, Any]] | None = None
     for spec in todo:
-        if cached is None or cached[0] != spec.point:
-            cached = (spec.point, plan.world_for(spec.point))
+        key = (spec.point, plan.posterior.draws[spec.replication] if plan.posterior is not None else None)
+        if cached is None or cached[0] != key:
+            cached = (key, plan.world_for(spec.point, spec.replication))
         yield RunTask(
             run_id=spec.run_id,
             point=spec.point,
@@ -63,7 +64,7 @@ def _tasks(
             world_sha256=plan.world_sha256,
             out=str(store.run_dir(spec.run_id).resolve()),
             command=tuple(command),
-            values=plan.points[spec.point].values,
+            values=plan.run_values(spec.point, spec.replication),
             extensions=tuple(extensions),
         )
 
@@ -85,8 +86,11 @@ def run_batch(
     command: Sequence[str] = (),
     show_progress: bool | None = None,
     extensions: Sequence[SummaryExtension] = (),
+    calibration: str | Path | None = None,
 ) -> BatchResult:
     """Run (or finish, with ``resume``) every run of an experiment into ``out``.
+
+    ``calibration`` overrides the file's ``calibration:`` folder (see :func:`load_plan`).
 
     A run that raises is recorded in failures.parquet and the batch goes on.
     ``show_progress`` None shows a bar only on a terminal. ``extensions`` add
@@ -96,7 +100,7 @@ def run_batch(
     """
     # The executor first: a process pool's server then imports the engine while the plan is read.
     runner = make_executor(executor, workers, scheduler, preload=[extension.__module__ for extension in extensions])
-    plan = load_plan(experiment)
+    plan = load_plan(experiment, calibration)
     store = Store(out)
     store.open(plan, list(command), resume)
     done = store.complete(plan)

@@ -13,7 +13,9 @@ factor's other levels in turn), ``latin_hypercube`` and ``sobol`` (scrambled
 samples over ranges, drawn from a stream of the root seed).
 
 Common random numbers: replication ``r`` of every design point runs with the
-same seed, ``SeedSequence(root).spawn(R)[r].generate_state(1)[0]``.
+same seed, ``SeedSequence(root).spawn(R)[r].generate_state(1)[0]``, and, when
+the experiment names a calibration, with the same posterior draw of the
+unknowns (:mod:`abm.experiment.posterior`).
 """
 
 from __future__ import annotations
@@ -34,6 +36,7 @@ from scipy.stats import qmc
 from ..world import WorldFileError, file_hash, parse_world, read_yaml_mapping
 from ..world.loader import allowed_keys, format_loc
 from ..world.paths import PathProblem, apply_changes, set_path
+from .posterior import Posterior, PosteriorProblem, read_posterior
 from .schema import SAMPLED_DESIGNS, Bundle, Experiment, Factor
 from .single import SUMMARY_SOURCES
 
@@ -117,6 +120,7 @@ class Plan:
     factors: tuple[PlannedFactor, ...]
     points: tuple[DesignPoint, ...]
     seeds: tuple[int, ...]  # one per replication, shared by every point
+    posterior: Posterior | None = None  # the calibration whose draws set the unknowns, one per replication
 
     @property
     def total_runs(self) -> int:
@@ -134,19 +138,32 @@ class Plan:
             for replication, seed in enumerate(self.seeds):
                 yield RunSpec(self.run_id(point.index, replication), point.index, replication, seed)
 
-    def world_for(self, point: int) -> dict[str, Any]:
-        """The world mapping of a design point (the base world with the point's changes)."""
-        return apply_changes(self.world_data, dict(self.points[point].changes))
+    def world_for(self, point: int, replication: int = 0) -> dict[str, Any]:
+        """The world mapping of a run: the base world, the replication's posterior draw if any, the point's changes."""
+        world = self.world_data
+        if self.posterior is not None:
+            world = self.posterior.apply(world, self.posterior.draws[replication])
+        return apply_changes(world, dict(self.points[point].changes))
+
+    def run_values(self, point: int, replication: int) -> dict[str, Any]:
+        """A run's columns of the run table (and values of its manifest): factor values, then any drawn unknowns."""
+        values = dict(self.points[point].values)
+        if self.posterior is not None:
+            values.update(self.posterior.run_values(replication))
+        return values
 
     def digest(self) -> str:
-        """SHA-256 of what determines the batch's results: the experiment, the world and the points."""
-        return _sha256(
-            {
-                "experiment": self.spec.model_dump(mode="json"),
-                "world": self.world_data,
-                "points": [[p.values, p.changes] for p in self.points],
-            }
-        )
+        """SHA-256 of what determines the batch's results: the experiment, the world, the points and any posterior."""
+        # Without a calibration the digest is what it was before the key existed, so older batches still resume.
+        unset = {"calibration"} if self.posterior is None else None
+        identity = {
+            "experiment": self.spec.model_dump(mode="json", exclude=unset),
+            "world": self.world_data,
+            "points": [[p.values, p.changes] for p in self.points],
+        }
+        if self.posterior is not None:
+            identity["posterior"] = self.posterior.identity()
+        return _sha256(identity)
 
     def design_table(self) -> list[dict[str, Any]]:
         """The design points as plain data, for experiment.json."""
@@ -170,9 +187,15 @@ def is_experiment_file(path: str | Path) -> bool:
     return data.get("kind") == "experiment" or "world" in data
 
 
-def load_plan(path: str | Path) -> Plan:
-    """Read, validate and expand an experiment file; raise ExperimentFileError (or WorldFileError)."""
+def load_plan(path: str | Path, calibration: str | Path | None = None) -> Plan:
+    """Read, validate and expand an experiment file; raise ExperimentFileError (or WorldFileError).
+
+    ``calibration`` names a calibration output folder in place of the file's
+    ``calibration:`` key (``undertow demo`` passes the one it has just made).
+    """
     source, data, spec = read_project_file(path, Experiment, ExperimentFileError)
+    if calibration is not None:
+        spec = spec.model_copy(update={"calibration": str(Path(calibration).resolve())})
     _check_design_keys(spec, source)
     world_path = source.parent / spec.world
     if not world_path.is_file():
@@ -187,10 +210,9 @@ def load_plan(path: str | Path) -> Plan:
         try:
             parse_world(apply_changes(world_data, dict(point.changes)), "<design point>")
         except WorldFileError as exc:
-            shown = ", ".join(f"{k}={_shown(v)}" for k, v in point.values.items())
-            raise ExperimentFileError(
-                source, "factors", f"design point {point.index} ({shown}): in the world, {exc.path}: {exc.message}"
-            ) from None
+            shown = f"design point {point.index} ({_point_shown(point)})"
+            raise ExperimentFileError(source, "factors", f"{shown}: in the world, {exc.path}: {exc.message}") from None
+    posterior = _plan_posterior(spec, source, world_data, factors, points) if spec.calibration is not None else None
     return Plan(
         source=source,
         spec=spec,
@@ -200,6 +222,7 @@ def load_plan(path: str | Path) -> Plan:
         factors=factors,
         points=tuple(points),
         seeds=crn_seeds(spec.seed, spec.replications),
+        posterior=posterior,
     )
 
 
@@ -328,6 +351,25 @@ def _check_changes(
         parse_world(data, "<level>")
     except WorldFileError as exc:
         raise ExperimentFileError(source, where, f"{prefix}in the world, {exc.path}: {exc.message}") from None
+
+
+def _plan_posterior(
+    spec: Experiment,
+    source: Path,
+    world: dict[str, Any],
+    factors: Sequence[PlannedFactor],
+    points: Sequence[DesignPoint],
+) -> Posterior:
+    """Read the named calibration's posterior and check it against the run table and every draw's worlds."""
+    assert spec.calibration is not None
+    described = [(f"design point {p.index} ({_point_shown(p)})", dict(p.changes)) for p in points]
+    try:
+        posterior = read_posterior(source.parent / spec.calibration, spec.seed, spec.replications)
+        posterior.check_columns({f.label: f.key for f in factors}, RESERVED_COLUMNS)
+        posterior.check_world(world, described)
+    except PosteriorProblem as exc:
+        raise ExperimentFileError(source, "calibration", str(exc)) from None
+    return posterior
 
 
 def _check_labels(factors: Sequence[PlannedFactor], source: Path) -> None:
@@ -511,6 +553,11 @@ def _same(a: Any, b: Any) -> bool:
     return a == b
 
 
+def _point_shown(point: DesignPoint) -> str:
+    """A design point's factor values as they read in a message."""
+    return ", ".join(f"{k}={_shown(v)}" for k, v in point.values.items())
+
+
 def _shown(value: Any) -> str:
     """A value as it reads in a message."""
     text = json.dumps(value, default=str) if not isinstance(value, str) else f"'{value}'"
@@ -535,8 +582,9 @@ def describe_experiment(path: str | Path) -> str:
     """Validate an experiment file and say what it would run, in one line."""
     plan = load_plan(path)
     spec = plan.spec
+    unknowns = f"; {plan.posterior.describe()}" if plan.posterior is not None else ""
     return (
         f"{path}: ok (experiment {spec.name}; {spec.design}, {len(plan.points)} design points x "
         f"{spec.replications} replications = {plan.total_runs} runs of {spec.warmup_days}+{spec.days} days; "
-        f"world {plan.world_path})"
+        f"world {plan.world_path}{unknowns})"
     )

@@ -23,6 +23,13 @@ replications each design point gets, a root seed, a design and its factors::
       # sampled designs give ranges instead of levels (whole-number bounds: whole-number values)
       # - path: stations.gate_imaging.selection.fraction
       #   range: [0.1, 0.5]
+    calibration: ../outputs/kestrel-calibration   # optional: a folder written by `undertow calibrate`
+
+With ``calibration:``, replication r of every design point takes the same
+weighted draw from that calibration's posterior (``posterior.parquet``) and
+writes it into the world as the calibration did (set at each prior's path, or
+multiplied into it with ``multiply: true``) before the point's own changes, so
+a factor that sets the same path wins (:mod:`abm.experiment.posterior`).
 
 Every model forbids unknown keys. The rules between keys, and those that need
 the world (paths, level values), are checked in :mod:`abm.experiment.design`
@@ -87,4 +94,9 @@ class Experiment(Strict):
     design: Literal["full_factorial", "one_at_a_time", "latin_hypercube", "sobol"] = "full_factorial"
     samples: AtLeastOne | None = Field(None, description="design points of a sampled design")
     factors: list[Factor] = Field(default_factory=list)
+    calibration: str | None = Field(
+        None,
+        min_length=1,
+        description="calibration output folder whose posterior sets the unknowns, relative to this file",
+    )
 

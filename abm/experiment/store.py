@@ -3,6 +3,7 @@
 Layout of ``OUT``::
 
     experiment.json    the experiment, its digest, the design points, package versions, the command
+                       (and ``calibration``: the folder, digests and draws of a calibrated experiment)
     runs/<run-id>/     one run directory per run (the layout of abm.experiment.single)
     failed/<run-id>.json  the error and traceback of a run that raised (until it is redone)
     summary.parquet    one row per completed run, sorted by run id
@@ -27,6 +28,7 @@ import pandas as pd
 from ..errors import InputError
 from ..records import write_json, write_parquet
 from .design import Plan, PlannedFactor, RunSpec
+from .posterior import DRAW_COLUMN
 from .single import SUMMARY_SOURCES, package_versions
 from .worker import SUMMARY_FILE, is_complete
 
@@ -76,8 +78,9 @@ class Store:
                     f"{self.out}: already holds a batch; pass --resume to finish it, or choose another --out "
                     "(nothing was overwritten)"
                 )
-            held = json.loads(record.read_text(encoding="utf-8")).get("experiment_sha256")
-            if held != plan.digest():
+            held = json.loads(record.read_text(encoding="utf-8"))
+            if held.get("experiment_sha256") != plan.digest():
+                _refuse_changed_posterior(self.out, held, plan)
                 raise StoreError(
                     f"{self.out}: holds a batch of a different experiment (the experiment or its world changed "
                     "since it started); choose another --out (nothing was overwritten)"
@@ -89,6 +92,7 @@ class Store:
                 f"{self.out}: is not empty and holds no batch; choose another --out (nothing was overwritten)"
             )
         self.runs.mkdir(parents=True, exist_ok=True)
+        calibration = {"calibration": plan.posterior.record()} if plan.posterior is not None else {}
         write_json(
             {
                 "experiment": plan.spec.model_dump(mode="json"),
@@ -102,6 +106,7 @@ class Store:
                 "runs": plan.total_runs,
                 "packages": package_versions(),
                 "command": command,
+                **calibration,
             },
             record,
         )
@@ -143,18 +148,27 @@ class Store:
                 shutil.rmtree(entry)  # left by a run that raised while writing
         summary_rows: list[dict[str, Any]] = []
         failure_rows: list[dict[str, Any]] = []
-        values = {p.index: p.values for p in plan.points}
         for spec in plan.runs():
             run_dir = self.run_dir(spec.run_id)
             if is_complete(run_dir):
-                summary_rows.append(_summary_row(spec, values[spec.point], run_dir, extensions))
+                summary_rows.append(_summary_row(spec, plan, run_dir, extensions))
             elif (self.failed / f"{spec.run_id}.json").is_file():
                 failure_rows.append(json.loads((self.failed / f"{spec.run_id}.json").read_text(encoding="utf-8")))
-        summary = _summary_frame(summary_rows, plan.factors)
+        summary = _summary_frame(summary_rows, plan)
         failures = pd.DataFrame(failure_rows, columns=list(FAILURE_COLUMNS)).astype(FAILURE_COLUMNS)
         write_parquet(summary, self.out / SUMMARY_TABLE)
         write_parquet(failures, self.out / FAILURES_TABLE)
         return summary, failures
+
+
+def _refuse_changed_posterior(out: Path, held: Mapping[str, Any], plan: Plan) -> None:
+    """Name the posterior when it is what changed: the experiment file itself may be untouched."""
+    before = (held.get("calibration") or {}).get("posterior_sha256")
+    if before is not None and plan.posterior is not None and before != plan.posterior.sha256:
+        raise StoreError(
+            f"{out}: holds a batch whose unknowns came from a different posterior (calibration "
+            f"{plan.posterior.folder} changed since the batch started); choose another --out (nothing was overwritten)"
+        )
 
 
 def _factor_record(factor: PlannedFactor) -> dict[str, Any]:
@@ -167,14 +181,14 @@ def _factor_record(factor: PlannedFactor) -> dict[str, Any]:
     return record
 
 
-def _summary_row(
-    spec: RunSpec, values: Mapping[str, Any], run_dir: Path, extensions: Sequence[SummaryExtension]
-) -> dict[str, Any]:
+def _summary_row(spec: RunSpec, plan: Plan, run_dir: Path, extensions: Sequence[SummaryExtension]) -> dict[str, Any]:
     summary = json.loads((run_dir / SUMMARY_FILE).read_text(encoding="utf-8"))
     manifest = json.loads((run_dir / "manifest.json").read_text(encoding="utf-8"))
     row: dict[str, Any] = {"run_id": spec.run_id, "point": spec.point, "replication": spec.replication}
-    row.update(values)
+    row.update(plan.points[spec.point].values)
     row["seed"] = int(manifest["seed"])  # as the run recorded it
+    if plan.posterior is not None:
+        row.update(plan.posterior.run_values(spec.replication))
     row.update({key: value for key, value in summary.items() if key != "sources"})
     for extension in extensions:
         row.update(extension(run_dir))
@@ -202,13 +216,15 @@ def _factor_dtype(factor: PlannedFactor) -> str:
     return "string"
 
 
-def _summary_frame(rows: list[dict[str, Any]], factors: tuple[PlannedFactor, ...]) -> pd.DataFrame:
-    labels = [f.label for f in factors]
-    fixed = [*RUN_COLUMNS, *labels, "seed"]
+def _summary_frame(rows: list[dict[str, Any]], plan: Plan) -> pd.DataFrame:
+    labels = [f.label for f in plan.factors]
+    types: dict[str, str] = {"run_id": "string", "point": "int64", "replication": "int64", "seed": "int64"}
+    drawn = [DRAW_COLUMN, *(u.label for u in plan.posterior.unknowns)] if plan.posterior is not None else []
+    types.update({column: "int64" if column == DRAW_COLUMN else "float64" for column in drawn})
+    fixed = [*RUN_COLUMNS, *labels, "seed", *drawn]
     extra = set().union(*(row.keys() for row in rows)) - set(fixed) if rows else set()
     frame = pd.DataFrame(rows, columns=fixed + _figure_order(extra))
-    types: dict[str, str] = {"run_id": "string", "point": "int64", "replication": "int64", "seed": "int64"}
-    for factor in factors:
+    for factor in plan.factors:
         types[factor.label] = _factor_dtype(factor)
         if types[factor.label] == "string":
             frame[factor.label] = [v if isinstance(v, str) else json.dumps(v) for v in frame[factor.label]]

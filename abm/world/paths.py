@@ -3,13 +3,15 @@
 A segment addresses a mapping key, a list item by its ``name`` (lists of named
 sections such as stations, methods, teams) or a list item by index
 (``stations[0]``). Paths are how interventions and experiment factors name the
-values they change; nothing in a path is evaluated.
+values they change, and how calibrated unknowns are set or scaled; nothing in
+a path is evaluated.
 """
 
 from __future__ import annotations
 
 import copy
 import re
+from collections.abc import Iterable
 from typing import Any
 
 _SEGMENT = re.compile(r"^(?P<key>[^\[\]]*)(?:\[(?P<index>\d+)\])?$")
@@ -88,4 +90,44 @@ def apply_changes(data: dict[str, Any], changes: dict[str, Any]) -> dict[str, An
     """Apply several path changes in order."""
     for path, value in changes.items():
         data = set_path(data, path, value)
+    return data
+
+
+def scaled(node: Any, factor: float) -> Any:
+    """Every number in a value (a number, or mappings and lists of numbers) times ``factor``; flags stay flags."""
+    if isinstance(node, bool):
+        return node
+    if isinstance(node, (int, float)):
+        return node * factor
+    if isinstance(node, dict):
+        return {k: scaled(v, factor) for k, v in node.items()}
+    if isinstance(node, list):
+        return [scaled(v, factor) for v in node]
+    return node
+
+
+def holds_numbers(node: Any) -> bool:
+    """True when a value is, or contains, a number a multiplier can scale (flags do not count)."""
+    if isinstance(node, bool):
+        return False
+    if isinstance(node, (int, float)):
+        return True
+    if isinstance(node, dict):
+        return any(holds_numbers(v) for v in node.values())
+    if isinstance(node, list):
+        return any(holds_numbers(v) for v in node)
+    return False
+
+
+def set_or_scale(data: dict[str, Any], path: str, value: float, multiply: bool) -> dict[str, Any]:
+    """A copy of ``data`` with ``value`` at ``path``, or (``multiply``) every number at ``path`` times ``value``."""
+    if multiply:
+        return set_path(data, path, scaled(get_path(data, path), value))
+    return set_path(data, path, value)
+
+
+def apply_unknowns(data: dict[str, Any], unknowns: Iterable[tuple[str, float, bool]]) -> dict[str, Any]:
+    """Apply several ``(path, value, multiply)`` in order (how calibrated unknowns enter a world)."""
+    for path, value, multiply in unknowns:
+        data = set_or_scale(data, path, value, multiply)
     return data

@@ -92,6 +92,7 @@ from ..estimate.removal import CARLE_STRUB, RELATIVE, TWO_PASS, ZIPPIN
 from ..estimate.report import run_all
 from ..estimate.results import DEFAULT_LEVEL, EstimateResult, z_value
 from ..estimate.twosample import CHAPMAN
+from ..experiment.compare import wilson_interval
 from ..estimate.windows import Window, check_window
 from ..records import read_truth, write_json
 from ..world import parse_world
@@ -562,21 +563,6 @@ SUMMARY_COLUMNS = (
     "relative_bias", "relative_bias_low", "relative_bias_high", "rmse", "relative_rmse", "mean_ratio",
     "covered", "coverage", "coverage_low", "coverage_high", "level", "confidence", "coverage_interval",
 )
-
-
-def wilson_interval(successes: int, n: int, confidence: float = 0.95) -> tuple[float, float]:
-    """Wilson (1927) score interval for a binomial proportion (no continuity correction).
-
-    centre = (x + z²/2) / (n + z²), half-width = z / (n + z²) · sqrt(x(n − x)/n + z²/4).
-    """
-    if n <= 0:
-        return math.nan, math.nan
-    z = float(special.ndtri(0.5 + confidence / 2))
-    centre = (successes + z * z / 2) / (n + z * z)
-    half = z / (n + z * z) * math.sqrt(successes * (n - successes) / n + z * z / 4)
-    low = 0.0 if successes == 0 else max(0.0, centre - half)  # exact ends: rounding leaves ~1e-17 there
-    high = 1.0 if successes == n else min(1.0, centre + half)
-    return low, high
 
 
 def clopper_pearson_interval(successes: int, n: int, confidence: float = 0.95) -> tuple[float, float]:

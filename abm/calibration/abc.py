@@ -223,13 +223,38 @@ def regression_adjust(
     return phi - x @ beta, beta
 
 
-def _latent_scale(latent: np.ndarray) -> tuple[np.ndarray, np.ndarray]:
+def latent_scale(latent: np.ndarray) -> tuple[np.ndarray, np.ndarray]:
     """Latent columns that never go below 0 are adjusted on log(1 + y), so adjusted counts stay >= 0."""
     nonnegative = (latent >= 0).all(axis=0) if latent.size else np.zeros(latent.shape[1], dtype=bool)
     return np.where(nonnegative, np.log1p(np.maximum(latent, 0)), latent), nonnegative
 
 
 # -- results -------------------------------------------------------------------------------------
+
+
+@dataclass(frozen=True, eq=False)
+class ReferenceTable:
+    """Every prior draw of a stage and what its simulation gave, kept or not.
+
+    Rejection ABC reads it whole; the self-check (:mod:`abm.calibration.self_check`)
+    takes its rows in turn as pseudo-observed data with known parameters.
+    """
+
+    theta: np.ndarray  # (n, d) as drawn from the prior
+    summaries: np.ndarray  # (n, k)
+    latent: np.ndarray  # (n, m)
+    labels: tuple[str, ...]
+
+    @property
+    def size(self) -> int:
+        return int(self.theta.shape[0])
+
+    def without(self, i: int) -> "ReferenceTable":
+        """The table less row ``i`` (leave-one-out)."""
+        keep = np.arange(self.size) != i
+        return ReferenceTable(
+            self.theta[keep], self.summaries[keep], self.latent[keep], tuple(l for l, k in zip(self.labels, keep) if k)
+        )
 
 
 @dataclass(frozen=True, eq=False)
@@ -248,6 +273,7 @@ class Generation:
     scale: np.ndarray  # (k,) the distance's scale
     theta_raw: np.ndarray | None = None  # before the regression adjustment
     latent_raw: np.ndarray | None = None
+    reference: ReferenceTable | None = None  # generation 0: every prior draw, kept or not
 
     @property
     def accepted(self) -> int:
@@ -350,10 +376,10 @@ class ABCPosterior:
         return "\n".join(lines)
 
 
-# -- rejection -----------------------------------------------------------------------------------
+# -- simulating a stage ------------------------------------------------------------------------
 
 
-def _simulate_stage(
+def simulate_stage(
     simulate: BatchSimulator, theta: np.ndarray, seed: int, stage: int, start: int, k: int
 ) -> tuple[Simulated, list[str]]:
     labels = labels_for(stage, start, theta.shape[0])
@@ -367,80 +393,6 @@ def _simulate_stage(
     if latent.size == 0:
         latent = np.zeros((theta.shape[0], 0))
     return Simulated(summaries, latent), labels
-
-
-def rejection_abc(
-    simulate: BatchSimulator,
-    priors: PriorSet,
-    observed: Sequence[float],
-    *,
-    draws: int,
-    accept: float,
-    seed: int,
-    regression: bool = True,
-    summary_names: Sequence[str] = (),
-    latent_names: Sequence[str] = (),
-    scale: np.ndarray | None = None,
-    level: float = 0.9,
-) -> ABCPosterior:
-    """Rejection ABC, with the Beaumont, Zhang & Balding (2002) regression adjustment unless ``regression`` is False.
-
-    ``accept`` is the share of the ``draws`` prior draws kept; ``scale``
-    defaults to the median absolute deviation of the prior-predictive summaries.
-    """
-    s_obs = _observed(observed)
-    if draws < 2:
-        raise ABCError(f"draws: expected at least 2, got {draws}")
-    if not 0 < accept <= 1:
-        raise ABCError(f"accept: expected a share in (0, 1], got {accept}")
-    theta = priors.sample(stage_rng(seed, 0), draws)
-    sims, labels = _simulate_stage(simulate, theta, seed, 0, 0, s_obs.size)
-    scale = mad_scale(sims.summaries) if scale is None else np.asarray(scale, dtype=float)
-    d = distances(sims.summaries, s_obs, scale)
-    n = max(1, math.ceil(accept * draws))
-    order = np.argsort(d, kind="stable")
-    kept = order[:n]
-    h = float(d[order[n]]) if n < draws else float(d[kept[-1]]) * (1 + 1e-9)
-    if regression:
-        weights = epanechnikov(d[kept], h)
-        if weights.sum() <= 0:
-            weights = np.ones(n)
-    else:
-        weights = np.ones(n)
-    weights = weights / weights.sum()
-    raw_theta, raw_latent = theta[kept], sims.latent[kept]
-    adj_theta, adj_latent = raw_theta, raw_latent
-    if regression:
-        phi = priors.to_scale(raw_theta)
-        adj_phi, _ = regression_adjust(phi, sims.summaries[kept], s_obs, scale, weights)
-        adj_theta = priors.from_scale(adj_phi)
-        if raw_latent.shape[1]:
-            z, nonneg = _latent_scale(raw_latent)
-            adj_z, _ = regression_adjust(z, sims.summaries[kept], s_obs, scale, weights)
-            adj_latent = np.where(nonneg, np.expm1(adj_z), adj_z)
-    generation = Generation(
-        index=0,
-        epsilon=h,
-        simulations=draws,
-        theta=adj_theta,
-        weights=weights,
-        distances=d[kept],
-        summaries=sims.summaries[kept],
-        latent=adj_latent,
-        labels=tuple(labels[i] for i in kept),
-        scale=scale,
-        theta_raw=raw_theta if regression else None,
-        latent_raw=raw_latent if regression else None,
-    )
-    return ABCPosterior(
-        method=REJECTION if regression else REJECTION_PLAIN,
-        names=priors.names,
-        summary_names=_names(summary_names, s_obs.size, "s"),
-        latent_names=_names(latent_names, generation.latent.shape[1], "z"),
-        observed=s_obs,
-        generations=(generation,),
-        level=level,
-    )
 
 
 # -- ABC-SMC -------------------------------------------------------------------------------------
@@ -497,7 +449,7 @@ def abc_smc(
     previous generation. A ``checkpoint`` keeps each finished generation and
     hands back those already finished when the run is resumed.
     """
-    s_obs = _observed(observed)
+    s_obs = observed_vector(observed)
     if particles < 2:
         raise ABCError(f"particles: expected at least 2, got {particles}")
     if generations < 1:
@@ -534,8 +486,8 @@ def abc_smc(
     return ABCPosterior(
         method=SMC,
         names=priors.names,
-        summary_names=_names(summary_names, s_obs.size, "s"),
-        latent_names=_names(latent_names, done[-1].latent.shape[1], "z"),
+        summary_names=column_names(summary_names, s_obs.size, "s"),
+        latent_names=column_names(latent_names, done[-1].latent.shape[1], "z"),
         observed=s_obs,
         generations=tuple(done),
         level=level,
@@ -547,7 +499,7 @@ def _generation_zero(
     simulate: BatchSimulator, priors: PriorSet, s_obs: np.ndarray, particles: int, draws: int, seed: int
 ) -> Generation:
     theta = priors.sample(stage_rng(seed, 0), draws)
-    sims, labels = _simulate_stage(simulate, theta, seed, 0, 0, s_obs.size)
+    sims, labels = simulate_stage(simulate, theta, seed, 0, 0, s_obs.size)
     scale = mad_scale(sims.summaries)
     d = distances(sims.summaries, s_obs, scale)
     kept = np.argsort(d, kind="stable")[:particles]
@@ -562,6 +514,7 @@ def _generation_zero(
         latent=sims.latent[kept],
         labels=tuple(labels[i] for i in kept),
         scale=scale,
+        reference=ReferenceTable(theta, sims.summaries, sims.latent, tuple(labels)),
     )
 
 
@@ -589,7 +542,7 @@ def _next_generation(
         size = 2 * size if simulated and not accepted else math.ceil(1.2 * want / max(rate, 1e-3))
         size = int(min(max(size, want), budget - simulated))
         theta = _propose(rng, previous, cov, priors, size)
-        sims, labels = _simulate_stage(simulate, theta, seed, t, simulated, s_obs.size)
+        sims, labels = simulate_stage(simulate, theta, seed, t, simulated, s_obs.size)
         simulated += size
         d = distances(sims.summaries, s_obs, previous.scale)
         ok = np.flatnonzero(d <= epsilon)[:want]  # in proposal order, so a replay keeps the same particles
@@ -692,10 +645,10 @@ def predictive_check(
     rng = stage_rng(seed, PREDICTIVE_STAGE)
     pick = rng.choice(posterior.theta.shape[0], size=draws, p=posterior.weights)
     theta = posterior.theta[pick]
-    sims, labels = _simulate_stage(simulate, theta, seed, PREDICTIVE_STAGE, 0, posterior.observed.size)
+    sims, labels = simulate_stage(simulate, theta, seed, PREDICTIVE_STAGE, 0, posterior.observed.size)
     return PredictiveCheck(
         summary_names=posterior.summary_names,
-        latent_names=_names(posterior.latent_names, sims.latent.shape[1], "z"),
+        latent_names=column_names(posterior.latent_names, sims.latent.shape[1], "z"),
         observed=posterior.observed,
         theta=theta,
         summaries=sims.summaries,
@@ -708,14 +661,14 @@ def predictive_check(
 # -- helpers -------------------------------------------------------------------------------------
 
 
-def _observed(observed: Sequence[float]) -> np.ndarray:
+def observed_vector(observed: Sequence[float]) -> np.ndarray:
     s_obs = np.atleast_1d(np.asarray(observed, dtype=float))
     if s_obs.ndim != 1 or s_obs.size == 0 or not np.isfinite(s_obs).all():
         raise ABCError("observed summaries: expected a non-empty vector of finite numbers")
     return s_obs
 
 
-def _names(names: Sequence[str], n: int, stem: str) -> tuple[str, ...]:
+def column_names(names: Sequence[str], n: int, stem: str) -> tuple[str, ...]:
     if names and len(names) == n:
         return tuple(names)
     if names and len(names) != n:

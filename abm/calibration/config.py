@@ -43,22 +43,27 @@ import numpy as np
 from pydantic import Field
 
 from ..errors import InputError
+from ..observed import RecordNames
 from ..world import WorldFileError, file_hash, parse_world, read_yaml_mapping
-from ..world.paths import PathProblem, get_path, set_path
+from ..world.paths import PathProblem, apply_unknowns, get_path, set_path
+from ..world.paths import holds_numbers as _numbers_in
 from ..experiment.design import read_project_file
 from ..world.schema import NumberOnly, Strict
 from .priors import DISTRIBUTIONS, Prior, PriorError, PriorSet
+from .rejection import kept_count
+from .self_check import MIN_TRIALS
 from .summaries import DEFAULT_GROUPS, SUMMARY_GROUPS, SummarySpec, observed_span
 from .target import load_target
 
 
 # What each candidate run reports from its own truth, besides its observed summaries (persons, in the
 # window): these are the calibration's latent quantities. Candidate runs are the calibration's own.
-LATENT = ("crossings", "attempts", "arrived")
+LATENT = ("attempts", "persons", "crossings", "crossings_after_last_check")
 LATENT_MEANING = {
-    "crossings": "persons who crossed undetected",
     "attempts": "person-attempts",
-    "arrived": "persons newly arrived",
+    "persons": "distinct persons who tried",
+    "crossings": "persons who crossed undetected",
+    "crossings_after_last_check": "crossings by persons who boarded after every station (no record can show them)",
 }
 # Column names of the particle tables besides the parameters; a prior may not take one.
 RESERVED_NAMES = frozenset({*LATENT, "weight", "distance", "simulation"})
@@ -146,6 +151,9 @@ class Calibration(Strict):
     summaries: list[str] = Field(default_factory=lambda: list(DEFAULT_GROUPS), min_length=1)
     method: MethodSpec = Field(default_factory=MethodSpec)
     predictive_runs: WholeNumber = Field(20, description="fresh runs at posterior draws for the predictive check")
+    self_check: WholeNumber = Field(
+        100, description="pseudo-observed data sets of the coverage self-check (at least 50; 0 skips it, with a warning)"
+    )
     level: OpenShare = Field(0.9, description="credible level of every interval")
 
 
@@ -189,45 +197,38 @@ class CalibrationPlan:
             "world": self.world_data,
             "observed": [float(v) for v in self.observed],
         }
-        text = json.dumps(payload, sort_keys=True, default=str, separators=(",", ":"))
-        return hashlib.sha256(text.encode("utf-8")).hexdigest()
+        return _sha256(payload)
+
+    def simulation_digest(self) -> str:
+        """SHA-256 of what decides each candidate run given its label: world, priors, seed and days.
+
+        Settings outside it (method, summaries, observed records, level,
+        predictive runs, self-check) change which runs are used, not what a
+        run with a given label and parameters holds.
+        """
+        spec = self.spec
+        payload = {
+            "world": self.world_data,
+            "priors": [prior.model_dump(mode="json") for prior in spec.priors],
+            "seed": spec.seed,
+            "days": spec.days,
+            "warmup_days": spec.warmup_days,
+        }
+        return _sha256(payload)
+
+
+def _sha256(payload: dict[str, Any]) -> str:
+    text = json.dumps(payload, sort_keys=True, default=str, separators=(",", ":"))
+    return hashlib.sha256(text.encode("utf-8")).hexdigest()
 
 
 def world_with(world: dict[str, Any], priors: PriorSet, theta: np.ndarray) -> dict[str, Any]:
     """``world`` with each prior's value set at (or, for a multiplier, multiplied into) its path."""
-    data = world
+    unknowns = []
     for prior, value in zip(priors.priors, np.asarray(theta, dtype=float), strict=True):
         assert prior.path is not None
-        if prior.multiply:
-            data = set_path(data, prior.path, _scaled(get_path(data, prior.path), float(value)))
-        else:
-            data = set_path(data, prior.path, float(value))
-    return data
-
-
-def _scaled(node: Any, factor: float) -> Any:
-    """Every number in a value (a number, or mappings and lists of numbers) times ``factor``."""
-    if isinstance(node, bool):
-        return node
-    if isinstance(node, (int, float)):
-        return node * factor
-    if isinstance(node, dict):
-        return {k: _scaled(v, factor) for k, v in node.items()}
-    if isinstance(node, list):
-        return [_scaled(v, factor) for v in node]
-    return node
-
-
-def _numbers_in(node: Any) -> bool:
-    if isinstance(node, bool):
-        return False
-    if isinstance(node, (int, float)):
-        return True
-    if isinstance(node, dict):
-        return any(_numbers_in(v) for v in node.values())
-    if isinstance(node, list):
-        return any(_numbers_in(v) for v in node)
-    return False
+        unknowns.append((prior.path, float(value), prior.multiply))
+    return apply_unknowns(world, unknowns)
 
 
 # -- loading -----------------------------------------------------------------------------------
@@ -253,8 +254,8 @@ def load_calibration(path: str | Path) -> CalibrationPlan:
         _check_prior_in_world(spec, i, priors, world_data, source)
     summary_spec = SummarySpec(tuple(spec.summaries), spec.days, tuple(world.station_names), tuple(world.point_names))
     observed_path = source.parent / spec.observed.path
-    observed = _observed_summaries(spec, observed_path, summary_spec, source)
-    return CalibrationPlan(
+    observed = _observed_summaries(spec, observed_path, summary_spec, source, RecordNames.of_world(world))
+    plan = CalibrationPlan(
         source=source,
         spec=spec,
         world_path=world_path,
@@ -265,6 +266,8 @@ def load_calibration(path: str | Path) -> CalibrationPlan:
         summary_spec=summary_spec,
         observed=observed,
     )
+    _check_settings(plan)
+    return plan
 
 
 def _check_method(spec: Calibration, source: Path) -> None:
@@ -281,6 +284,42 @@ def _check_method(spec: Calibration, source: Path) -> None:
             raise CalibrationFileError(
                 source, "method.initial_draws", f"must be at least particles ({particles}), got {method.initial_draws}"
             )
+
+
+def _check_settings(plan: CalibrationPlan) -> None:
+    """Refuse, before any run, settings with which the method or its self-check cannot work."""
+    source, k = plan.source, len(plan.summary_spec.names())
+    trials = plan.spec.self_check
+    if plan.method == "smc":
+        particles, pool = plan.setting("particles"), plan.setting("initial_draws")
+        if particles < 2 * k:
+            raise CalibrationFileError(
+                source, "method.particles", f"{particles} particles for {k} summaries; use at least {2 * k} (2 x summaries)"
+            )
+        keep, where = particles, "method.particles"
+    else:
+        pool, accept = plan.setting("draws"), plan.setting("accept")
+        keep, where = kept_count(accept, pool), "method.accept"
+        if plan.setting("regression") and kept_count(accept, pool - 1) <= k + 1:
+            # The self-check keeps its share of one draw fewer, so both must leave more than k + 1.
+            need = k + 2
+            raise CalibrationFileError(
+                source,
+                where,
+                f"keeps {kept_count(accept, pool)} of {pool} draws, but the regression adjustment needs more than "
+                f"summaries + 1 ({k + 1}); use accept >= {need / (pool - 1):.3g} or draws >= {math.ceil(need / accept) + 1}",
+            )
+    if 0 < trials < MIN_TRIALS:
+        raise CalibrationFileError(
+            source, "self_check", f"at least {MIN_TRIALS} pseudo-observed data sets give a coverage measure; got {trials} (0 skips it)"
+        )
+    if trials > pool - 1:
+        key = "method.initial_draws" if plan.method == "smc" else "method.draws"
+        raise CalibrationFileError(
+            source, "self_check", f"{trials} trials need more prior draws than {pool}; lower it or raise {key} to {trials + 1}"
+        )
+    if plan.method == "smc" and trials and keep <= k + 1:
+        raise CalibrationFileError(source, where, f"the self-check keeps {keep} draws; it needs more than summaries + 1 ({k + 1})")
 
 
 def _prior(spec: Calibration, i: int, source: Path) -> Prior:
@@ -352,9 +391,11 @@ def _check_prior_in_world(spec: Calibration, i: int, priors: PriorSet, world: di
             ) from None
 
 
-def _observed_summaries(spec: Calibration, path: Path, summary_spec: SummarySpec, source: Path) -> np.ndarray:
+def _observed_summaries(
+    spec: Calibration, path: Path, summary_spec: SummarySpec, source: Path, names: RecordNames
+) -> np.ndarray:
     try:
-        tables = load_target(path)
+        tables = load_target(path, names)  # every station, class, point and method must be the world's
     except InputError as exc:
         raise CalibrationFileError(source, "observed.path", str(exc)) from None
     stations = tables["stations"]
@@ -392,8 +433,10 @@ def describe_calibration(path: str | Path) -> str:
     else:
         how = f"rejection, {plan.setting('draws')} prior draws keeping {plan.setting('accept'):.0%}"
     names = ", ".join(plan.priors.names)
+    check = f"self-check over {spec.self_check} pseudo-observed data sets" if spec.self_check else "no self-check"
     return (
         f"{path}: ok (calibration {spec.name}; {len(plan.priors.names)} unknowns: {names}; "
-        f"{len(plan.observed)} summaries; {how}; runs of {spec.warmup_days}+{spec.days} days; world {plan.world_path})"
+        f"{len(plan.observed)} summaries; {how}; {check}; runs of {spec.warmup_days}+{spec.days} days; "
+        f"world {plan.world_path})"
     )
 

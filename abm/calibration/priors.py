@@ -130,6 +130,10 @@ class Prior:
         low, high = self.support()
         return np.clip(family.ppf(u), low, high)
 
+    def sd(self) -> float:
+        """Standard deviation of the truncated prior (midpoint rule over 4000 quantiles)."""
+        return float(np.std(self.ppf((np.arange(4000) + 0.5) / 4000)))
+
     def sample(self, rng: np.random.Generator, n: int) -> np.ndarray:
         """``n`` independent draws (inverse distribution function of uniform draws)."""
         return self.ppf(rng.random(n))
@@ -220,8 +224,14 @@ class PriorSet:
         return len(self.priors)
 
     def sample(self, rng: np.random.Generator, n: int) -> np.ndarray:
-        """``n`` draws, shape ``(n, d)``; columns drawn one after another from the one generator."""
-        return np.column_stack([p.sample(rng, n) for p in self.priors])
+        """``n`` draws, shape ``(n, d)``, row by row from the one generator.
+
+        Row i takes the generator's uniforms i*d .. i*d + d - 1, so the first
+        rows do not depend on ``n``: a calibration given more draws simulates
+        its earlier draws again unchanged, and can reuse their runs.
+        """
+        u = rng.random((n, self.dim))
+        return np.column_stack([p.ppf(u[:, j]) for j, p in enumerate(self.priors)])
 
     def pdf(self, theta: np.ndarray) -> np.ndarray:
         """Joint density of each row of ``theta`` (shape ``(n, d)``)."""

@@ -17,12 +17,17 @@ import pandas as pd
 
 from ..errors import InputError
 from ..experiment.executors import Executor, choose_executor, make_executor
-from ..records import write_atomically, write_parquet
-from .abc import REJECTION, REJECTION_PLAIN, ABCPosterior, PredictiveCheck, abc_smc, predictive_check, rejection_abc
+from ..records import write_atomically, write_json, write_parquet
+from .abc import ABCPosterior, PredictiveCheck, abc_smc, predictive_check
 from .config import LATENT, LATENT_MEANING, CalibrationPlan, describe_calibration, load_calibration
 from .figures import write_figures
 from .priors import PriorSet
+from .rejection import kept_count, posterior_of, rejection_abc
+from .self_check import SelfCheck, cross_validate, reliability_warnings
 from .simulator import CalibrationStore, ModelSimulator
+
+SELF_CHECK_TABLE = "self_check.parquet"
+RELIABILITY_FILE = "reliability.json"  # what a briefing needs beside the tables: window, method, checks, warnings
 
 CAUTION = (
     "Model estimates, not counts: the posterior says which inflows and behaviours let this model reproduce the "
@@ -47,6 +52,8 @@ class CalibrationResult:
     out: Path | None
     ran: int  # candidate runs simulated by this invocation
     reused: int  # candidate runs found complete in the store (a resumed calibration)
+    self_check: SelfCheck | None = None
+    warnings: tuple[str, ...] = ()
 
     def to_frame(self) -> pd.DataFrame:
         """Posterior mean, SD and credible interval of each unknown and latent quantity, with its prior or meaning."""
@@ -56,27 +63,61 @@ class CalibrationResult:
         frame["about"] = [about.get(q, "") for q in frame["quantity"]]
         return frame
 
+    def reliability_record(self) -> dict[str, object]:
+        """The window, the method, how it checked itself and its warnings, as plain data for briefings."""
+        return {
+            "name": self.name,
+            "method": self.posterior.method,
+            "level": self.posterior.level,
+            "observed_path": str(Path(self.observed_path).resolve()),
+            "first_day": self.first_day,
+            "days": self.days,
+            "warmup_days": self.warmup_days,
+            "self_check": self.self_check.how if self.self_check is not None else None,
+            "warnings": list(self.warnings),
+        }
+
+    def answer_lines(self) -> list[str]:
+        """The latent quantities in words, each with its interval and the self-check's measured coverage."""
+        post = self.to_frame().set_index("quantity")
+        coverage = self.self_check.to_frame().set_index("quantity") if self.self_check is not None else None
+        lines = []
+        for key in LATENT:
+            if key not in post.index:
+                continue
+            row = post.loc[key]
+            measured = "not measured (no self-check)"
+            if coverage is not None and key in coverage.index:
+                c = coverage.loc[key]
+                measured = f"held the truth in {c['coverage']:.0%} of {int(c['trials'])} self-check trials"
+            lines.append(
+                f"  {LATENT_MEANING[key]}: {row['mean']:,.0f} (posterior mean), {self.posterior.level:.0%} interval "
+                f"{row['low']:,.0f}-{row['high']:,.0f}; such intervals {measured}"
+            )
+        return lines
+
     def summary(self) -> str:
-        """The result in words, for the briefing."""
+        """The result in words: the answer first, then warnings, the posterior and the checks."""
         last = self.first_day + self.days - 1
         lines = [
             f"Calibration: {self.name}",
             f"Observed records: {self.observed_path} (days {self.first_day}-{last}, observed part only); "
             f"candidate runs simulate {self.warmup_days} warm-up days first.",
+            "",
+            f"In the {self.days} days of the window (model estimates from the simulated truth of the runs whose "
+            "observed summaries matched):",
+            *self.answer_lines(),
+        ]
+        if self.warnings:
+            lines += ["", *self.warnings]
+        lines += [
+            "",
             f"Candidate runs: {self.ran} simulated now, {self.reused} taken from the store.",
             "",
             self.posterior.summary(),
         ]
-        post = self.to_frame()
-        crossings = post[post["quantity"] == "crossings"]
-        if len(crossings):
-            row = crossings.iloc[0]
-            lines += [
-                "",
-                f"Undetected crossings in the window: {row['mean']:,.0f} (posterior mean), {self.posterior.level:.0%} "
-                f"credible interval {row['low']:,.0f}-{row['high']:,.0f}, from the simulated truth of the runs whose "
-                "observed summaries matched.",
-            ]
+        if self.self_check is not None:
+            lines += ["", self.self_check.summary()]
         if self.predictive is not None:
             lines += ["", self.predictive.summary()]
             fresh = self.predictive.latent_frame()
@@ -93,14 +134,35 @@ def _posterior_from_store(plan: CalibrationPlan, store: CalibrationStore) -> ABC
     done = store.load()
     if not done:
         return None
-    return ABCPosterior(
-        method=REJECTION if plan.setting("regression") else REJECTION_PLAIN,
-        names=plan.priors.names,
-        summary_names=plan.summary_spec.names(),
-        latent_names=LATENT,
-        observed=plan.observed,
-        generations=(done[0],),
-        level=plan.spec.level,
+    return posterior_of(
+        done[0], plan.priors, plan.observed, plan.setting("regression"), plan.summary_spec.names(), LATENT, plan.spec.level
+    )
+
+
+def self_check(plan: CalibrationPlan, posterior: ABCPosterior) -> SelfCheck | None:
+    """The coverage self-check of a finished calibration over its generation-0 prior draws (none when skipped)."""
+    trials = plan.spec.self_check
+    first = posterior.generations[0]
+    if not trials or first.reference is None:
+        return None
+    table = first.reference
+    source = "Csilléry, François & Blum 2012"
+    if plan.method == "rejection":
+        keep, regression = kept_count(plan.setting("accept"), table.size - 1), plan.setting("regression")
+        how = (
+            f"leave-one-out cross-validation of this very rejection calibration ({source}): {trials} of its "
+            f"{table.size} prior draws, each calibrated as if observed on the other {table.size - 1}"
+        )
+    else:
+        keep, regression = plan.setting("particles"), True
+        how = (
+            f"leave-one-out rejection pass over the {table.size} prior draws of generation 0 ({source}): {trials} of "
+            f"them, each calibrated as if observed by keeping the {keep} nearest others with the regression "
+            "adjustment; it checks that pass, not the SMC generations after it"
+        )
+    return cross_validate(
+        table, plan.priors, first.scale, keep=keep, regression=regression, trials=trials, seed=plan.spec.seed,
+        level=plan.spec.level, latent_names=LATENT, how=how,
     )
 
 
@@ -150,6 +212,7 @@ def run_calibration(
             )
             store.save(posterior.final)
     predictive = predictive_check(simulate, posterior, spec.predictive_runs, seed=spec.seed) if spec.predictive_runs else None
+    check = self_check(plan, posterior)
     result = CalibrationResult(
         name=spec.name,
         source=plan.source,
@@ -163,6 +226,8 @@ def run_calibration(
         out=out,
         ran=simulate.ran,
         reused=simulate.reused,
+        self_check=check,
+        warnings=tuple(reliability_warnings(posterior, plan.priors, check)),
     )
     _write_outputs(result, out, figures)
     return result
@@ -174,6 +239,11 @@ def _write_outputs(result: CalibrationResult, out: Path, figures: bool) -> None:
     write_parquet(result.posterior.diagnostics(), out / "diagnostics.parquet")
     if result.predictive is not None:
         write_parquet(result.predictive.to_frame(), out / "predictive_check.parquet")
+    if result.self_check is not None:
+        write_parquet(result.self_check.to_frame(), out / SELF_CHECK_TABLE)
+    else:
+        (out / SELF_CHECK_TABLE).unlink(missing_ok=True)  # a check from earlier settings is not this one's
+    write_json(result.reliability_record(), out / RELIABILITY_FILE)
     write_atomically(out / "summary.txt", lambda tmp: tmp.write_text(result.summary() + "\n", encoding="utf-8"))
     if figures:
         write_figures(result, out / "figures")

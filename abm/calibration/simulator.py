@@ -4,8 +4,11 @@
 each parameter row becomes a candidate world (the priors' paths set), each
 simulation a :class:`~abm.experiment.worker.RunTask` for the batch executors,
 each run a run directory ``OUT/<label>`` (``OUT/gen-<k>/p<i>``,
-``OUT/predictive/p<i>``). A run directory that is already complete is not run
-again, which is how ``--resume`` skips finished simulations. The summaries of
+``OUT/predictive/p<i>``). A run directory that is already complete, with the
+same parameters and seed in its manifest, is not run again, which is how
+``--resume`` skips finished simulations, also after a change of settings that
+leaves the draws alone (summaries, accept share, more draws: the prior is
+sampled row by row). The summaries of
 a candidate come from its ``observed/`` tables, like those of the target; its
 latent quantities (crossings and totals) from its own summary, which reads its
 truth: candidate runs are the calibration's own, so that is allowed.
@@ -16,15 +19,19 @@ Layout of ``OUT``::
     gen-<k>/p<i>/             one run directory per simulation of generation k
     gen-<k>/particles.parquet the particles kept in generation k: parameters, latent quantities, weight,
                               distance, run label and summaries (and unadjusted values, for rejection)
-    gen-<k>/generation.json   tolerance, simulations and the distance's scale
+    gen-<k>/generation.json   tolerance, simulations, the distance's scale and the settings' digest
+    gen-0/reference.parquet   every prior draw of generation 0 with its summaries and latent quantities
+                              (what rejection ABC and the self-check read)
     predictive/p<i>/          the posterior predictive runs
     posterior.parquet, posterior_summary.parquet, diagnostics.parquet, predictive_check.parquet,
-    summary.txt, figures/*.png
+    self_check.parquet, summary.txt, figures/*.png
 """
 
 from __future__ import annotations
 
 import json
+import shutil
+import sys
 from collections.abc import Sequence
 from pathlib import Path
 from typing import Any
@@ -38,12 +45,14 @@ from ..experiment.single import package_versions
 from ..experiment.worker import SUMMARY_FILE, RunTask, is_complete
 from ..observed import OBSERVED_DIR, conform
 from ..records import write_json, write_parquet
-from .abc import Generation, Simulated
+from .abc import Generation, ReferenceTable, Simulated
 from .config import LATENT, CalibrationPlan
 
 HEADER = "calibration.json"
 PARTICLES = "particles.parquet"
 GENERATION = "generation.json"
+REFERENCE = "reference.parquet"
+MANIFEST_FILE = "manifest.json"
 
 
 class CalibrationStoreError(InputError):
@@ -84,20 +93,18 @@ class ModelSimulator:
     def __call__(self, theta: np.ndarray, seeds: np.ndarray, labels: Sequence[str]) -> Simulated:
         dirs = [self.out / label for label in labels]
         index = {label: i for i, label in enumerate(labels)}
-        todo = [i for i, d in enumerate(dirs) if not is_complete(d)]
+        todo = [i for i, d in enumerate(dirs) if not self._reusable(d, theta[i], seeds[i])]
         for folder in {dirs[i].parent for i in todo}:
             folder.mkdir(parents=True, exist_ok=True)
         summaries: list[np.ndarray | None] = [None] * len(labels)
         failures = []
         if todo:
             tasks = (self._task(theta[i], seeds[i], labels[i], i) for i in todo)
-            for answer in self.executor.imap(tasks):
-                if answer["ok"]:
-                    # Read each run as it comes back, while the workers go on with the others.
-                    i = index[answer["run_id"]]
-                    summaries[i] = self._summaries(dirs[i])
-                else:
-                    failures.append(f"{answer['run_id']}: {answer['error']}")
+            stage = labels[0].split("/")[0]
+            with _progress(len(todo), f"candidate runs ({stage})") as bar:
+                for answer in self.executor.imap(tasks):
+                    bar.update(1)
+                    self._take(answer, index, dirs, summaries, failures)
         self.ran += len(todo) - len(failures)
         self.reused += len(labels) - len(todo)
         if failures:
@@ -109,12 +116,50 @@ class ModelSimulator:
         latent = np.array([[_figure(d, key) for key in LATENT] for d in dirs], dtype=float)
         return Simulated(np.vstack(rows), latent)
 
+    def _take(
+        self,
+        answer: dict[str, Any],
+        index: dict[str, int],
+        dirs: list[Path],
+        summaries: list[np.ndarray | None],
+        failures: list[str],
+    ) -> None:
+        """Read a finished run as it comes back, while the workers go on with the others."""
+        if answer["ok"]:
+            i = index[answer["run_id"]]
+            summaries[i] = self._summaries(dirs[i])
+        else:
+            failures.append(f"{answer['run_id']}: {answer['error']}")
+
+    def _reusable(self, run_dir: Path, theta: np.ndarray, seed: int) -> bool:
+        """A complete run of these very parameters and seed; a run of other ones (settings changed) is removed.
+
+        Removing is safe: the folder is this calibration's own candidate run, and
+        a run with the same label but other parameters can never be used again.
+        """
+        if not is_complete(run_dir):
+            return False
+        manifest = json.loads((run_dir / MANIFEST_FILE).read_text(encoding="utf-8"))
+        held = manifest.get("experiment_run", {}).get("values", {})
+        wanted = {name: float(v) for name, v in zip(self.plan.priors.names, theta, strict=True)}
+        if held == wanted and manifest.get("seed") == int(seed):
+            return True
+        shutil.rmtree(run_dir)
+        return False
+
     def _summaries(self, run_dir: Path) -> np.ndarray:
         """A candidate run's summaries, from the observed tables they need (the same statistics as the target's)."""
         spec = self.plan.summary_spec
         names = ("encounters", "checks") if spec.needs_checks() else ("encounters",)
         tables = {name: conform(name, pd.read_parquet(run_dir / OBSERVED_DIR / f"{name}.parquet")) for name in names}
         return spec.compute(tables, self.plan.spec.warmup_days)
+
+
+def _progress(total: int, label: str) -> Any:
+    """A progress bar on a terminal (none in a log), as batches show."""
+    from tqdm import tqdm
+
+    return tqdm(total=total, desc=label, unit="run", disable=not sys.stderr.isatty(), dynamic_ncols=True, leave=False)
 
 
 def _figure(run_dir: Path, key: str) -> float:
@@ -141,23 +186,30 @@ class CalibrationStore:
                     f"{self.out}: already holds a calibration; pass --resume to finish it, or choose another --out "
                     "(nothing was overwritten)"
                 )
-            held = json.loads(header.read_text(encoding="utf-8")).get("calibration_sha256")
-            if held != self.plan.digest():
+            held = json.loads(header.read_text(encoding="utf-8"))
+            if held.get("calibration_sha256") == self.plan.digest():
+                return
+            if held.get("simulation_sha256") != self.plan.simulation_digest():
                 raise CalibrationStoreError(
-                    f"{self.out}: holds a different calibration (the file, its world or the observed records changed "
-                    "since it started); choose another --out (nothing was overwritten)"
+                    f"{self.out}: holds a different calibration (its world, priors, seed or days changed since it "
+                    "started, so its runs cannot be reused); choose another --out (nothing was overwritten)"
                 )
-            return
-        if self.out.is_dir() and any(self.out.iterdir()):
+            # Only settings changed (method, summaries, records, level...): finished runs of unchanged draws
+            # are reused, generations made under the old settings are made again.
+        elif self.out.is_dir() and any(self.out.iterdir()):
             raise CalibrationStoreError(
                 f"{self.out}: is not empty and holds no calibration; choose another --out (nothing was overwritten)"
             )
         self.out.mkdir(parents=True, exist_ok=True)
+        self._write_header(command)
+
+    def _write_header(self, command: Sequence[str]) -> None:
         write_json(
             {
                 "calibration": self.plan.spec.model_dump(mode="json"),
                 "calibration_file": str(self.plan.source),
                 "calibration_sha256": self.plan.digest(),
+                "simulation_sha256": self.plan.simulation_digest(),
                 "world_file": str(self.plan.world_path),
                 "world_sha256": self.plan.world_sha256,
                 "observed_path": str(self.plan.observed_path),
@@ -165,13 +217,15 @@ class CalibrationStore:
                 "packages": package_versions(),
                 "command": list(command),
             },
-            header,
+            self.out / HEADER,
         )
 
     # -- the checkpoint (abm.calibration.abc.Checkpoint) -------------------------------------
     def save(self, generation: Generation) -> None:
         """Write a finished generation's particles and settings."""
         folder = self.out / f"gen-{generation.index}"
+        if generation.reference is not None:
+            write_parquet(reference_frame(self.plan, generation.reference), folder / REFERENCE)
         write_parquet(particles_frame(self.plan, generation), folder / PARTICLES)
         write_json(
             {
@@ -179,18 +233,24 @@ class CalibrationStore:
                 "epsilon": generation.epsilon,
                 "simulations": generation.simulations,
                 "scale": [float(v) for v in generation.scale],
+                "calibration_sha256": self.plan.digest(),
             },
             folder / GENERATION,
         )
 
     def load(self) -> list[Generation]:
-        """Finished generations, 0, 1, ... up to the first one missing."""
-        done = []
-        while (self.out / f"gen-{len(done)}" / GENERATION).is_file() and (self.out / f"gen-{len(done)}" / PARTICLES).is_file():
+        """Finished generations of these very settings, 0, 1, ... up to the first one missing or made otherwise."""
+        done: list[Generation] = []
+        while True:
             folder = self.out / f"gen-{len(done)}"
+            needed = [folder / GENERATION, folder / PARTICLES] + ([folder / REFERENCE] if not done else [])
+            if not all(path.is_file() for path in needed):
+                return done
             info = json.loads((folder / GENERATION).read_text(encoding="utf-8"))
-            done.append(generation_from_frame(self.plan, pd.read_parquet(folder / PARTICLES), info))
-        return done
+            if info.get("calibration_sha256") != self.plan.digest():
+                return done
+            reference = reference_from_frame(self.plan, pd.read_parquet(folder / REFERENCE)) if not done else None
+            done.append(generation_from_frame(self.plan, pd.read_parquet(folder / PARTICLES), info, reference))
 
 
 def particles_frame(plan: CalibrationPlan, generation: Generation) -> pd.DataFrame:
@@ -213,8 +273,31 @@ def particles_frame(plan: CalibrationPlan, generation: Generation) -> pd.DataFra
     return frame
 
 
-def generation_from_frame(plan: CalibrationPlan, frame: pd.DataFrame, info: dict[str, Any]) -> Generation:
-    """The inverse of :func:`particles_frame` (with the generation's settings)."""
+def reference_frame(plan: CalibrationPlan, table: ReferenceTable) -> pd.DataFrame:
+    """Every prior draw of generation 0: parameters, latent quantities, run label and summaries."""
+    frame = pd.DataFrame(table.theta, columns=list(plan.priors.names))
+    for j, key in enumerate(LATENT):
+        frame[key] = table.latent[:, j]
+    frame["simulation"] = list(table.labels)
+    for j, name in enumerate(plan.summary_spec.names()):
+        frame[f"summary:{name}"] = table.summaries[:, j]
+    return frame
+
+
+def reference_from_frame(plan: CalibrationPlan, frame: pd.DataFrame) -> ReferenceTable:
+    """The inverse of :func:`reference_frame`."""
+    return ReferenceTable(
+        theta=frame[list(plan.priors.names)].to_numpy(dtype=float),
+        summaries=frame[[f"summary:{n}" for n in plan.summary_spec.names()]].to_numpy(dtype=float),
+        latent=frame[list(LATENT)].to_numpy(dtype=float),
+        labels=tuple(frame["simulation"].astype(str)),
+    )
+
+
+def generation_from_frame(
+    plan: CalibrationPlan, frame: pd.DataFrame, info: dict[str, Any], reference: ReferenceTable | None = None
+) -> Generation:
+    """The inverse of :func:`particles_frame` (with the generation's settings and, for generation 0, its draws)."""
     names = list(plan.priors.names)
     raw = [f"unadjusted:{n}" for n in names]
     raw_latent = [f"unadjusted:{k}" for k in LATENT]
@@ -231,4 +314,5 @@ def generation_from_frame(plan: CalibrationPlan, frame: pd.DataFrame, info: dict
         scale=np.asarray(info["scale"], dtype=float),
         theta_raw=frame[raw].to_numpy(dtype=float) if set(raw) <= set(frame.columns) else None,
         latent_raw=frame[raw_latent].to_numpy(dtype=float) if set(raw_latent) <= set(frame.columns) else None,
+        reference=reference,
     )

@@ -38,6 +38,21 @@ def mean_interval(values: Sequence[float] | np.ndarray, confidence: float = CONF
     return mean, mean - half, mean + half
 
 
+def wilson_interval(successes: int, n: int, confidence: float = 0.95) -> tuple[float, float]:
+    """Wilson (1927) score interval for a binomial proportion (no continuity correction).
+
+    centre = (x + z²/2) / (n + z²), half-width = z / (n + z²) · sqrt(x(n − x)/n + z²/4).
+    """
+    if n <= 0:
+        return math.nan, math.nan
+    z = float(special.ndtri(0.5 + confidence / 2))
+    centre = (successes + z * z / 2) / (n + z * z)
+    half = z / (n + z * z) * math.sqrt(successes * (n - successes) / n + z * z / 4)
+    low = 0.0 if successes == 0 else max(0.0, centre - half)  # exact ends: rounding leaves ~1e-17 there
+    high = 1.0 if successes == n else min(1.0, centre + half)
+    return low, high
+
+
 def paired_difference(
     a: pd.Series, b: pd.Series, confidence: float = CONFIDENCE
 ) -> tuple[float, float, float, int]:

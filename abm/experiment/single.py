@@ -38,6 +38,8 @@ SUMMARY_SOURCES: dict[str, str] = {
     "interdictions": "observed",
     "detections": "observed",
     "crossings": "truth",
+    "crossings_after_last_check": "truth",
+    "persons": "truth",
     "no_vehicle": "truth",
     "displaced_out": "truth",
     "gave_up": "truth",
@@ -106,12 +108,19 @@ def summarise(book: RecordBook, days: int, warmup: int = 0) -> dict[str, Any]:
         return int(exits.loc[exits["state"] == state, "persons"].sum())
 
     finite = tip[np.isfinite(tip)]
+    after_last = [p.name for p in book.layout.world.boarding_points if p.before_station == "departure"]
     summary: dict[str, Any] = {
         "days": days,
         "attempts": int(attempts["persons"].sum()),
         "interdictions": persons("interdicted"),
         "detections": persons("detected"),
         "crossings": persons("crossed"),
+        # boarded after every station: no check could have found them, so no record can show them
+        "crossings_after_last_check": int(
+            attempts.loc[(attempts["outcome"] == "crossed") & attempts["point"].isin(after_last), "persons"].sum()
+        ),
+        # distinct persons who tried in the window (a group keeps its size across its attempts)
+        "persons": int(attempts.groupby("agent_id")["persons"].max().sum()) if len(attempts) else 0,
         "no_vehicle": persons("no_vehicle"),
         "displaced_out": exited("displaced_out"),
         "gave_up": exited("gave_up"),

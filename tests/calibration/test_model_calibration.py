@@ -66,7 +66,7 @@ def test_static_inflow_by_abc_smc_covers_the_truth(tmp_path, executor, static_ta
                  "summary.txt", "figures/posterior.png", "figures/predictive_check.png"):
         assert (out / name).is_file(), name
     assert len(list((out / "predictive").iterdir())) == 6
-    assert "Undetected crossings in the window" in result.summary()
+    assert "persons who crossed undetected: " in result.summary()
 
 
 def test_adaptive_inflow_by_rejection_and_regression_covers_the_truth(tmp_path, executor):
@@ -101,3 +101,44 @@ def test_a_calibration_resumes_without_repeating_finished_runs(tmp_path, calibra
         run_calibration(load_calibration(changed), out, SerialExecutor(), resume=True)
     header = json.loads((out / "calibration.json").read_text())
     assert set(header["observed_summaries"]) == set(load_calibration(path).summary_spec.names())
+
+
+def test_changed_settings_resume_on_the_runs_whose_draws_did_not_change(tmp_path, calibration_file):
+    out = tmp_path / "out"
+    first = run_calibration(load_calibration(calibration_file()), out, SerialExecutor(), figures=False)
+    assert (first.ran, first.reused) == (12 + 2, 0)
+    # Another accept share and fewer summaries simulate nothing new for the prior draws.
+    fewer = calibration_file(summaries=["detections_by_station"], method={"name": "rejection", "draws": 12, "accept": 0.25,
+                                                                         "regression": False})
+    again = run_calibration(load_calibration(fewer), out, SerialExecutor(), resume=True, figures=False)
+    assert again.reused >= 12 and again.ran <= 2  # only predictive runs at other posterior draws, if any
+    assert (out / "gen-0" / "reference.parquet").is_file()
+    # More draws: the prior is sampled row by row, so the first 12 draws are the same and only 4 are new.
+    more = calibration_file(method={"name": "rejection", "draws": 16, "accept": 0.5, "regression": False})
+    grown = run_calibration(load_calibration(more), out, SerialExecutor(), resume=True, figures=False)
+    reference = pd.read_parquet(out / "gen-0" / "reference.parquet")
+    first_reference = first.posterior.generations[0].reference
+    assert len(reference) == 16
+    np.testing.assert_array_equal(reference["adversary.arrivals_per_day"].to_numpy()[:12], first_reference.theta[:, 0])
+    assert grown.ran - 2 <= 4 and grown.reused >= 12
+    # A changed seed changes every draw: refused, nothing removed.
+    with pytest.raises(CalibrationStoreError, match="world, priors, seed or days changed"):
+        run_calibration(load_calibration(calibration_file(seed=6)), out, SerialExecutor(), resume=True)
+
+
+def test_the_self_check_is_written_printed_and_warned_about(tmp_path, static_target):
+    world, target, _ = static_target
+    data = calibration_data(world, target, method={"name": "rejection", "draws": 60, "accept": 0.5}, self_check=50,
+                            predictive_runs=0)
+    result = run_calibration(load_calibration(write_yaml(tmp_path / "c.yaml", data)), tmp_path / "out", SerialExecutor(),
+                             figures=False)
+    table = pd.read_parquet(tmp_path / "out" / "self_check.parquet")
+    assert list(table.columns) == ["quantity", "level", "trials", "covered", "coverage", "coverage_low", "coverage_high",
+                                   "mean_width", "rmse"]
+    assert list(table["quantity"]) == ["adversary.arrivals_per_day", "attempts", "persons", "crossings",
+                                       "crossings_after_last_check"]
+    assert (table["trials"] == 50).all() and table["coverage"].between(0, 1).all()
+    text = (tmp_path / "out" / "summary.txt").read_text()
+    assert "Self-check: leave-one-out cross-validation of this very rejection calibration" in text
+    assert "distinct persons who tried: " in text and "self-check trials" in text
+    assert text.count("warning: ") == len(result.warnings)

@@ -90,3 +90,15 @@ def test_a_folder_without_the_tables_is_refused(tmp_path):
         load_target(tmp_path)
     with pytest.raises(ObservedRecordsError, match="no run directory"):
         load_target(tmp_path / "nowhere")
+
+
+def test_the_self_check_and_rejection_see_no_records_at_all():
+    # The self-check's pseudo-observed data are rows of the reference table: summaries the candidate runs'
+    # observed tables gave (simulator.py reads them through abm.observed.conform) and the candidate runs' own
+    # latent truth. The modules that fit them import neither records nor the model.
+    for module in ("self_check.py", "rejection.py", "abc.py"):
+        imports = abm_imports(PACKAGE / module)
+        assert not [n for n in imports if re.match(r"^abm\.(records|model|port|agents)\b", n)], (module, imports)
+        assert "read_truth" not in names_used(PACKAGE / module)
+    simulator = abm_imports(PACKAGE / "simulator.py")
+    assert "abm.observed.conform" in simulator and not any(n.startswith("abm.records.read_truth") for n in simulator)

@@ -7,7 +7,8 @@ the sections as a :class:`~abm.report.document.Document` and writes
 ``OUT/briefing.html`` (self-contained) and ``OUT/briefing.md`` with
 ``OUT/figures/*.png``.
 
-Sections: the question and the scenario; headline findings; the policy
+Sections: the question and the scenario; how many are trying and getting
+through (:mod:`abm.report.answer`); headline findings; the policy
 comparison; static against adaptive behaviour and the stakeholders' views;
 figures; estimator reliability; what drives the answer (only for sampled
 designs, which support it); assumptions, limitations and cautions; the method
@@ -35,6 +36,7 @@ from ..estimate.expansion import EXPANSION
 from ..estimate.expansion import SOURCE as EXPANSION_SOURCE
 from ..records import write_atomically
 from . import html as html_renderer
+from .answer import section_answer
 from . import markdown as markdown_renderer
 from .document import (
     Bullets, Cell, Document, FigureBlock, Item, Paragraph, Section, Table, excludes_zero, interval, is_number,
@@ -341,8 +343,13 @@ def _estimate_sentence(ctx: Context, scenario: tuple) -> Item | None:
         return Item("No estimator could estimate from observed records how many got past the checks in this batch "
                     "(see the estimator reliability section).", {"claim": "estimate", "point": base})
     label = str(proxy["label"])
+    if proxy["reliable"]:
+        figure = _value(ctx, base, "est_crossings")
+    else:  # an estimator whose intervals miss is not quoted with one
+        figure = (f"{number(est['mean'])} (not reliable here: its {float(proxy['level']):.0%} intervals held the truth "
+                  f"in {_pct(proxy['coverage'])} of runs, so no interval is quoted)")
     text = (f"From observed records alone, {label} puts the person-attempts that got past the last check "
-            f"({ctx.evidence.last_station}) unfound at {_value(ctx, base, 'est_crossings')} under "
+            f"({ctx.evidence.last_station}) unfound at {figure} under "
             f"{ctx.batch.policy_of(base)}, against the model's {_value(ctx, base, 'truth_past_checks')}.")
     if unseen is not None and cross is not None and cross["mean"] > 0:
         text += (f" A further {_value(ctx, base, 'crossings_after_checks')} crossings "
@@ -376,9 +383,13 @@ def _adaptation_sentence(ctx: Context) -> Item | None:
 def _trust_sentence(ctx: Context) -> Item | None:
     trusted = ctx.evidence.trusted
     if trusted is None:
-        return None
-    return Item("Most trusted estimator (section 6): " + _uncap(bias_sentence(trusted, [])),
-                {"claim": "trusted-estimator", "slug": trusted["slug"]})
+        if ctx.evidence.reliability.empty:
+            return None
+        return Item("No closed-form estimator is reliable for this crossing: none held the truth in 80–97% of runs "
+                    "at its nominal interval level (see “How many are trying and getting through”).",
+                    {"claim": "no-trusted-estimator"})
+    return Item("Most trusted estimator (its intervals held the truth about as often as they claim): "
+                + _uncap(bias_sentence(trusted, [])), {"claim": "trusted-estimator", "slug": trusted["slug"]})
 
 
 def _sampled_headlines(ctx: Context) -> list[Item]:
@@ -826,9 +837,13 @@ def section_estimators(ctx: Context) -> Section:
     if ev.trusted is not None:
         sentences.append(Item("Trusted: " + _uncap(bias_sentence(ev.trusted, [])),
                               {"claim": "trusted", "slug": ev.trusted["slug"]}))
+    else:
+        sentences.append(Item(f"No estimator is trusted: none is both ranked and has intervals that held the truth in "
+                              f"80–97% of runs at the nominal {level:.0%}.", {"claim": "no-trusted-estimator"}))
     if ev.proxy is not None:
-        sentences.append(Item("Used for people getting past the last check: " + _uncap(bias_sentence(ev.proxy, [])),
-                              {"claim": "proxy", "slug": ev.proxy["slug"]}))
+        caveat = "" if ev.proxy["reliable"] else " (not reliable here; shown without weight)"
+        sentences.append(Item(f"Used for people getting past the last check{caveat}: "
+                              + _uncap(bias_sentence(ev.proxy, [])), {"claim": "proxy", "slug": ev.proxy["slug"]}))
     per_behaviour = ev.reliability[(ev.reliability["behaviour"] != ALL_BEHAVIOURS) & ev.reliability["eligible"]]
     if per_behaviour["behaviour"].nunique() > 1:
         chosen = list(dict.fromkeys(r["slug"] for r in (ev.trusted, ev.proxy) if r is not None))
@@ -1019,7 +1034,8 @@ def build(out: str | Path, baseline: str | None = None, limits: DelayLimits = De
         contrast=behaviour_contrast(batch, runs, CONTRAST_FIGURES), scenario_points=scenarios(batch),
         drivers=drivers, drivers_problem=problem,
     )
-    sections = [section_question(ctx), section_headline(ctx), section_comparison(ctx), section_assumptions(ctx),
+    sections = [section_question(ctx), section_answer(batch, evidence), section_headline(ctx), section_comparison(ctx),
+                section_assumptions(ctx),
                 section_figures(ctx), section_estimators(ctx)]
     drivers = section_drivers(ctx)
     if drivers is not None:

@@ -24,11 +24,14 @@ Which estimator the briefing trusts
 Each estimator is scored over the batch by ``|relative bias| + |coverage -
 nominal level|`` (both shares; 0 is an unbiased estimator whose intervals
 cover as often as they claim). Estimators that ran in fewer than half of the
-runs (or fewer than two) are not eligible. Comparisons whose truth can only be
+runs (or fewer than two) are not eligible. Only an eligible estimator whose
+measured coverage is close to nominal (0.80-0.97 of a nominal 0.90) is
+reliable, and only a reliable one can be the trusted estimator: when none is,
+the briefing says that no closed-form estimator is reliable here. Comparisons whose truth can only be
 counted approximately (see :class:`abm.analysis.estimator_check.Route`) are
 ranked too, and flagged: the approximation (vehicles referred past a station
 after a false alarm) moves the truth by a few people; an exact comparison wins
-a tie. The trusted estimator is the best eligible one.
+a tie. The trusted estimator is the best reliable one.
 
 No estimator targets crossings: what records can see are people who reached a
 check. The closest target is ``passed_unfound:<last primary station>``,
@@ -51,6 +54,7 @@ import numpy as np
 import pandas as pd
 
 from ..analysis.estimator_check import PASSED_UNFOUND, check_runs, summarise_check
+from ..calibration.self_check import within_nominal
 from ..analysis.policy_table import attempt_shares, read_run_world, run_truth_figures
 from ..records import read_truth, write_parquet
 from .store_view import BatchView
@@ -88,17 +92,24 @@ def last_primary(world: dict[str, Any]) -> str | None:
 
 
 def score_reliability(summary: pd.DataFrame, runs: int) -> pd.DataFrame:
-    """Add ``score`` (|relative bias| + |coverage - level|) and ``eligible`` to a summarise_check table."""
+    """Add ``score`` (|relative bias| + |coverage - level|), ``eligible`` and ``reliable`` to a summarise_check table.
+
+    ``reliable``: eligible, and its intervals held the truth about as often as
+    they claim (:func:`abm.calibration.self_check.within_nominal`); only such
+    an estimator may be called trusted.
+    """
     table = summary.copy()
     table["score"] = table["relative_bias"].abs() + (table["coverage"] - table["level"]).abs()
     needed = max(2, math.ceil(MIN_RUN_SHARE * runs))
     table["eligible"] = (table["n"] >= needed) & np.isfinite(table["score"])
+    near = [within_nominal(float(c), float(lvl)) for c, lvl in zip(table["coverage"], table["level"], strict=True)]
+    table["reliable"] = table["eligible"] & pd.Series(near, index=table.index, dtype=bool)
     return table
 
 
-def best_row(table: pd.DataFrame) -> pd.Series | None:
-    """The eligible row of lowest score (an exact comparison wins a tie); None when none is eligible."""
-    chosen = table[table["eligible"]]
+def best_row(table: pd.DataFrame, among: str = "eligible") -> pd.Series | None:
+    """The row of lowest score among those flagged ``among`` (an exact comparison wins a tie); None when none is."""
+    chosen = table[table[among]]
     if chosen.empty:
         return None
     return chosen.sort_values(["score", "exact", "slug"], ascending=[True, False, True]).iloc[0]
@@ -147,7 +158,7 @@ def gather(batch: BatchView) -> Evidence:
     check, skipped = check.drop(columns="run"), skipped.drop(columns="run")
     reliability = _reliability(check, len(per_run))
     pooled = reliability[reliability["behaviour"] == ALL_BEHAVIOURS] if len(reliability) else reliability
-    trusted = best_row(pooled) if len(pooled) else None
+    trusted = best_row(pooled, among="reliable") if len(pooled) else None
     station = last_primary(batch.world)
     proxy = None
     if station is not None and len(pooled):

@@ -79,6 +79,7 @@ class BatchView:
     behaviour: str | None
     compare_to: dict[int, int | None]
     points: pd.DataFrame  # one row per completed design point: point, factor labels, runs
+    calibration: Mapping[str, Any] | None = None  # experiment.json's account of the posterior the unknowns came from
 
     @property
     def labels(self) -> list[str]:
@@ -256,4 +257,5 @@ def load_batch(out: str | Path, baseline: str | None = None) -> BatchView:
         behaviour=behaviour,
         compare_to=compare_to,
         points=points,
+        calibration=record.get("calibration"),
     )

@@ -26,7 +26,7 @@ class _Parser(argparse.ArgumentParser):
 
 
 def cmd_check(args: argparse.Namespace) -> int:
-    """Validate world files and experiment files (an experiment's every design point included)."""
+    """Validate world files and experiment files (an experiment's every design point and posterior draw included)."""
     from .experiment.design import describe_experiment, is_experiment_file
     from .world import load_world
 
@@ -86,6 +86,8 @@ def cmd_run(args: argparse.Namespace) -> int:
 
 
 DEMO_EXPERIMENT = REPO_WORLDS / "kestrel_quay" / "demo_experiment.yaml"
+DEMO_CALIBRATION = REPO_WORLDS / "kestrel_quay" / "calibration.yaml"
+DEMO_RECORD = "demo.json"  # marks a folder as a demo's, so a later demo may replace it
 # Where the summary extension of batches and the demo (cached_estimates) lives, for the pool's server to preload.
 BATCH_EXTENSION_MODULES = ("abm.analysis.estimator_check",)
 
@@ -97,40 +99,51 @@ def _interrupted(command: str, out: str | Path) -> int:
 
 
 def cmd_demo(args: argparse.Namespace) -> int:
-    """Run the bundled demo experiment on local processes, then brief it."""
+    """The whole job on the demo world: calibrate to the agency extract, compare policies under it, brief."""
     _start_pool_server("processes", None, BATCH_EXTENSION_MODULES)
     from .analysis.estimator_check import cached_estimates
+    from .calibration.config import load_calibration
+    from .calibration.run import run_calibration
     from .experiment.batch import run_batch
-    from .experiment.design import load_plan
+    from .experiment.executors import make_executor
+    from .records import write_json
     from .report.briefing import brief
 
-    if not DEMO_EXPERIMENT.exists():
-        raise InputError(f"{DEMO_EXPERIMENT}: the demo experiment is not here; run from a checkout of the project")
+    for needed in (DEMO_EXPERIMENT, DEMO_CALIBRATION):
+        if not needed.exists():
+            raise InputError(f"{needed}: the demo's files are not here; run from a checkout of the project")
     out = Path(args.out)
-    plan = load_plan(DEMO_EXPERIMENT)
+    calibration_out, batch_out = out / "calibration", out / "batch"
+    plan = load_calibration(DEMO_CALIBRATION)
     resume = args.resume and _is_earlier_demo_of(out, plan.digest())
     if not resume:
         _clear_previous_demo(out)
-    spec = plan.spec
-    print(
-        f"undertow demo: {plan.total_runs} runs ({len(plan.points)} design points x {spec.replications} replications, "
-        f"{spec.warmup_days}+{spec.days} days each) on local processes -> {out}",
-        flush=True,
-    )
     command = ["undertow", *args.argv]
+    out.mkdir(parents=True, exist_ok=True)
+    write_json({"command": command, "calibration_sha256": plan.digest()}, out / DEMO_RECORD)
+    print(f"undertow demo: 1/3 calibrating {plan.spec.name} to the agency extract {plan.observed_path} "
+          f"({plan.setting('draws') if plan.method == 'rejection' else plan.setting('initial_draws')} candidate runs "
+          f"first) -> {calibration_out}", flush=True)
     try:
+        with make_executor("processes", args.workers) as pool:
+            calibration = run_calibration(plan, calibration_out, pool, resume, command)
+        print("\n".join(["", *calibration.answer_lines(), *calibration.warnings, ""]), flush=True)
+        print(f"undertow demo: 2/3 comparing policies with the unknowns drawn from that posterior -> {batch_out}",
+              flush=True)
         # cached_estimates adds the store's est_ columns, as undertow batch does
-        result = run_batch(DEMO_EXPERIMENT, out, "processes", args.workers, None, resume, command,
-                           extensions=(cached_estimates,))
+        result = run_batch(DEMO_EXPERIMENT, batch_out, "processes", args.workers, None, resume, command,
+                           extensions=(cached_estimates,), calibration=calibration_out)
     except KeyboardInterrupt:
         return _interrupted("demo", out)
-    print(f"{spec.name}: {result.total - result.failed} of {result.total} runs complete ({result.ran} run now)")
+    print(f"{result.plan.spec.name}: {result.total - result.failed} of {result.total} runs complete "
+          f"({result.ran} run now)")
     if result.failed:
-        print(f"undertow demo: {result.failed} runs failed; the briefing covers the rest (errors in {out})",
+        print(f"undertow demo: {result.failed} runs failed; the briefing covers the rest (errors in {batch_out})",
               file=sys.stderr)
-    _, paths = brief(out, argv=["undertow", "brief", str(out)])
+    print("undertow demo: 3/3 writing the briefing", flush=True)
+    _, paths = brief(batch_out, argv=["undertow", "brief", str(batch_out)])
     print(f"Briefing: {paths['html']}")
-    print(f"          {paths['md']} (figures in {out / 'figures'})")
+    print(f"          {paths['md']} (figures in {batch_out / 'figures'})")
     return EXIT_FAULT if result.failed else EXIT_OK
 
 
@@ -138,7 +151,7 @@ def _recorded_command(out: Path) -> tuple[list, dict]:
     """The command an output folder was made with and its record: a batch's experiment.json or a run's manifest."""
     import json
 
-    for name in ("experiment.json", "manifest.json"):
+    for name in (DEMO_RECORD, "experiment.json", "manifest.json"):
         try:
             record = json.loads((out / name).read_text(encoding="utf-8"))
         except (OSError, ValueError):
@@ -149,9 +162,9 @@ def _recorded_command(out: Path) -> tuple[list, dict]:
 
 
 def _is_earlier_demo_of(out: Path, digest: str) -> bool:
-    """True when ``out`` holds a demo batch of this very experiment, so its complete runs can be kept."""
+    """True when ``out`` holds a demo of this very calibration, so its complete runs can be kept."""
     command, record = _recorded_command(out)
-    return command[:2] == ["undertow", "demo"] and record.get("experiment_sha256") == digest
+    return command[:2] == ["undertow", "demo"] and record.get("calibration_sha256") == digest
 
 
 def _clear_previous_demo(out: Path) -> None:
@@ -188,10 +201,10 @@ def cmd_compare(args: argparse.Namespace) -> int:
 
 
 def cmd_estimate(args: argparse.Namespace) -> int:
-    """Estimate the unobserved flow from a run directory's observed records."""
+    """Estimate the unobserved flow from a run directory's observed records or a folder of observed tables."""
     from .estimate.report import estimate_command
 
-    estimate_command(args.run_dir, args.window, args.level, args.sensitivity, args.seed)
+    estimate_command(args.records, args.window, args.level, args.sensitivity, args.seed, out_dir=args.out)
     return EXIT_OK
 
 
@@ -344,8 +357,12 @@ def build_parser() -> argparse.ArgumentParser:
     )
     compare.set_defaults(func=cmd_compare)
 
-    estimate = sub.add_parser("estimate", help="estimate the unobserved flow from a run's observed records")
-    estimate.add_argument("run_dir", help="run directory holding observed/")
+    estimate = sub.add_parser("estimate", help="estimate the unobserved flow from observed records (a run or an extract)")
+    estimate.add_argument(
+        "records", metavar="RECORDS",
+        help="run directory holding observed/, or a folder of observed tables as CSV or Parquet (docs/observed_records.md)",
+    )
+    estimate.add_argument("--out", help="folder for estimates.csv and estimates.json (default: RECORDS)")
     estimate.add_argument("--window", metavar="START:END", help="days to use, both inclusive (default: all)")
     estimate.add_argument("--level", type=float, default=0.9, help="confidence level of the intervals (default 0.9)")
     estimate.add_argument(

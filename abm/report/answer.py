@@ -82,8 +82,7 @@ def _coverage_text(check: pd.DataFrame | None, quantity: str) -> tuple[str, dict
     if check is None or quantity not in set(check["quantity"]):
         return "not measured", {}
     row = check.set_index("quantity").loc[quantity]
-    text = (f"{number(row['coverage'], 'percent')} of {int(row['trials'])}\n"
-            f"{number(row['coverage_low'], 'percent')} to {number(row['coverage_high'], 'percent')}")
+    text = f"{_pct(row['coverage'])} of {int(row['trials'])}\n{_pct(row['coverage_low'])} to {_pct(row['coverage_high'])}"
     return text, {"coverage": float(row["coverage"]), "trials": int(row["trials"])}
 
 
@@ -135,7 +134,7 @@ def _estimator_rows(view: CalibrationView, evidence: Evidence) -> tuple[list[tup
             ok = bool(m["eligible"]) and within_nominal(float(m["coverage"]), float(m["level"]))
             reliable += ok
             batch_text = (f"bias {number(m['relative_bias'], 'relative', True)}; its {float(m['level']):.0%} intervals "
-                          f"held the truth in {number(m['coverage'], 'percent')} of {int(m['n'])} runs")
+                          f"held the truth in {_pct(m['coverage'])} of {int(m['n'])} runs")
             verdict = "reliable here" if ok else "not reliable here"
             data = {"slug": slug, "coverage": float(m["coverage"]), "reliable": str(ok).lower()}
         else:
@@ -157,10 +156,18 @@ def _assumptions_line(assumptions: tuple[str, ...]) -> str:
     return "; ".join(picked) + ("; …" if len(assumptions) > len(picked) else "")
 
 
-def _why_estimators_fail(world: dict[str, Any]) -> str:
-    """The reasons this world gives closed-form estimators to go wrong, in words."""
+def _pct(share: float) -> str:
+    return f"{100 * float(share):.0f}%" if math.isfinite(float(share)) else "n/a"
+
+
+def _why_estimators_fail(batch: BatchView) -> str:
+    """The reasons this batch's world gives closed-form estimators to go wrong, in words."""
+    world = batch.world
+    behaviours = {world.get("adversary", {}).get("behaviour", "static")}
+    if batch.behaviour is not None:
+        behaviours |= {str(level) for level in batch.factor(batch.behaviour).levels}
     reasons = []
-    if world.get("adversary", {}).get("behaviour", "static") != "static":
+    if behaviours - {"static"}:
         reasons.append("people adapt, moving toward options where fewer are caught, so capture chances are neither "
                        "equal nor constant")
     if len(world.get("depths") or []) > 1:
@@ -231,7 +238,7 @@ def section_answer(batch: BatchView, evidence: Evidence) -> Section:
             f"{reliable} closed-form estimator{'s' if reliable != 1 else ''} held the truth close to the nominal "
             f"{level:.0%} in this batch; the others are cross-checks only."))
     else:
-        why = _why_estimators_fail(batch.world)
+        why = _why_estimators_fail(batch)
         blocks.append(Paragraph(
             f"No closed-form estimator is reliable for this crossing: in this batch none of their {level:.0%} "
             "intervals held the truth in 80–97% of runs, so none of their figures is quoted as an answer"

@@ -45,8 +45,7 @@ from pydantic import Field
 from ..errors import InputError
 from ..observed import RecordNames
 from ..world import WorldFileError, file_hash, parse_world, read_yaml_mapping
-from ..world.paths import PathProblem, apply_unknowns, get_path, set_path
-from ..world.paths import holds_numbers as _numbers_in
+from ..world.paths import PathProblem, apply_unknowns, get_path, holds_numbers, set_path
 from ..experiment.design import read_project_file
 from ..world.schema import NumberOnly, Strict
 from .priors import DISTRIBUTIONS, Prior, PriorError, PriorSet
@@ -370,7 +369,7 @@ def _check_prior_in_world(spec: Calibration, i: int, priors: PriorSet, world: di
         set_path(world, prior.path, 1.0)
     except PathProblem as exc:
         raise CalibrationFileError(source, f"{key}.path", str(exc)) from None
-    if prior.multiply and not _numbers_in(current):
+    if prior.multiply and not holds_numbers(current):
         raise CalibrationFileError(source, f"{key}.path", f"a multiplier needs numbers at {prior.path}; found none")
     low, high = prior.support()
     ends = (

@@ -78,6 +78,29 @@ def read_calibration(folder: str | Path) -> CalibrationView:
     )
 
 
+def _answer_in_words(view: CalibrationView) -> Paragraph:
+    """The answer first, in plain words: who tried, who got through, how many no record could see."""
+    post = view.posterior.set_index("quantity")
+    check = view.self_check.set_index("quantity") if view.self_check is not None else None
+
+    def figure(quantity: str) -> str:
+        row = post.loc[quantity]
+        return f"{number(row['mean'])} ({view.level:.0%} interval {interval(row['low'], row['high'])})"
+
+    days = int(view.record["days"])
+    text = (f"Over the {days} days of the agency's records, the calibrated model puts the people who tried at "
+            f"{figure('persons')} distinct persons, of whom {figure('crossings')} crossed undetected; "
+            f"{figure('crossings_after_last_check')} of those crossings boarded after the last check, where no "
+            "record can see them.")
+    if check is not None and "crossings" in check.index:
+        text += (f" Its self-check found intervals like these held the known truth in "
+                 f"{_pct(check.loc['crossings', 'coverage'])} of {int(check.loc['crossings', 'trials'])} trials "
+                 f"(nominal {view.level:.0%}).")
+    else:
+        text += " How often such intervals hold the truth was not measured (no self-check)."
+    return Paragraph(text, lead="The answer.")
+
+
 def _coverage_text(check: pd.DataFrame | None, quantity: str) -> tuple[str, dict[str, Any]]:
     if check is None or quantity not in set(check["quantity"]):
         return "not measured", {}
@@ -209,6 +232,7 @@ def section_answer(batch: BatchView, evidence: Evidence) -> Section:
     view = read_calibration(batch.calibration["folder"])
     level, (first, last) = view.level, view.window
     blocks = [
+        _answer_in_words(view),
         Paragraph(
             f"Calibrated by approximate Bayesian computation (“{view.record['name']}”, {view.record['method']}) to the "
             f"observed records at {view.record['observed_path']}, days {first}–{last}: only what an agency holds was "

@@ -27,15 +27,19 @@ class _Parser(argparse.ArgumentParser):
 
 def cmd_check(args: argparse.Namespace) -> int:
     """Validate world files and experiment files (an experiment's every design point and posterior draw included)."""
-    from .experiment.design import describe_experiment, is_experiment_file
+    from .experiment.batch import load_warnings
+    from .experiment.design import describe_experiment, is_experiment_file, load_plan
+    from .port.load import load_report
     from .world import load_world
 
     for path in args.files:
         if is_experiment_file(path):
             print(describe_experiment(path))
+            print("\n".join(load_warnings(load_plan(path))) or "  no design point's world is overloaded")
             continue
         world = load_world(path)
         print(f"{path}: ok ({world.name}; {len(world.stations)} stations, {len(world.boarding_points)} boarding points)")
+        print("\n".join(load_report(world).lines()))
     return EXIT_OK
 
 
@@ -66,6 +70,11 @@ def _run_world(world_path: Path, days: int, seed: int, out: Path, argv: list[str
     from .world import file_hash, load_world
 
     world = load_world(world_path)
+    from .experiment.batch import print_warning
+    from .port.load import load_report
+
+    for warning in load_report(world).warnings:
+        print_warning(warning)
     with _progress_bar(days, "days") as bar:
         summary = run_to_directory(world, file_hash(world_path), days, seed, out, command=argv, progress=bar.update)
     print_summary(summary, f"{world.name}: {days} days, seed {seed} -> {out}")
@@ -104,7 +113,7 @@ def cmd_demo(args: argparse.Namespace) -> int:
     from .analysis.estimator_check import cached_estimates
     from .calibration.config import load_calibration
     from .calibration.run import run_calibration
-    from .experiment.batch import run_batch
+    from .experiment.batch import print_warning, run_batch
     from .experiment.executors import make_executor
     from .records import write_json
     from .report.briefing import brief
@@ -132,7 +141,7 @@ def cmd_demo(args: argparse.Namespace) -> int:
               flush=True)
         # cached_estimates adds the store's est_ columns, as undertow batch does
         result = run_batch(DEMO_EXPERIMENT, batch_out, "processes", args.workers, None, resume, command,
-                           extensions=(cached_estimates,), calibration=calibration_out)
+                           extensions=(cached_estimates,), calibration=calibration_out, on_warning=print_warning)
     except KeyboardInterrupt:
         return _interrupted("demo", out)
     print(f"{result.plan.spec.name}: {result.total - result.failed} of {result.total} runs complete "

@@ -10,7 +10,7 @@ run directories.
 from __future__ import annotations
 
 import sys
-from collections.abc import Iterator, Sequence
+from collections.abc import Callable, Iterator, Sequence
 from dataclasses import dataclass
 from pathlib import Path
 from typing import Any
@@ -18,7 +18,7 @@ from typing import Any
 import pandas as pd
 
 from .compare import compare_points, format_comparison
-from .design import Plan, RunSpec, load_plan
+from .design import Plan, RunSpec, load_plan, point_shown
 from .executors import choose_executor, make_executor
 from .store import FAILURES_TABLE, Store, SummaryExtension
 from .worker import RunTask
@@ -87,10 +87,12 @@ def run_batch(
     show_progress: bool | None = None,
     extensions: Sequence[SummaryExtension] = (),
     calibration: str | Path | None = None,
+    on_warning: Callable[[str], None] | None = None,
 ) -> BatchResult:
     """Run (or finish, with ``resume``) every run of an experiment into ``out``.
 
     ``calibration`` overrides the file's ``calibration:`` folder (see :func:`load_plan`).
+    ``on_warning`` is given each load warning (:func:`load_warnings`) before any run starts.
 
     A run that raises is recorded in failures.parquet and the batch goes on.
     ``show_progress`` None shows a bar only on a terminal. ``extensions`` add
@@ -101,6 +103,9 @@ def run_batch(
     # The executor first: a process pool's server then imports the engine while the plan is read.
     runner = make_executor(executor, workers, scheduler, preload=[extension.__module__ for extension in extensions])
     plan = load_plan(experiment, calibration)
+    if on_warning is not None:
+        for warning in load_warnings(plan):
+            on_warning(warning)
     store = Store(out)
     store.open(plan, list(command), resume)
     done = store.complete(plan)
@@ -121,6 +126,27 @@ def run_batch(
     return BatchResult(Path(out), plan, len(todo), summary, failures, comparison)
 
 
+def load_warnings(plan: Plan) -> list[str]:
+    """The load report's warnings for every design point's world, each once, naming the points it holds for."""
+    from ..port.load import load_report
+    from ..world import parse_world
+
+    holds: dict[str, list[str]] = {}
+    for point in plan.points:
+        report = load_report(parse_world(plan.world_for(point.index), plan.world_path))
+        for warning in report.warnings:
+            holds.setdefault(warning, []).append(point_shown(point))
+    if len(plan.points) == 1:
+        return list(holds)
+    return [warning if len(points) == len(plan.points) else f"{warning} (design points: {'; '.join(points)})"
+            for warning, points in holds.items()]
+
+
+def print_warning(text: str) -> None:
+    """A warning line on stderr, where it does not mix with a command's answer."""
+    print(text, file=sys.stderr, flush=True)
+
+
 def batch_command(
     experiment: str | Path,
     out: str | Path,
@@ -133,7 +159,8 @@ def batch_command(
 ) -> bool:
     """``undertow batch``: run the batch, print the comparison; False when some runs failed (noted on stderr)."""
     executor = choose_executor(executor, workers, scheduler)
-    result = run_batch(experiment, out, executor, workers, scheduler, resume, command, extensions=extensions)
+    result = run_batch(experiment, out, executor, workers, scheduler, resume, command, extensions=extensions,
+                       on_warning=print_warning)
     done = result.total - result.failed
     print(f"{result.plan.spec.name}: {done} of {result.total} runs complete ({result.ran} run now) -> {result.out}")
     print(format_comparison(result.comparison, [f.label for f in result.plan.factors]))

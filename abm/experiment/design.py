@@ -210,7 +210,7 @@ def load_plan(path: str | Path, calibration: str | Path | None = None) -> Plan:
         try:
             parse_world(apply_changes(world_data, dict(point.changes)), "<design point>")
         except WorldFileError as exc:
-            shown = f"design point {point.index} ({_point_shown(point)})"
+            shown = f"design point {point.index} ({point_shown(point)})"
             raise ExperimentFileError(source, "factors", f"{shown}: in the world, {exc.path}: {exc.message}") from None
     posterior = _plan_posterior(spec, source, world_data, factors, points) if spec.calibration is not None else None
     return Plan(
@@ -362,7 +362,7 @@ def _plan_posterior(
 ) -> Posterior:
     """Read the named calibration's posterior and check it against the run table and every draw's worlds."""
     assert spec.calibration is not None
-    described = [(f"design point {p.index} ({_point_shown(p)})", dict(p.changes)) for p in points]
+    described = [(f"design point {p.index} ({point_shown(p)})", dict(p.changes)) for p in points]
     try:
         posterior = read_posterior(source.parent / spec.calibration, spec.seed, spec.replications)
         posterior.check_columns({f.label: f.key for f in factors}, RESERVED_COLUMNS)
@@ -553,7 +553,7 @@ def _same(a: Any, b: Any) -> bool:
     return a == b
 
 
-def _point_shown(point: DesignPoint) -> str:
+def point_shown(point: DesignPoint) -> str:
     """A design point's factor values as they read in a message."""
     return ", ".join(f"{k}={_shown(v)}" for k, v in point.values.items())
 

@@ -37,6 +37,7 @@ from ..estimate.expansion import SOURCE as EXPANSION_SOURCE
 from ..records import write_atomically
 from . import html as html_renderer
 from .answer import section_answer
+from .load_notes import load_blocks
 from . import markdown as markdown_renderer
 from .document import (
     Bullets, Cell, Document, FigureBlock, Item, Paragraph, Section, Table, excludes_zero, interval, is_number,
@@ -234,6 +235,7 @@ def section_question(ctx: Context) -> Section:
     if b.behaviour is None:
         model = b.world.get("adversary", {}).get("behaviour", "static")
         blocks.append(Paragraph(f"Every run assumes {model} behaviour: {BEHAVIOUR_WORDS.get(model, model)}."))
+    blocks += load_blocks(b, [p for p, c in b.compare_to.items() if c is None])
     iv = _intervention(b)
     if iv is not None:
         blocks.append(Paragraph(f"The world's intervention “{iv[1]}” takes effect on day {iv[0]} in every run, "

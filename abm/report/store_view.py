@@ -111,6 +111,11 @@ class BatchView:
     def run_dir(self, run_id: str) -> Path:
         return self.out / RUNS_DIR / run_id
 
+    def point_world(self, point: int) -> dict[str, Any]:
+        """The world a design point ran (world.json of its first completed run)."""
+        rows = self.summary[self.summary["point"] == point].sort_values("replication")
+        return json.loads((self.run_dir(str(rows["run_id"].iloc[0])) / "world.json").read_text(encoding="utf-8"))
+
     def scenario_of(self, point: int) -> tuple[Any, ...]:
         """The scenario values of a point (the same for a policy and its baseline)."""
         row = self.points.loc[point]

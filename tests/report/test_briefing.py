@@ -191,6 +191,17 @@ def test_every_section_and_figure_is_there(briefed: Briefed) -> None:
         assert (briefed.out / "figures" / f"{key}.png").read_bytes().startswith(PNG_SIGNATURE)
 
 
+def test_scenario_section_says_where_the_baseline_is_overloaded(briefed: Briefed) -> None:
+    # The demo world's dog teams in the evening: 2.7 lanes resting a third of the time for ~26 dog checks an hour
+    # (abm.port.load; tests/port/test_load_report.py checks the figures); double imaging overloads the gate too.
+    md = briefed.markdown
+    scenario = md[md.index("The scenario"):md.index("How many are trying")]
+    assert "The baseline is overloaded at" in scenario
+    assert "station 'yard_dogs', evening (18-24 h): offered load 1.21" in scenario
+    assert "miss their booked departure for want of places alone" in scenario
+    assert "double_imaging: station 'gate_imaging', evening" in scenario
+
+
 def test_every_figure_states_its_source_and_replications(briefed: Briefed) -> None:
     captions = re.findall(r"<figcaption>(.*?)</figcaption>", briefed.html, flags=re.S)
     assert len(captions) == len(FIGURES)

@@ -1,24 +1,41 @@
 """A briefing as Markdown, with its figures as PNG files beside it (``figures/<key>.png``).
 
-Text is HTML-escaped (Markdown passes raw HTML through, so a name with markup
-would otherwise become markup), and table cells also escape ``|``.
+Every text is inert: Markdown passes raw HTML through and turns brackets,
+bare addresses and emphasis marks into markup, so a name in a world or
+experiment file could otherwise become a live link, an image fetched from the
+network, or HTML. Each character that can start markup is backslash-escaped
+(CommonMark lets any ASCII punctuation be escaped, and shows it as itself), so
+no entity such as ``&amp;`` is ever written for a reader to see.
 """
 
 from __future__ import annotations
 
-import html
+import re
 
 from .document import Block, Bullets, Document, FigureBlock, Paragraph, Table
 
 FIGURES_DIR = "figures"
 
 
+_MARKUP = frozenset("\\`*_{}[]<>|!~&@")  # characters that can open markup anywhere in a line
+_LINE_START = re.compile(r"^(\s*)(#|[-+=]|\d+[.)])")  # headings, list items, setext underlines
+
+
 def _e(text: str) -> str:
-    return html.escape(str(text), quote=False)
+    """Text shown as itself in any CommonMark or GitHub-flavoured renderer."""
+    escaped = "".join(f"\\{ch}" if ch in _MARKUP else ch for ch in str(text))
+    escaped = escaped.replace("://", "\\://").replace("www.", "www\\.")  # no bare address becomes a link
+    return "\n".join(_LINE_START.sub(_escape_line_start, line) for line in escaped.split("\n"))
+
+
+def _escape_line_start(match: re.Match[str]) -> str:
+    """``# x`` -> ``\\# x``, ``- x`` -> ``\\- x``, ``12. x`` -> ``12\\. x``: the mark is shown, not obeyed."""
+    mark = match.group(2)
+    return f"{match.group(1)}{mark[:-1]}\\{mark[-1]}"
 
 
 def _cell(text: str) -> str:
-    return "<br>".join(_e(line).replace("|", "\\|") for line in str(text).split("\n"))
+    return "<br>".join(_e(line) for line in str(text).split("\n"))
 
 
 def _table(table: Table) -> str:

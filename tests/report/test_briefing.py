@@ -42,6 +42,7 @@ ROOT = Path(__file__).resolve().parents[2]
 DEMO_WORLD = ROOT / "worlds" / "kestrel_quay" / "world.yaml"
 DEMO_EXPERIMENT = ROOT / "worlds" / "kestrel_quay" / "demo_experiment.yaml"
 MARKUP_NAME = "<script>alert(1)</script> Quay & <b>Sons</b>"
+MARKUP_NOTE = "image <em>twice</em> as many [see](javascript:alert(1)) ![x](https://example.invalid/t.png) *now*"
 SECTIONS = {"question", "answer", "headline", "comparison", "assumptions", "figures", "estimators", "limitations", "method"}
 FIGURES = {"frontier", "displacement", "daily", "estimators"}
 PNG_SIGNATURE = b"\x89PNG\r\n\x1a\n"
@@ -130,7 +131,7 @@ def briefed(tmp_path_factory: pytest.TempPathFactory) -> Briefed:
                 "baseline": "current",
                 "levels": [
                     {"name": "current", "set": {}},
-                    {"name": "double_imaging", "note": "image <em>twice</em> as many",
+                    {"name": "double_imaging", "note": MARKUP_NOTE,
                      "set": {"stations.gate_imaging.selection.fraction": 0.4}},
                 ],
             },
@@ -194,7 +195,7 @@ def test_every_section_and_figure_is_there(briefed: Briefed) -> None:
 def test_scenario_section_says_where_the_baseline_is_overloaded(briefed: Briefed) -> None:
     # The demo world's dog teams in the evening: 2.7 lanes resting a third of the time for ~26 dog checks an hour
     # (abm.port.load; tests/port/test_load_report.py checks the figures); double imaging overloads the gate too.
-    md = briefed.markdown
+    md = briefed.markdown.replace("\\", "")  # as rendered: the backslash escapes shown as the characters
     scenario = md[md.index("The scenario"):md.index("How many are trying")]
     assert "The baseline is overloaded at" in scenario
     assert "station 'yard_dogs', evening (18-24 h): offered load 1.21" in scenario
@@ -296,7 +297,20 @@ def test_markup_from_world_and_experiment_files_is_escaped(briefed: Briefed) -> 
     assert "&lt;script&gt;alert(1)&lt;/script&gt; Quay &amp; &lt;b&gt;Sons&lt;/b&gt;" in briefed.html
     assert "&lt;i&gt;(illustrative)&lt;/i&gt;" in briefed.html and "&lt;em&gt;twice&lt;/em&gt;" in briefed.html
     assert {"script", "b", "i", "em"}.isdisjoint(briefed.page.tags)
-    assert "&lt;script&gt;alert(1)&lt;/script&gt;" in briefed.markdown and "<script" not in briefed.markdown
+
+def test_markdown_shows_text_from_files_as_text(briefed: Briefed) -> None:
+    # CommonMark (spec 0.31, "Backslash escapes"): any escaped ASCII punctuation is shown as itself, so a
+    # bracket, angle bracket, ampersand or emphasis mark preceded by a backslash opens no link, image, tag,
+    # entity or emphasis; a bare address with its colon escaped is no autolink (GitHub-flavoured extension).
+    md = briefed.markdown
+    assert "\\<script\\>alert(1)\\</script\\> Quay \\& \\<b\\>Sons\\</b\\>" in md
+    assert "\\[see\\](javascript:alert(1)) \\!\\[x\\](https\\://example.invalid/t.png) \\*now\\*" in md
+    assert "&amp;" not in md and "&lt;" not in md  # no entity for a reader to see
+    body = re.sub(r"!\[[^\]]*\]\(figures/[\w-]+\.png\)", "", md).replace("<br>", " ")  # own figures, line breaks
+    for mark in ("[", "]", "<", ">", "&", "`"):
+        unescaped = [m.start() for m in re.finditer(re.escape(mark), body) if body[m.start() - 1] != "\\"]
+        assert not unescaped, (mark, body[unescaped[0] - 40:unescaped[0] + 40])
+    assert not re.search(r"(?<!\\)://", body)
 
 
 def test_the_page_needs_no_network(briefed: Briefed) -> None:

@@ -25,21 +25,46 @@ class _Parser(argparse.ArgumentParser):
         self.exit(EXIT_INPUT, f"{self.prog}: {message}\n")
 
 
+FILE_KINDS = ("world", "experiment", "calibration", "optimisation")
+
+
+def _file_kind(path: str) -> str:
+    """A file's kind: its ``kind:``, else experiment when it names a ``world:``, else world."""
+    from .world import WorldFileError, read_yaml_mapping
+
+    try:
+        data = read_yaml_mapping(path)
+    except WorldFileError:
+        return "world"  # unreadable: the world check gives the one-line message
+    kind = data.get("kind", "experiment" if "world" in data else "world")
+    if kind not in FILE_KINDS:
+        raise InputError(f"{path}: kind: expected one of {', '.join(FILE_KINDS)}, got {kind!r}")
+    return str(kind)
+
+
 def cmd_check(args: argparse.Namespace) -> int:
-    """Validate world files and experiment files (an experiment's every design point and posterior draw included)."""
+    """Validate files of every kind the tool reads, by their ``kind:``; print a world's load report."""
+    from .analysis.policy_search import describe_optimisation
+    from .calibration.config import describe_calibration
     from .experiment.batch import load_warnings
-    from .experiment.design import describe_experiment, is_experiment_file, load_plan
+    from .experiment.design import describe_experiment, load_plan
     from .port.load import load_report
     from .world import load_world
 
     for path in args.files:
-        if is_experiment_file(path):
+        kind = _file_kind(path)
+        if kind == "experiment":
             print(describe_experiment(path))
             print("\n".join(load_warnings(load_plan(path))) or "  no design point's world is overloaded")
-            continue
-        world = load_world(path)
-        print(f"{path}: ok ({world.name}; {len(world.stations)} stations, {len(world.boarding_points)} boarding points)")
-        print("\n".join(load_report(world).lines()))
+        elif kind == "calibration":
+            print(describe_calibration(path))
+        elif kind == "optimisation":
+            print(describe_optimisation(path))
+        else:
+            world = load_world(path)
+            print(f"{path}: ok ({world.name}; {len(world.stations)} stations, "
+                  f"{len(world.boarding_points)} boarding points)")
+            print("\n".join(load_report(world).lines()))
     return EXIT_OK
 
 
@@ -90,6 +115,10 @@ def _run_world(world_path: Path, days: int, seed: int, out: Path, argv: list[str
 def cmd_run(args: argparse.Namespace) -> int:
     """Simulate a world for some days and write a run directory."""
     world = Path(args.world)
+    kind = _file_kind(args.world)
+    if kind != "world":
+        command = {"experiment": "batch", "calibration": "calibrate", "optimisation": "optimise"}[kind]
+        raise InputError(f"{world}: is {'an' if kind[0] in 'aeio' else 'a'} {kind} file; run it with undertow {command} {world} --out DIR")
     out = Path(args.out) if args.out else Path("outputs") / f"{world.parent.name or world.stem}-seed{args.seed}"
     return _run_world(world, args.days, args.seed, out, ["undertow", *args.argv])
 
@@ -313,8 +342,8 @@ def build_parser() -> argparse.ArgumentParser:
     parser = _Parser(prog="undertow", description=__doc__.splitlines()[0])
     sub = parser.add_subparsers(dest="command", required=True, parser_class=_Parser)
 
-    check = sub.add_parser("check", help="validate world files and experiment files")
-    check.add_argument("files", nargs="+", help="world or experiment YAML files")
+    check = sub.add_parser("check", help="validate world, experiment, calibration and optimisation files")
+    check.add_argument("files", nargs="+", help="YAML files of any kind the tool reads (by their kind:)")
     check.set_defaults(func=cmd_check)
 
     batch = sub.add_parser("batch", help="run an experiment's batch of runs and compare its design points")

@@ -208,3 +208,27 @@ def test_console_script_runs(tmp_path):
     bad = subprocess.run([str(UNDERTOW), *run_args(tmp_path / "bad", days="0")], capture_output=True, text=True, timeout=120)
     assert bad.returncode == 2
     assert len(bad.stderr.strip().splitlines()) == 1 and "Traceback" not in bad.stderr
+
+
+@pytest.mark.parametrize("name, kind, command", [
+    ("calibration.yaml", "calibration", "calibrate"), ("optimise.yaml", "optimisation", "optimise"),
+    ("experiment.yaml", "experiment", "batch"),
+])
+def test_check_takes_every_kind_and_run_points_elsewhere(name: str, kind: str, command: str, tmp_path: Path) -> None:
+    path = ROOT / "worlds" / "kestrel_quay" / name
+    check = subprocess.run([str(UNDERTOW), "check", str(path)], capture_output=True, text=True, check=False)
+    assert check.returncode == 0, check.stderr
+    assert f"ok ({kind}" in check.stdout
+    run = subprocess.run([str(UNDERTOW), "run", str(path), "--out", str(tmp_path / "r")], capture_output=True,
+                         text=True, check=False)
+    assert run.returncode == 2 and f"undertow {command} {path} --out DIR" in run.stderr
+    assert not (tmp_path / "r").exists()
+
+
+def test_check_refuses_an_unknown_kind(tmp_path: Path) -> None:
+    path = tmp_path / "odd.yaml"
+    path.write_text("kind: banana\n", encoding="utf-8")
+    result = subprocess.run([str(UNDERTOW), "check", str(path)], capture_output=True, text=True, check=False)
+    assert result.returncode == 2
+    assert result.stderr.strip() == (f"undertow check: {path}: kind: expected one of world, experiment, "
+                                     "calibration, optimisation, got 'banana'")

@@ -142,7 +142,15 @@ def removal_carle_strub_from_catches(catches: Sequence[int], level: float = DEFA
     if found is None:
         raise EstimatorCannotRun(CARLE_STRUB, "no estimate below 10⁹: catches do not fall along the passes")
     p = t / (k * found - x)
-    return _removal_result(CARLE_STRUB, found, t, zippin_variance(found, p, k), level, {"p": p, "passes": k})
+    result = _removal_result(CARLE_STRUB, found, t, zippin_variance(found, p, k), level, {"p": p, "passes": k})
+    if 2 * x <= (k - 1) * t:  # Zippin's existence condition: the catches do not fall on average
+        # The weighted likelihood still has a maximum, but it rests on the prior weighting, not on the records.
+        shown = ", ".join(map(str, c))
+        result = dataclasses.replace(result, warnings=(
+            f"catches do not fall along the passes ({shown}): the estimate comes from the method's weighting, "
+            "not from the records, and its interval is not to be trusted (Zippin and two-pass removal refuse "
+            "these catches)",))
+    return result
 
 
 def _zippin_equation_root(k: int, t: int, x: int) -> float:

@@ -3,9 +3,10 @@
 from __future__ import annotations
 
 import json
+import math
 import os
 import tempfile
-from collections.abc import Callable, Sequence
+from collections.abc import Callable, Mapping, Sequence
 from functools import partial
 from pathlib import Path
 from typing import TextIO
@@ -165,10 +166,50 @@ def format_table(results: Sequence[EstimateResult], failures: Sequence[tuple[str
         lines += [line(header), line(["-" * w for w in widths]), *(line(row) for row in rows)]
     else:
         lines.append("no estimator could run on these records")
+    flagged = [(r.method, w) for r in results for w in r.warnings]
+    if flagged:
+        lines += ["", *(f"warning: {method}: {text}" for method, text in flagged)]
     if failures:
         lines += ["", "cannot run:"]
         lines += [f"  {name}: {reason}" for name, reason in failures]
     return "\n".join(lines)
+
+
+def explain(results: Sequence[EstimateResult]) -> str:
+    """Which question each group of estimators answers, which ones disagree and why, and what none can see."""
+    lines = ["What these estimates answer:"]
+    by_target: dict[str, list[EstimateResult]] = {}
+    for result in results:
+        by_target.setdefault(result.target, []).append(result)
+    for target, group in by_target.items():
+        names = ", ".join(r.method for r in group)
+        lines.append(f"  how many {target}: {names}")
+        low, high = max(group, key=lambda r: r.ci_low), min(group, key=lambda r: r.ci_high)
+        if low.ci_low > high.ci_high:
+            lines.append(f"    they disagree: {low.method} ({low.ci_low:.0f} to {low.ci_high:.0f}) and {high.method} "
+                         f"({high.ci_low:.0f} to {high.ci_high:.0f}) do not overlap, so at least one's assumptions fail "
+                         f"here: {low.method} assumes {_first(low)}; {high.method} assumes {_first(high)}")
+    lines += [
+        "  Every estimator assumes people are equally easy to find at each encounter or station; people who adapt,",
+        "  hide deeper or travel in loads that hide them are found less, so these figures tend to undercount.",
+        "  No record can see people who board after the last check: every figure here counts at most those who met",
+        "  a check or an encounter. For everyone who tries, calibrate the model to these records (undertow calibrate).",
+    ]
+    return "\n".join(lines)
+
+
+def _first(result: EstimateResult) -> str:
+    """The first of an estimator's assumptions, as a clause."""
+    text = result.assumptions[0] if result.assumptions else "what its source states"
+    return text[:1].lower() + text[1:].rstrip(".")
+
+
+def output_names(window: tuple[int, int] | None) -> tuple[str, str]:
+    """File names for one window's estimates, so estimates of different windows never replace each other."""
+    if window is None:
+        return CSV_NAME, JSON_NAME
+    stem = f"estimates_days_{window[0]}-{window[1]}"
+    return f"{stem}.csv", f"{stem}.json"
 
 
 def _write_atomic(path: Path, text: str) -> None:
@@ -194,7 +235,8 @@ def write_estimates(
 ) -> tuple[Path, Path]:
     """Write ``estimates.csv`` (one row per result) and ``estimates.json`` (results and failures) atomically."""
     base = Path(run_dir)
-    csv_path, json_path = base / CSV_NAME, base / JSON_NAME
+    csv_name, json_name = output_names(window)
+    csv_path, json_path = base / csv_name, base / json_name
     _write_atomic(csv_path, results_frame(results).to_csv(index=False))
     document = {
         "window": None if window is None else list(window),
@@ -225,8 +267,8 @@ def parse_sensitivity(text: str) -> tuple[str, tuple[float, float]]:
         a, b = (float(v) for v in values.split(","))
     except ValueError:
         raise InputError(f"--sensitivity must be NAME=A,B (a Beta(a, b) per station or method), got '{text}'") from None
-    if not name or not (a > 0 and b > 0):
-        raise InputError(f"--sensitivity needs a name and a, b > 0, got '{text}'")
+    if not name or not (0 < a < math.inf and 0 < b < math.inf):
+        raise InputError(f"--sensitivity needs a name and finite a, b > 0, got '{text}'")
     return name, (a, b)
 
 
@@ -248,12 +290,37 @@ def estimate_command(
         raise InputError(f"--level must lie strictly between 0 and 1, got {level}")
     span = parse_window(window) if window is not None else None
     sensitivities = dict(parse_sensitivity(text) for text in sensitivity)
+    tables = read_tables(records)
+    _check_against_records(tables, span, sensitivities)
     rng = np.random.default_rng(seed) if seed is not None else None
-    results, failures = run_all(records, span, level, sensitivities or None, rng=rng)
+    results, failures = run_all(tables, span, level, sensitivities or None, rng=rng)
     target = Path(records if out_dir is None else out_dir)
     if target.exists() and not target.is_dir():
         raise InputError(f"--out {target} exists and is not a folder")
     target.mkdir(parents=True, exist_ok=True)
     csv_path, json_path = write_estimates(target, results, failures, window=span, level=level)
     print(format_table(results, failures, level), file=out)
+    print(f"\n{explain(results)}", file=out)
     print(f"\nwrote {csv_path} and {json_path}", file=out)
+
+
+def _check_against_records(
+    tables: Mapping[str, pd.DataFrame], window: tuple[int, int] | None, sensitivities: Mapping[str, tuple[float, float]]
+) -> None:
+    """Options that name what the records do not hold are refused before anything runs."""
+    stations = tables["stations"]
+    known = sorted(set(stations["station"]) | set(stations["method"]) | set(tables["checks"]["method"]))
+    for name in sensitivities:
+        if name not in known:
+            raise InputError(f"--sensitivity {name}: no station or check method of that name in the records "
+                             f"(they hold {', '.join(known)})")
+    if window is not None:
+        days = pd.concat([tables["checks"]["day"], tables["encounters"]["day"]])
+        if days.empty:
+            return
+        first, last = int(days.min()), int(days.max())
+        if window[1] < first or window[0] > last or window[0] < 0:
+            raise InputError(f"--window {window[0]}:{window[1]}: the records hold days {first} to {last}")
+        if window[1] > last:
+            raise InputError(f"--window {window[0]}:{window[1]} ends after the records' last day, {last}; "
+                             f"use --window {window[0]}:{last}")

@@ -14,7 +14,7 @@ from ..errors import InputError
 DEFAULT_LEVEL = 0.9
 FRAME_COLUMNS = (
     "method", "target", "window_start", "window_end", "estimate", "observed", "undetected",
-    "se", "ci_low", "ci_high", "level", "interval", "source", "assumptions",
+    "se", "ci_low", "ci_high", "level", "interval", "source", "assumptions", "warnings",
 )
 
 
@@ -51,6 +51,7 @@ class EstimateResult:
     assumptions: tuple[str, ...]
     window: tuple[int, int] | None = None
     parameters: tuple[tuple[str, float], ...] = ()
+    warnings: tuple[str, ...] = ()  # why this estimate deserves less trust than its interval suggests
     undetected: float = field(init=False)
 
     def __post_init__(self) -> None:
@@ -79,6 +80,7 @@ class EstimateResult:
             lines.append("  parameters:  " + ", ".join(f"{k} = {v:.6g}" for k, v in self.parameters))
         lines.append("  assumptions:")
         lines.extend(f"    - {a}" for a in self.assumptions)
+        lines.extend(f"  warning: {w}" for w in self.warnings)
         return "\n".join(lines)
 
     def to_dict(self) -> dict[str, object]:
@@ -98,6 +100,7 @@ class EstimateResult:
             "interval": self.interval,
             "assumptions": list(self.assumptions),
             "parameters": dict(self.parameters),
+            "warnings": list(self.warnings),
         }
 
     @classmethod
@@ -120,6 +123,7 @@ class EstimateResult:
             assumptions=tuple(str(a) for a in data["assumptions"]),
             window=None if window is None else (int(window[0]), int(window[1])),
             parameters=tuple((str(name), float(value)) for name, value in pairs),
+            warnings=tuple(str(w) for w in data.get("warnings", ())),  # type: ignore[union-attr]
         )
 
     def to_frame(self) -> pd.DataFrame:
@@ -141,6 +145,7 @@ class EstimateResult:
                 "interval": [self.interval],
                 "source": [self.source],
                 "assumptions": [" | ".join(self.assumptions)],
+                "warnings": [" | ".join(self.warnings)],
             },
             columns=list(FRAME_COLUMNS),
         )

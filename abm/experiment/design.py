@@ -283,7 +283,9 @@ def _plan_factor(spec: Experiment, i: int, source: Path, world: dict[str, Any]) 
     levels = _bundle_levels(factor, key, source) if factor.path is None else _value_levels(factor, key, source)
     for j, level in enumerate(levels):
         where = f"{key}.levels[{j}]"
-        _check_changes(world, level.changes, source, where, at_path if factor.path else lambda p: f"{where}.set.{p}")
+        prefix = f"level {_shown(level.label)} of factor {_shown(factor.label)}: "
+        _check_changes(world, level.changes, source, where, at_path if factor.path else lambda p: f"{where}.set.{p}",
+                       prefix)
     baseline = _baseline(factor, levels, key, source)
     return PlannedFactor(factor.label, key, factor.path, levels=tuple(levels), baseline=baseline)
 

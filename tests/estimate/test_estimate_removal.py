@@ -16,6 +16,8 @@ from abm.estimate import (
     removal_zippin_from_catches,
 )
 
+from abm.estimate.results import EstimatorCannotRun
+
 from .synthetic import SECONDARY, STATIONS, encounter_rows, observed, stations_table
 
 CARLE_STRUB_EXAMPLE = (38, 26, 12)  # Carle & Strub (1978) [pub]
@@ -130,3 +132,14 @@ def test_all_caught_at_the_first_pass_is_a_degenerate_but_finite_estimate():
     result = removal_zippin_from_catches([50, 0, 0])
     assert (result.estimate, result.se, result.ci_low, result.ci_high) == (50, 0, 50, 50)
     assert removal_carle_strub_from_catches([50, 0, 0]).estimate == 50
+
+
+def test_carle_strub_warns_where_zippin_refuses() -> None:
+    # Zippin (1956): the ML estimate exists only when X > (k-1)T/2, i.e. catches fall on average.
+    # (18, 13, 44): T = 75, X = 13 + 88 = 101 <= 75, so Zippin refuses; Carle & Strub still returns a number.
+    with pytest.raises(EstimatorCannotRun, match="do not fall"):
+        removal_zippin_from_catches((18, 13, 44))
+    result = removal_carle_strub_from_catches((18, 13, 44))
+    assert len(result.warnings) == 1 and "do not fall along the passes (18, 13, 44)" in result.warnings[0]
+    assert "warning: catches do not fall" in result.summary()
+    assert removal_carle_strub_from_catches(CARLE_STRUB_EXAMPLE).warnings == ()

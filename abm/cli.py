@@ -391,7 +391,8 @@ def build_parser() -> argparse.ArgumentParser:
     compare.add_argument("run_a", metavar="RUN_A", help="baseline run directory")
     compare.add_argument("run_b", metavar="RUN_B", help="policy run directory (same seed: common random numbers)")
     compare.add_argument(
-        "--warmup", type=_non_negative_int, default=0, metavar="DAYS", help="days to drop from the start of both runs"
+        "--warmup", type=_non_negative_int, metavar="DAYS",
+        help="days to drop from the start of both runs (default: the runs' own warm-up)",
     )
     compare.set_defaults(func=cmd_compare)
 

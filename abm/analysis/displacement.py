@@ -48,7 +48,9 @@ Crossings against detections
     Crossings per day (truth: attempts whose outcome is ``crossed``) against
     detections per day (observed: encounter rows of kind ``detection``), each
     as a relative change ``after / before - 1`` (rates per day, so windows of
-    unequal length compare). See :func:`read_verdict` for the rule.
+    unequal length compare), each with the interval of its difference from a
+    t-test on weekly means (paired between runs of the same seed); see
+    :mod:`abm.analysis.net_effect` for the test and the verdict's rule.
 Out of the system and hazard
     Persons leaving for a route outside the model per day (truth exits with
     state ``displaced_out``), and the hazard-weighted share of attempts
@@ -78,6 +80,7 @@ from ..observed import read_observed
 from ..records import TRUTH_COLUMNS, TRUTH_DIR, read_truth, write_json
 from ..world import parse_world
 from ..world.schema import AreaSelector, DisplacementAreas, World
+from .net_effect import CrossingsVsDetections, net_effect
 from .policy_table import hazard_weighted_share
 
 TRUTH, OBSERVED = "truth", "observed"
@@ -87,7 +90,8 @@ DISPLACEMENT_FILE = "displacement.json"
 # Share tables, each named by the attempts column it counts by ("option" is point/band/vehicle_class).
 DIMENSIONS = ("option", "point", "band", "vehicle_class", "depth")
 AREAS = ("response", "buffer", "control")
-DEFAULT_TOLERANCE = 0.10
+DIMENSION_WORDS = {"option": "options (point, band and class)", "point": "boarding points", "band": "time bands",
+                   "vehicle_class": "vehicle classes", "depth": "depths"}
 WEIGHTED_FIGURES = (
     "gross_effect", "net_effect", "success_measure", "buffer_displacement_measure", "wdq", "total_net_effect"
 )
@@ -187,40 +191,6 @@ class BeforeAfter:
 
 
 @dataclass(frozen=True)
-class CrossingsVsDetections:
-    """Net effect on crossings (truth) read against the change in detections (observed); see :func:`read_verdict`."""
-
-    crossings_per_day_before: float
-    crossings_per_day_after: float
-    detections_per_day_before: float
-    detections_per_day_after: float
-    crossings_change: float | None
-    detections_change: float | None
-    tolerance: float
-    verdict: str
-    reason: str
-
-    def to_dict(self) -> dict[str, Any]:
-        return {
-            "crossings_per_day": {
-                "source": TRUTH,
-                "before": self.crossings_per_day_before,
-                "after": self.crossings_per_day_after,
-                "relative_change": self.crossings_change,
-            },
-            "detections_per_day": {
-                "source": OBSERVED,
-                "before": self.detections_per_day_before,
-                "after": self.detections_per_day_after,
-                "relative_change": self.detections_change,
-            },
-            "tolerance": self.tolerance,
-            "verdict": self.verdict,
-            "reason": self.reason,
-        }
-
-
-@dataclass(frozen=True)
 class DisplacementResult:
     """Every displacement measure of one comparison; ``before`` is the first window, ``after`` the second."""
 
@@ -287,12 +257,12 @@ class DisplacementResult:
                 flag = w.flag if name == "wdq" else ""
                 add("weighted_displacement", name, w.source, value=getattr(w, name), note=flag)
         c = self.crossings_vs_detections
-        for measure, source, before, after, relative in (
-            ("crossings", TRUTH, c.crossings_per_day_before, c.crossings_per_day_after, c.crossings_change),
-            ("detections", OBSERVED, c.detections_per_day_before, c.detections_per_day_after, c.detections_change),
-        ):
-            add("net_effect", f"{measure}_per_day", source, before, after, after - before)
-            add("net_effect", f"{measure}_relative_change", source, value=relative)
+        for rate in (c.crossings, c.detections):
+            add("net_effect", rate.measure, rate.source, rate.before, rate.after, rate.difference)
+            add("net_effect", f"{rate.measure}_difference_low", rate.source, value=rate.low)
+            add("net_effect", f"{rate.measure}_difference_high", rate.source, value=rate.high)
+            add("net_effect", f"{rate.measure}_p_value", rate.source, value=rate.p_value)
+            add("net_effect", f"{rate.measure}_relative_change", rate.source, value=rate.relative)
         add("net_effect", "verdict", f"{TRUTH}+{OBSERVED}", note=c.verdict)
         for figure in (self.attempts_per_day, self.displaced_out_per_day, self.hazard_weighted_share):
             add("context", figure.measure, figure.source, figure.before, figure.after, figure.change)
@@ -304,10 +274,15 @@ class DisplacementResult:
             self.label,
             f"  before: {self.before.describe()}",
             f"  after:  {self.after.describe()}",
+            "  How far the pattern of attempts moved: TV (total variation) is the share of attempts that would have",
+            "  to move to turn one pattern into the other (0 = the same, 1 = nothing in common); JS (Jensen-Shannon",
+            "  distance, 0 to 1) is a smoother reading of the same, less moved by small options.",
             f"  {'attempt share shift':<44}{'TV':>8}{'JS':>8}",
         ]
         for s in self.shares:
-            lines.append(f"    {s.dimension:<42}{s.total_variation:>8.3f}{s.jensen_shannon:>8.3f}  {s.source}")
+            moved = f"{s.total_variation:.0%} of attempts moved to other {DIMENSION_WORDS[s.dimension]}"
+            lines.append(f"    {s.dimension:<42}{s.total_variation:>8.3f}{s.jensen_shannon:>8.3f}  {s.source}"
+                         f"  ({moved})")
         lines.append(f"  {'shares':<44}{'before':>8}{'after':>8}")
         for s in self.shares:
             if s.dimension == "option":
@@ -317,9 +292,9 @@ class DisplacementResult:
         for figure in (self.attempts_per_day, self.displaced_out_per_day, self.hazard_weighted_share):
             lines.append(_line(figure.measure.replace("_", " "), figure.before, figure.after, figure.source))
         c = self.crossings_vs_detections
-        lines.append(_line("crossings per day", c.crossings_per_day_before, c.crossings_per_day_after, TRUTH))
-        lines.append(_line("detections per day", c.detections_per_day_before, c.detections_per_day_after, OBSERVED))
-        lines.append(f"  verdict: {c.verdict} ({c.reason})  {TRUTH}+{OBSERVED}")
+        lines.append(_line("crossings per day", c.crossings.before, c.crossings.after, TRUTH))
+        lines.append(_line("detections per day", c.detections.before, c.detections.after, OBSERVED))
+        lines.append(f"  verdict: {c.verdict.replace('_', ' ')}: {c.reason}  {TRUTH}+{OBSERVED}")
         if self.weighted is None:
             lines.append(f"  weighted displacement quotient: not computed ({self.areas_from})  {TRUTH}")
         else:
@@ -404,54 +379,6 @@ def _wdq_reading(wdq: float) -> str:
     if wdq >= -1:
         return f"WDQ {wdq:.3f} in [-1, 0): displacement into the buffer, smaller than the direct effect"
     return f"WDQ {wdq:.3f} < -1: displacement into the buffer outweighs the direct effect"
-
-
-def _direction(before: float, after: float, tolerance: float) -> int:
-    """+1 if a rate rose by at least ``tolerance`` (relative), -1 if it fell by at least that, else 0."""
-    if before == 0:
-        return 1 if after > 0 else 0
-    # Rounded so a change of exactly the tolerance counts, whatever the floating-point error of the division.
-    change = round(after / before - 1, 12)
-    return 1 if change >= tolerance else (-1 if change <= -tolerance else 0)
-
-
-def read_verdict(
-    crossings_before: float,
-    crossings_after: float,
-    detections_before: float,
-    detections_after: float,
-    tolerance: float = DEFAULT_TOLERANCE,
-) -> tuple[str, str]:
-    """Read the net effect of a policy from rates per day; returns ``(verdict, reason)``.
-
-    With relative changes ``after / before - 1`` of crossings per day (truth) and
-    detections per day (observed), and a tolerance ``t`` (default 0.10), checked
-    in this order:
-
-    * ``success``: crossings fell by at least ``t`` (fewer people got through,
-      whatever happened to detections);
-    * ``crossings_rose``: crossings rose by at least ``t``;
-    * ``displacement``: detections rose by at least ``t`` while crossings moved
-      by less than ``t`` either way: more are found but as many get through, so
-      the extra finds are attempts moved onto the checks' path, not success;
-    * ``no_clear_change``: neither rate moved by ``t`` (or only detections fell).
-
-    A rate that was zero before counts as risen if it is positive after, else
-    unchanged (a relative change from zero is undefined).
-    """
-    crossings = _direction(crossings_before, crossings_after, tolerance)
-    detections = _direction(detections_before, detections_after, tolerance)
-    moved = (
-        f"crossings/day {crossings_before:.2f} -> {crossings_after:.2f}, "
-        f"detections/day {detections_before:.2f} -> {detections_after:.2f}, tolerance {tolerance:.0%}"
-    )
-    if crossings < 0:
-        return "success", f"fewer got through: {moved}"
-    if crossings > 0:
-        return "crossings_rose", f"more got through: {moved}"
-    if detections > 0:
-        return "displacement", f"more found but as many got through: {moved}"
-    return "no_clear_change", moved
 
 
 # -- reading runs ---------------------------------------------------------------------------------
@@ -591,12 +518,10 @@ def _compare(
     after: Window,
     areas: DisplacementAreas | None,
     areas_from: str,
-    tolerance: float,
     notes: list[str],
+    paired: bool = False,
 ) -> DisplacementResult:
-    """Every measure for two windows; ``first`` supplies the option space and hazards."""
-    if not tolerance > 0:
-        raise DisplacementInputError(f"tolerance: expected a relative change above 0, got {tolerance}")
+    """Every measure for two windows; ``first`` supplies the option space and hazards; ``paired`` days pair up."""
     att_b, att_a = _in_window(first.attempts, before), _in_window(second.attempts, after)
     for frame, window, side in ((att_b, before, "before"), (att_a, after, "after")):
         if frame["persons"].sum() == 0:
@@ -613,16 +538,20 @@ def _compare(
         frame = _in_window(run.exits, window)
         return per_day(frame[frame["state"] == "displaced_out"], window)
 
-    crossings = (
-        per_day(att_b[att_b["outcome"] == "crossed"], before),
-        per_day(att_a[att_a["outcome"] == "crossed"], after),
-    )
+    def daily(frame: pd.DataFrame, window: Window, count: str | None) -> np.ndarray:
+        days = frame["day"] if count is None else frame.loc[frame.index, "day"]
+        values = frame[count] if count is not None else pd.Series(1, index=frame.index)
+        per = values.groupby(days).sum()
+        return per.reindex(range(window.start_day, window.end_day), fill_value=0).to_numpy(float)
+
+    crossed_b, crossed_a = att_b[att_b["outcome"] == "crossed"], att_a[att_a["outcome"] == "crossed"]
     # One encounter row is one person found, so the row count is persons.
-    detections = (
-        len(_in_window(first.detections, before)) / before.days,
-        len(_in_window(second.detections, after)) / after.days,
+    effect = net_effect(
+        (daily(crossed_b, before, "persons"), daily(crossed_a, after, "persons")),
+        (daily(_in_window(first.detections, before), before, None),
+         daily(_in_window(second.detections, after), after, None)),
+        paired=paired,
     )
-    verdict, reason = read_verdict(*crossings, *detections, tolerance=tolerance)
     hazard = {p.name: p.hazard for p in first.world.boarding_points}
     depth_hazard = {d.name: d.hazard for d in first.world.depths}
     return DisplacementResult(
@@ -633,17 +562,7 @@ def _compare(
         shares=shares,
         weighted=weighted,
         areas_from=areas_from,
-        crossings_vs_detections=CrossingsVsDetections(
-            crossings_per_day_before=crossings[0],
-            crossings_per_day_after=crossings[1],
-            detections_per_day_before=detections[0],
-            detections_per_day_after=detections[1],
-            crossings_change=_relative(*crossings),
-            detections_change=_relative(*detections),
-            tolerance=tolerance,
-            verdict=verdict,
-            reason=reason,
-        ),
+        crossings_vs_detections=effect,
         attempts_per_day=BeforeAfter("attempts_per_day", TRUTH, per_day(att_b, before), per_day(att_a, after)),
         displaced_out_per_day=BeforeAfter(
             "displaced_out_per_day", TRUTH, exits_per_day(first, before), exits_per_day(second, after)
@@ -654,10 +573,6 @@ def _compare(
         ),
         notes=tuple(notes),
     )
-
-
-def _relative(before: float, after: float) -> float | None:
-    return after / before - 1 if before else None
 
 
 def _json_safe(value: Any) -> Any:
@@ -680,7 +595,6 @@ def displacement_within_run(
     run_dir: str | Path,
     day: int | None = None,
     areas: DisplacementAreas | None = None,
-    tolerance: float = DEFAULT_TOLERANCE,
 ) -> DisplacementResult:
     """Compare the days before ``day`` with the days from it, in one run.
 
@@ -696,7 +610,7 @@ def displacement_within_run(
     if day is None:
         if not world.interventions:
             raise DisplacementInputError(
-                f"{run.path / WORLD_FILE}: interventions: none defined; pass the day to compare around"
+                f"{run.path / WORLD_FILE}: interventions: none defined, so there is no day to compare around"
             )
         day = min(i.day for i in world.interventions)
     start = run.warmup_days
@@ -712,29 +626,32 @@ def displacement_within_run(
     areas, areas_from = _choose_areas(areas, [run])
     return _compare(
         "within_run", label, run, run, Window(str(run.path), start, day), Window(str(run.path), day, run.days),
-        areas, areas_from, tolerance, notes,
+        areas, areas_from, notes,
     )
 
 
 def displacement_between_runs(
     run_a: str | Path,
     run_b: str | Path,
-    warmup: int = 0,
+    warmup: int | None = None,
     areas: DisplacementAreas | None = None,
-    tolerance: float = DEFAULT_TOLERANCE,
 ) -> DisplacementResult:
     """Compare a baseline run (A, "before") with a policy run (B, "after"), dropping ``warmup`` days of each.
 
-    Use the same seed for both (common random numbers) so differences are the
-    policy's, not noise; a note says when the seeds differ. ``areas`` default to
-    run B's world ``displacement`` section, then run A's.
+    ``warmup`` None drops the runs' own warm-up (the longer of the two, from
+    their manifests). Use the same seed for both (common random numbers): the
+    days then pair up and the test is paired; a note says when the seeds differ.
+    ``areas`` default to run B's world ``displacement`` section, then run A's.
     """
-    if warmup < 0:
-        raise DisplacementInputError(f"warmup: expected 0 or more days, got {warmup}")
     first, second = _read_run(run_a), _read_run(run_b)
+    if warmup is None:
+        warmup = max(first.warmup_days, second.warmup_days)
+    if warmup < 0:
+        raise DisplacementInputError(f"--warmup: expected 0 or more days, got {warmup}")
     for run in (first, second):
         if warmup >= run.days:
-            raise DisplacementInputError(f"{run.path}: a warm-up of {warmup} days leaves none of its {run.days} days")
+            raise DisplacementInputError(f"{run.path}: a warm-up of {warmup} days leaves none of its {run.days} days; "
+                                         f"give a shorter --warmup")
     notes: list[str] = []
     for run in (first, second):
         if run.warmup_days > warmup:
@@ -746,9 +663,10 @@ def displacement_between_runs(
             notes.append(f"the runs' worlds differ in their {label}; shares use run A's option space")
     areas, areas_from = _choose_areas(areas, [second, first])
     label = f"Displacement between runs: baseline {first.path} vs policy {second.path}"
+    paired = first.seed is not None and first.seed == second.seed and first.days == second.days
     return _compare(
         "between_runs", label, first, second, Window(str(first.path), warmup, first.days),
-        Window(str(second.path), warmup, second.days), areas, areas_from, tolerance, notes,
+        Window(str(second.path), warmup, second.days), areas, areas_from, notes, paired,
     )
 
 

@@ -98,7 +98,7 @@ import pandas as pd
 from pydantic import Field
 from scipy import optimize, stats
 
-from ..experiment.compare import mean_interval
+from ..experiment.compare import bounded_mean_interval, figure_scale, mean_interval
 from ..experiment.design import read_project_file
 from ..errors import InputError
 from ..experiment.executors import Executor, choose_executor, make_executor
@@ -557,8 +557,8 @@ def _select(
         row: dict[str, Any] = {"candidate": label, "named": label in named, "replications": len(seeds)}
         row.update({f"set:{path}": value for path, value in changes[k].items()})
         for figure in figures:
-            row[f"{figure}_mean"], row[f"{figure}_low"], row[f"{figure}_high"] = mean_interval(
-                values[k, :, index[figure]], settings.level
+            row[f"{figure}_mean"], row[f"{figure}_low"], row[f"{figure}_high"] = bounded_mean_interval(
+                values[k, :, index[figure]], figure_scale(figure), settings.level
             )
         broken = []
         for c in problem.constraints:

@@ -23,6 +23,52 @@ from .single import SUMMARY_SOURCES
 
 COMPARED_FIGURES = ("detections", "crossings", "displaced_out", "time_in_port_p95_min", "missed_departure_share")
 CONFIDENCE = 0.95
+MIN_REPLICATIONS = 5  # below this, intervals over replications are shown with a warning (common practice, no source)
+DETERMINISTIC = frozenset({"staff_hours"})  # set by the roster, the same in every replication
+# Figures that cannot be negative (counts, times, rates) and shares bounded by 0 and 1; every summary figure is one.
+NON_NEGATIVE = frozenset({*SUMMARY_SOURCES, "crossings_after_checks", "truth_past_checks", "est_crossings",
+                          "on_time_per_day"})
+INTERVAL_WORDS = {
+    "log": "t-interval on the log scale (counts and times stay above zero)",
+    "logit": "t-interval on the logit scale (shares stay between 0 and 1)",
+    "t": "Student t-interval",
+}
+
+
+def figure_scale(figure: str) -> str:
+    """The scale a figure's mean gets its interval on: logit for shares, log for other non-negative figures, else t."""
+    if figure.endswith("_share"):
+        return "logit"
+    return "log" if figure in NON_NEGATIVE else "t"
+
+
+def bounded_mean_interval(
+    values: Sequence[float] | np.ndarray, scale: str = "t", confidence: float = CONFIDENCE
+) -> tuple[float, float, float]:
+    """Mean and an interval of the mean that stays within what the quantity can take.
+
+    ``scale`` "log": the log-normal interval used for abundance estimates (Burnham
+    et al. 1987, fish survival experiments; Chao 1987 uses the same form; from
+    memory), mean / C to mean x C with C = exp(t sqrt(ln(1 + cv^2))), cv = SE / mean; "logit": the
+    delta-method interval on the logit scale, expit(logit m +- t SE / (m (1 - m)));
+    "t": the plain Student t-interval. A mean on the bound (all zeros, all ones)
+    or with no spread gets the mean as both ends; fewer than two values, NaN ends.
+    """
+    if scale == "t":
+        return mean_interval(values, confidence)
+    x = np.asarray(values, dtype=float)
+    x = x[np.isfinite(x)]
+    if x.size < 2:
+        return (float(x.mean()) if x.size else math.nan), math.nan, math.nan
+    mean, se = float(x.mean()), float(x.std(ddof=1)) / math.sqrt(x.size)
+    t = float(special.stdtrit(x.size - 1, 0.5 + confidence / 2))
+    if se == 0 or mean <= 0 or (scale == "logit" and mean >= 1):
+        return mean, mean, mean
+    if scale == "log":
+        c = math.exp(t * math.sqrt(math.log1p((se / mean) ** 2)))
+        return mean, mean / c, mean * c
+    centre, spread = math.log(mean / (1 - mean)), t * se / (mean * (1 - mean))
+    return mean, float(special.expit(centre - spread)), float(special.expit(centre + spread))
 
 
 def mean_interval(values: Sequence[float] | np.ndarray, confidence: float = CONFIDENCE) -> tuple[float, float, float]:
@@ -99,7 +145,11 @@ def compare_points(
         for figure in figures:
             if figure not in group:
                 continue
-            mean, low, high = mean_interval(group[figure].to_numpy(dtype=float), confidence)
+            values = group[figure].to_numpy(dtype=float)
+            mean, low, high = bounded_mean_interval(values, figure_scale(figure), confidence)
+            few = np.isfinite(values).sum() < MIN_REPLICATIONS and figure not in DETERMINISTIC
+            if few and low == high:  # no spread over a few replications says nothing about the next one
+                low = high = math.nan
             row: dict[str, Any] = {"point": point}
             row.update({f: group[f].iloc[0] for f in factors})
             row.update(
@@ -110,6 +160,7 @@ def compare_points(
                     "mean": mean,
                     "low": low,
                     "high": high,
+                    "interval": figure_scale(figure),
                     "compared_with": base,
                     "difference": math.nan,
                     "difference_low": math.nan,
@@ -119,10 +170,12 @@ def compare_points(
             )
             if reference is not None:
                 diff, dlow, dhigh, pairs = paired_difference(group[figure], reference[figure], confidence)
+                if dlow == dhigh and pairs < MIN_REPLICATIONS and figure not in DETERMINISTIC:
+                    dlow = dhigh = math.nan  # the same difference in every one of a few replications is not exact
                 row.update({"difference": diff, "difference_low": dlow, "difference_high": dhigh, "pairs": pairs})
             rows.append(row)
     columns = [
-        "point", *factors, "figure", "source", "runs", "mean", "low", "high",
+        "point", *factors, "figure", "source", "runs", "mean", "low", "high", "interval",
         "compared_with", "difference", "difference_low", "difference_high", "pairs",
     ]  # fmt: skip
     table = pd.DataFrame(rows, columns=columns)
@@ -154,9 +207,15 @@ def format_comparison(table: pd.DataFrame, factors: Sequence[str], confidence: f
     """The comparison as a readable text table, one block per design point."""
     pct = f"{confidence:.0%}"
     lines = [
-        f"Per design point: mean and {pct} interval over replications; difference against the compared point,",
-        "paired by replication (common random numbers; t-interval on the per-replication differences).",
+        f"Per design point: mean and {pct} interval over replications ({INTERVAL_WORDS['log']}; for shares a",
+        f"{INTERVAL_WORDS['logit']}); difference against the compared point, paired by replication (common random",
+        "numbers; Student t-interval on the per-replication differences).",
     ]
+    replications = int(table["runs"].min()) if len(table) else 0
+    if replications < MIN_REPLICATIONS:
+        lines.append(f"warning: only {replications} replication{'s' if replications != 1 else ''} per design point: "
+                     f"these intervals are unreliable; run at least {MIN_REPLICATIONS} (replications: in the "
+                     "experiment file)")
     baselines = set(table["compared_with"].dropna().astype(int))
     for point, block in table.groupby("point", sort=True):
         first = block.iloc[0]

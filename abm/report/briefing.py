@@ -30,7 +30,7 @@ import pandas as pd
 from ..analysis.estimator_check import bias_sentence, describe_quantity
 from ..analysis.policy_table import DelayLimits
 from ..errors import InputError
-from ..experiment.compare import mean_interval
+from ..experiment.compare import INTERVAL_WORDS, MIN_REPLICATIONS, bounded_mean_interval, figure_scale
 from ..estimate import frequency, removal, twosample
 from ..estimate.expansion import EXPANSION
 from ..estimate.expansion import SOURCE as EXPANSION_SOURCE
@@ -402,7 +402,7 @@ def _sampled_headlines(ctx: Context) -> list[Item]:
                          ("crossings_after_checks", "crossings by people who boarded after the last check")):
         if figure not in runs:
             continue
-        mean, low, high = mean_interval(runs[figure].to_numpy(float))
+        mean, low, high = bounded_mean_interval(runs[figure].to_numpy(float), figure_scale(figure))
         items.append(Item(
             f"Across the {len(runs)} runs of the design, a run of {days} days has {with_interval(mean, low, high)} "
             f"{what} on average (range {number(runs[figure].min())} to {number(runs[figure].max())}; "
@@ -521,12 +521,19 @@ def section_comparison(ctx: Context) -> Section:
         blocks.append(_point_table(ctx))
         return Section("comparison", "Comparison of design points", tuple(blocks))
     blocks.append(Paragraph(
-        f"Each cell: the mean over replications, its 95% interval, and (Δ) the paired difference against "
-        f"{ctx.baseline_name} with its 95% interval (t-interval on the per-replication differences; common random "
-        f"numbers). Counts are over the {b.days} summarised days. Detections, time in port, missed departures and "
+        f"Each cell: the mean over replications, its 95% interval ({INTERVAL_WORDS['log']}; for shares a "
+        f"{INTERVAL_WORDS['logit']}), and (Δ) the paired difference against "
+        f"{ctx.baseline_name} with its 95% interval (Student t-interval on the per-replication differences; common "
+        f"random numbers). Counts are over the {b.days} summarised days. Detections, time in port, missed departures and "
         "staff-hours are observed records; crossings, displacement out of the system and hazard-weighted boarding "
         "are model truth. Hazard-weighted boarding is the attempt-weighted mean hazard score (0 to 1) of where "
         "people boarded and how deep they hid (the boarding point's hazard plus the depth's, at most 1)."))
+    if b.replications < MIN_REPLICATIONS:
+        blocks.append(Paragraph(
+            f"Only {b.replications} replication{'s' if b.replications != 1 else ''} per policy: these intervals are "
+            f"unreliable, and a difference that happens to be the same in every replication is shown without an "
+            f"interval rather than as exact (staff-hours, set by the roster, excepted). Run at least "
+            f"{MIN_REPLICATIONS} before acting on any figure.", lead="Warning."))
     blocks.append(Paragraph(_proxy_words(ctx), lead="The estimate row."))
     for index, scenario in enumerate(ctx.scenario_points):
         blocks.append(_comparison_table(ctx, scenario, index))
@@ -967,7 +974,9 @@ def section_method(ctx: Context, brief_argv: Sequence[str]) -> Section:
         key = next((k for k in sources if method == k or method.startswith(f"{k} at '")), None)
         items.append(Item(f"{method}: {sources.get(key, 'see abm.estimate') if key else 'see abm.estimate'}"))
     items.append(Item("Interval coverage: Wilson (1927) score interval; relative bias: delta method for a ratio of "
-                      "means. Paired differences: Student-t interval on per-replication differences."))
+                      "means. Means over replications: log-normal interval for counts and times (Burnham et al. 1987), "
+                      "logit-scale delta-method interval for shares. Paired differences: Student-t interval on "
+                      "per-replication differences."))
     if any(f.is_range for f in b.factors):
         items.append(Item("Sensitivity: partial rank correlation (Marino et al. 2008); scenario discovery: PRIM "
                           "(Friedman & Fisher 1999)."))

@@ -23,7 +23,7 @@ from matplotlib.backends.backend_agg import FigureCanvasAgg
 from matplotlib.figure import Figure
 from matplotlib.ticker import NullFormatter
 
-from ..experiment.compare import mean_interval
+from ..experiment.compare import bounded_mean_interval
 from .document import FigureBlock, number
 
 DPI = 110
@@ -190,13 +190,14 @@ class DailyLine:
 
 
 def _band(frame: pd.DataFrame, smooth: int, window: tuple[int, int]) -> pd.DataFrame:
-    """Per-day mean and 95% t-interval over replications in ``window``, after a trailing ``smooth``-day mean
+    """Per-day mean and 95% interval (log scale: daily counts stay above zero) over replications in ``window``,
+    after a trailing ``smooth``-day mean
     per run (taken over the whole run, so the window's first days average as many days as the rest)."""
     wide = frame.pivot(index="day", columns="replication", values="value").sort_index()
     if smooth > 1:
         wide = wide.rolling(smooth, min_periods=1).mean()
     wide = wide.loc[window[0] : window[1]]
-    rows = [mean_interval(wide.loc[day].to_numpy()) for day in wide.index]
+    rows = [bounded_mean_interval(wide.loc[day].to_numpy(), "log") for day in wide.index]
     return pd.DataFrame(rows, index=wide.index, columns=["mean", "low", "high"])
 
 
@@ -269,7 +270,7 @@ def estimator_figure(
                 y = len(rows) - 1 - i + offsets[k]
                 ax.scatter(values, y + rng.uniform(-0.05, 0.05, values.size), s=8, color=colour, alpha=0.35,
                            marker=marker, linewidths=0)
-                mean, low, high = mean_interval(values)
+                mean, low, high = bounded_mean_interval(values, "log")  # ratios: drawn on a log axis
                 err = [[mean - low], [high - mean]] if math.isfinite(low) and low > 0 else None
                 ax.errorbar(mean, y, xerr=err, fmt=marker, color=colour, markersize=6, capsize=2,
                             label=None if labelled else _t(f"{behaviour} behaviour"))

@@ -23,11 +23,11 @@ from abm.analysis.displacement import (
     displacement_between_runs,
     displacement_within_run,
     jensen_shannon,
-    read_verdict,
     total_variation,
     weighted_displacement,
     write_displacement,
 )
+from abm.analysis.net_effect import RateChange, rate_change, read_verdict
 from abm.cli import main
 from abm.errors import InputError
 from abm.experiment.single import run_to_directory
@@ -170,22 +170,43 @@ def test_distances_by_hand_and_scipy():
     assert jensen_shannon(a, b) == pytest.approx(jensenshannon(a, b, base=2))
 
 
+def _rate(low: float, high: float) -> RateChange:
+    return RateChange("x_per_day", "truth", 10.0, 10.0 + (low + high) / 2, (low + high) / 2, low, high, 0.5, 4, 7, True)
+
+
 @pytest.mark.parametrize(
     ("crossings", "detections", "verdict"),
     [
-        ((10, 10), (2, 5), "displacement"),  # more found, as many through
-        ((10, 9.5), (2, 3), "displacement"),  # crossings fell by less than the tolerance
-        ((10, 5), (2, 5), "success"),
-        ((10, 5), (2, 1), "success"),
-        ((10, 12), (2, 5), "crossings_rose"),
-        ((10, 10), (2, 2), "no_clear_change"),
-        ((10, 10), (2, 1), "no_clear_change"),
-        ((10, 9), (2, 3), "success"),  # exactly the 10 % tolerance counts
-        ((10, 10), (0, 1), "displacement"),  # detections from none
+        ((-1, 1), (1, 3), "displacement"),  # more found, no fewer through beyond chance
+        ((-5, -1), (1, 3), "success"),
+        ((-5, -1), (-3, -1), "success"),
+        ((1, 3), (1, 3), "crossings_rose"),
+        ((-1, 1), (-1, 1), "no_clear_change"),
+        ((-1, 1), (-3, -1), "no_clear_change"),
     ],
 )
 def test_verdict_rule(crossings, detections, verdict):
-    assert read_verdict(*crossings, *detections, tolerance=0.10)[0] == verdict
+    assert read_verdict(_rate(*crossings), _rate(*detections))[0] == verdict
+
+
+def test_rate_change_is_the_paired_or_welch_t_test_on_weekly_means():
+    # Reference: scipy.stats.ttest_rel / ttest_ind(equal_var=False) on the weekly means (Law, Simulation Modeling
+    # and Analysis, batch means; from memory), and scipy's t interval.
+    from scipy import stats
+
+    rng = np.random.default_rng(4)
+    before, after = rng.poisson(10, 28).astype(float), rng.poisson(8, 28).astype(float)
+    weeks_b, weeks_a = before.reshape(4, 7).mean(1), after.reshape(4, 7).mean(1)
+    paired = rate_change("crossings_per_day", "truth", before, after, paired=True)
+    assert paired.p_value == pytest.approx(stats.ttest_rel(weeks_a, weeks_b).pvalue)
+    low, high = stats.t.interval(0.95, 3, loc=(weeks_a - weeks_b).mean(), scale=stats.sem(weeks_a - weeks_b))
+    assert (paired.low, paired.high) == pytest.approx((low, high))
+    welch = rate_change("crossings_per_day", "truth", before, after[:21], paired=False)
+    assert welch.p_value == pytest.approx(stats.ttest_ind(after[:21].reshape(3, 7).mean(1), weeks_b,
+                                                          equal_var=False).pvalue)
+    short = rate_change("crossings_per_day", "truth", before[:10], after[:10], paired=True)
+    assert short.block_days == 1 and short.blocks == 10  # under two weeks: single days
+    assert "paired t-test on 4 weekly means" in paired.describe()
 
 
 # ---------------------------------------------------------------- synthetic runs
@@ -238,9 +259,9 @@ def test_verdict_displacement_when_detections_rise_and_crossings_stay_flat(tmp_p
     run = fake_run(tmp_path / "r", attempts, detections=detections)
     result = displacement_within_run(run, day=5)
     c = result.crossings_vs_detections
-    assert (c.crossings_per_day_before, c.crossings_per_day_after) == (10, 10)
-    assert (c.detections_per_day_before, c.detections_per_day_after) == (2, 5)
-    assert c.crossings_change == 0 and c.detections_change == pytest.approx(1.5)
+    assert (c.crossings.before, c.crossings.after) == (10, 10)
+    assert (c.detections.before, c.detections.after) == (2, 5)
+    assert c.crossings.relative == 0 and c.detections.relative == pytest.approx(1.5)
     assert c.verdict == "displacement"
 
 
@@ -250,7 +271,7 @@ def test_verdict_success_when_crossings_fall(tmp_path):
     detections = {d: 6 for d in range(10, 20)}
     result = displacement_within_run(fake_run(tmp_path / "r", attempts, detections=detections))
     assert result.crossings_vs_detections.verdict == "success"
-    assert result.crossings_vs_detections.crossings_change == pytest.approx(-0.6)
+    assert result.crossings_vs_detections.crossings.relative == pytest.approx(-0.6)
     assert result.attempts_per_day.before == result.attempts_per_day.after == 10
 
 
@@ -354,7 +375,7 @@ def test_real_runs_give_finite_measures(real_runs):
         assert 0 <= s.total_variation <= 1 and 0 <= s.jensen_shannon <= 1
         assert sum(s.before) == pytest.approx(1) and sum(s.after) == pytest.approx(1)
     assert 0 < result.hazard_weighted_share.before < 1
-    assert result.crossings_vs_detections.crossings_per_day_before > 0
+    assert result.crossings_vs_detections.crossings.before > 0
     assert any("seeds differ" in n for n in result.notes)
     json.dumps(data, allow_nan=False)
 
@@ -364,8 +385,19 @@ def test_cli_compare(real_runs, capsys):
     assert main(["compare", str(a), str(b), "--warmup", "2"]) == 0
     out = capsys.readouterr().out
     assert "verdict:" in out and "days 2-19" in out
+    assert "Welch t-test on 2 weekly means" in out  # different seeds: unpaired
+    assert "TV (total variation) is the share of attempts that would have" in out
     lines = {line.split("  ")[1]: line for line in out.splitlines() if "per day" in line}
     assert lines["detections per day"].endswith("observed") and lines["crossings per day"].endswith("truth")
+
+
+def test_cli_compare_leaves_out_the_runs_warm_up_by_default(tmp_path, capsys):
+    world = load_world(DEMO)
+    for name in ("a", "b"):
+        run_to_directory(world, "hash", 20, 3, tmp_path / name, warmup=4)
+    assert main(["compare", str(tmp_path / "a"), str(tmp_path / "b")]) == 0
+    out = capsys.readouterr().out
+    assert "days 4-23 (20 days)" in out and "paired t-test on 2 weekly means" in out  # same seed: paired
 
 
 def test_cli_compare_missing_run_dir(real_runs, tmp_path, capsys):

@@ -83,3 +83,39 @@ def test_factorless_experiment_is_just_replications(tmp_path: Path, make_experim
     result = run_batch(make_experiment(experiment(days=2, factors=[])), tmp_path / "out", show_progress=False)
     assert len(result.summary) == 2 and result.comparison["compared_with"].isna().all()
     assert "(no factors)" in format_comparison(result.comparison, [])
+
+
+def test_bounded_intervals_stay_within_what_the_quantity_can_take() -> None:
+    from abm.experiment.compare import bounded_mean_interval
+
+    counts = np.array([0.0, 0.0, 1.0, 9.0])  # skewed counts: the t-interval goes below zero
+    assert mean_interval(counts)[1] < 0
+    mean, low, high = bounded_mean_interval(counts, "log")
+    # log-normal interval (Burnham et al. 1987; from memory): mean / C, mean x C, C = exp(t sqrt(ln(1 + cv^2)))
+    t = stats.t.ppf(0.975, 3)
+    c = np.exp(t * np.sqrt(np.log(1 + (stats.sem(counts) / counts.mean()) ** 2)))
+    assert (mean, low, high) == pytest.approx((2.5, 2.5 / c, 2.5 * c))
+    shares = np.array([0.0, 0.001, 0.004])
+    assert mean_interval(shares)[1] < 0
+    mean, low, high = bounded_mean_interval(shares, "logit")
+    # delta method on the logit scale (e.g. Agresti, Categorical Data Analysis, 3rd ed., section 16.1; from memory)
+    spread = stats.t.ppf(0.975, 2) * stats.sem(shares) / (mean * (1 - mean))
+    assert low == pytest.approx(1 / (1 + np.exp(-(np.log(mean / (1 - mean)) - spread))))
+    assert 0 < low < mean < high < 1
+    assert bounded_mean_interval([0.0, 0.0, 0.0], "log") == (0.0, 0.0, 0.0)
+
+
+def test_zero_spread_over_few_replications_is_not_exact() -> None:
+    from abm.experiment.compare import compare_points
+
+    summary = pd.DataFrame({
+        "point": [0, 0, 0, 1, 1, 1], "replication": [0, 1, 2] * 2, "policy": ["a"] * 3 + ["b"] * 3,
+        "crossings": [5.0, 7.0, 9.0, 4.0, 6.0, 8.0],  # the same difference (-1) in each of 3 replications
+        "staff_hours": [100.0] * 3 + [120.0] * 3,  # set by the roster: the same every replication
+    })
+    table = compare_points(summary, ["policy"], {0: None, 1: 0}, ["crossings", "staff_hours"]).set_index("figure")
+    row = table[table["point"] == 1]
+    assert row.loc["crossings", "difference"] == -1 and np.isnan(row.loc["crossings", "difference_low"])
+    assert row.loc["staff_hours", "difference_low"] == row.loc["staff_hours", "difference_high"] == 20
+    assert "warning: only 3 replications per design point" in format_comparison(compare_points(
+        summary, ["policy"], {0: None, 1: 0}, ["crossings"]), ["policy"])

@@ -160,6 +160,22 @@ def _t_interval(values: pd.Series) -> tuple[float, float, float]:
     return float(x.mean()), float(x.mean() - half), float(x.mean() + half)
 
 
+def _bounded_interval(values: pd.Series, figure: str) -> tuple[float, float, float]:
+    """Mean and 95% interval as the briefing should show it, written out here rather than taken from abm:
+    log-normal (Burnham et al. 1987, from memory) for counts and times, logit delta method for shares; with
+    fewer than 5 replications a zero spread gives no interval, except for staff-hours (set by the roster)."""
+    x = values.astype(float).dropna().to_numpy()
+    mean, se = float(x.mean()), x.std(ddof=1) / math.sqrt(len(x))
+    t = stats.t.ppf(0.975, len(x) - 1)
+    if se == 0 or mean <= 0 or mean >= 1 and figure.endswith("_share"):
+        return (mean, mean, mean) if figure == "staff_hours" or len(x) >= 5 else (mean, math.nan, math.nan)
+    if figure.endswith("_share"):
+        logit, spread = math.log(mean / (1 - mean)), t * se / (mean * (1 - mean))
+        return mean, 1 / (1 + math.exp(-(logit - spread))), 1 / (1 + math.exp(-(logit + spread)))
+    c = math.exp(t * math.sqrt(math.log(1 + (se / mean) ** 2)))
+    return mean, mean / c, mean * c
+
+
 def _close(a: Any, b: float) -> bool:
     if a in ("nan", "", None):
         return not math.isfinite(b)
@@ -232,8 +248,9 @@ def test_comparison_table_equals_a_pandas_computation(briefed: Briefed) -> None:
     for cell in cells:
         point, figure = int(cell["data-point"]), cell["data-figure"]
         values = runs.loc[runs["point"] == point].set_index("replication")[figure]
-        mean, low, high = _t_interval(values)
+        mean, low, high = _bounded_interval(values, figure)
         assert _close(cell["data-mean"], mean), (figure, point)
+        assert not float(cell["data-low"]) < 0, (figure, point)  # no count or share below what it can take
         assert _close(cell["data-low"], low) and _close(cell["data-high"], high), (figure, point)
         printed, digits = _parse_number(cell["text"].split("\n")[0])  # the cell's first line is the mean
         scale = 100 if figure == "missed_departure_share" else 1  # printed as a percentage
@@ -245,8 +262,16 @@ def test_comparison_table_equals_a_pandas_computation(briefed: Briefed) -> None:
             continue
         other = runs.loc[runs["point"] == base].set_index("replication")[figure]
         diff, dlow, dhigh = _t_interval(values - other)
+        if dlow == dhigh and figure != "staff_hours":  # the same in 3 replications is not exact
+            dlow = dhigh = math.nan
         assert _close(cell["data-difference"], diff), (figure, point)
         assert _close(cell["data-difference-low"], dlow) and _close(cell["data-difference-high"], dhigh)
+
+
+def test_three_replications_carry_a_plain_warning(briefed: Briefed) -> None:
+    md = briefed.markdown.replace("\\", "")
+    comparison = md[md.index("Policy comparison"):]
+    assert "Only 3 replications per policy: these intervals are unreliable" in comparison
 
 
 def test_derived_figures_are_recomputed_from_the_runs(briefed: Briefed) -> None:

@@ -71,13 +71,6 @@ def cmd_check(args: argparse.Namespace) -> int:
 REPO_WORLDS = Path(__file__).resolve().parent.parent / "worlds"
 
 
-def _progress_bar(total: int, label: str):
-    """A progress bar on a terminal, nothing when output is not a terminal."""
-    from tqdm import tqdm
-
-    return tqdm(total=total, desc=label, unit="day", disable=not sys.stderr.isatty(), leave=False)
-
-
 def print_summary(summary: dict, title: str) -> None:
     """A short readable table of a run's headline figures, each labelled with its record set."""
     print(title)
@@ -100,7 +93,9 @@ def _run_world(world_path: Path, days: int, seed: int, out: Path, argv: list[str
 
     for warning in load_report(world).warnings:
         print_warning(warning)
-    with _progress_bar(days, "days") as bar:
+    from .progress import progress
+
+    with progress(days, "days", "simulating") as bar:
         summary = run_to_directory(world, file_hash(world_path), days, seed, out, command=argv, progress=bar.update)
     print_summary(summary, f"{world.name}: {days} days, seed {seed} -> {out}")
     if any(0 < iv.day < days for iv in world.interventions):
@@ -179,9 +174,10 @@ def cmd_demo(args: argparse.Namespace) -> int:
         print(f"undertow demo: {result.failed} runs failed; the briefing covers the rest (errors in {batch_out})",
               file=sys.stderr)
     print("undertow demo: 3/3 writing the briefing", flush=True)
-    _, paths = brief(batch_out, argv=["undertow", "brief", str(batch_out)])
+    briefing, paths = brief(batch_out, argv=["undertow", "brief", str(batch_out)], report=_brief_stage)
     print(f"Briefing: {paths['html']}")
     print(f"          {paths['md']} (figures in {batch_out / 'figures'})")
+    print(f"\nBottom line (model estimates, not counts). {briefing.document.bottom_line}")
     return EXIT_FAULT if result.failed else EXIT_OK
 
 
@@ -224,10 +220,15 @@ def cmd_brief(args: argparse.Namespace) -> int:
 
     formats = parse_formats(args.format)
     limits = DelayLimits(args.max_delay_increase / 100, args.max_missed_increase)
-    _, paths = brief(args.out, args.baseline, formats, limits, ["undertow", *args.argv])
+    briefing, paths = brief(args.out, args.baseline, formats, limits, ["undertow", *args.argv], _brief_stage)
+    print(f"Bottom line. {briefing.document.bottom_line}\n")
     for path in paths.values():
         print(path)
     return EXIT_OK
+
+
+def _brief_stage(stage: str) -> None:
+    print(f"briefing: {stage}", file=sys.stderr, flush=True)
 
 
 def cmd_compare(args: argparse.Namespace) -> int:

@@ -117,6 +117,7 @@ BENEFIT, DELAY = "detections", "time_in_port_p95_min"  # the frontier's axes
 REPORTED = (BENEFIT, DELAY, "crossings", "check_hours")  # figures every finalist's row carries
 # Spawn-key purposes: the search's common seeds, the selection's fresh seeds, differential evolution's own draws.
 _SEARCH, _FRESH, _EVOLUTION = 0x5EA, 0xF5E, 0xDE
+CURRENT = "current"  # the name given to the world as it stands when the file names no such policy
 INVALID = 1e12  # objective and violation of a candidate whose world is invalid or whose runs failed
 CAUTION = (
     "Model estimates, not counts: the search compares policies inside this model, with its invented numbers. "
@@ -356,6 +357,7 @@ class PolicySearchResult:
                     f"  {row['candidate']:<18} {p.objective} {row[f'{p.objective}_mean']:>9.4g}  difference {diff:<28} "
                     f"{row['verdict']}"
                 )
+                lines.append(f"    settings: {_settings(row)}")
         lines += [
             "",
             f"Detections/delay frontier: {len(self.frontier)} of {len(self.history)} searched candidates are not "
@@ -376,16 +378,30 @@ class PolicySearchResult:
         h = self.history
         ax.scatter(h[DELAY], h[BENEFIT], s=12, c=np.where(h["feasible"], "#4c72b0", "#bbbbbb"), label="searched")
         f = self.frontier.sort_values(DELAY)
-        ax.plot(f[DELAY], f[BENEFIT], "-", color="#dd8452", label="frontier")
+        ax.plot(f[DELAY], f[BENEFIT], "-", color="#dd8452", label="frontier of the search (search seeds)")
         sel = self.selection
-        ax.scatter(sel[f"{DELAY}_mean"], sel[f"{BENEFIT}_mean"], marker="x", color="#333333", label="finalists (fresh seeds)")
-        best = sel[sel["candidate"] == self.best]
-        ax.scatter(best[f"{DELAY}_mean"], best[f"{BENEFIT}_mean"], marker="*", s=140, color="#c44e52", label="best")
-        ax.set_xlabel(f"{DELAY} (observed)")
-        ax.set_ylabel(f"{BENEFIT} (observed)")
+        fresh = sel.rename(columns={f"{DELAY}_mean": DELAY, f"{BENEFIT}_mean": BENEFIT})
+        on = frontier(fresh)
+        ax.plot(on[DELAY], on[BENEFIT], "--", color="#333333", linewidth=1, label="frontier of the finalists (fresh seeds)")
+        ax.scatter(fresh[DELAY], fresh[BENEFIT], marker="x", color="#333333", label="finalists (fresh seeds)")
+        best = fresh[fresh["candidate"] == self.best]
+        ax.scatter(best[DELAY], best[BENEFIT], marker="*", s=140, color="#c44e52", label="best")
+        ax.set_xlabel("Time in port, 95th percentile (minutes; observed)")
+        ax.set_ylabel("Detections (persons; observed)")
         ax.set_title(textwrap.fill(f"{self.name}: detections against delay", 70), fontsize=9)
-        ax.legend(fontsize=7)
+        fig.legend(*ax.get_legend_handles_labels(), fontsize=7, loc="outside lower center", ncol=2, frameon=False)
+        if self.best not in set(on["candidate"]):
+            why = (f"The best is chosen by {self.problem.sense} {self.problem.objective} within the constraints on "
+                   "fresh seeds, not by detections against delay, so it need not lie on either frontier.")
+            fig.suptitle(textwrap.fill(why, 90), fontsize=7, color="#444444")  # in the layout: never cut off
         return fig
+
+
+def _settings(row: pd.Series) -> str:
+    """A candidate's world changes as they read: "stations.gate_imaging.selection.fraction = 0.31; ..."."""
+    parts = [f"{column[4:]} = {_shown(row[column])}" for column in row.index
+             if column.startswith("set:") and not (isinstance(row[column], float) and math.isnan(row[column]))]
+    return "; ".join(parts) or "the world as it stands (no changes)"
 
 
 def _shown(value: Any) -> str:
@@ -497,7 +513,7 @@ def search_policy(
         search={
             "nit": int(de.nit),
             "nfev": int(de.nfev),
-            "message": str(de.message).rstrip("."),
+            "message": _stopped(de, settings.maxiter),
             "success": bool(de.success),
             "candidates": len(cache.order),
             "replications": settings.replications,
@@ -505,6 +521,16 @@ def search_policy(
         },
         level=settings.level,
     )
+
+
+def _stopped(de: optimize.OptimizeResult, maxiter: int) -> str:
+    """Why the search stopped, in our words rather than the library's."""
+    if de.success:
+        return "stopped when the population stopped improving (its spread fell below search.tol)"
+    if de.nit >= maxiter:
+        return (f"stopped at the limit of {maxiter} generations (search.maxiter) before the population settled; "
+                "a larger maxiter searches further")
+    return "stopped early: no candidate met the constraints well enough to go on; widen the bounds or the limits"
 
 
 def _history(cache: _Cache, problem: Problem) -> pd.DataFrame:
@@ -769,8 +795,9 @@ class PolicySpec(Strict):
 
 
 class SearchSpec(Strict):
-    popsize: AtLeastOne = 8
-    maxiter: AtLeastOne = 10
+    popsize: AtLeastOne = Field(8, description="candidates per generation for each search dimension: a generation "
+                                "holds popsize x dimensions candidates (scipy's meaning)")
+    maxiter: AtLeastOne = Field(10, description="the most generations the search runs")
     tol: Annotated[float, Field(ge=0.0), NumberOnly] = 0.01
     mutation: tuple[Number, Number] = (0.5, 1.0)
     recombination: Annotated[float, Field(ge=0.0, le=1.0), NumberOnly] = 0.7
@@ -866,6 +893,8 @@ def load_optimisation(path: str | Path) -> OptimisationPlan:
             raise fail(f"policies[{i}].name", f"the policy name '{policy.name}' is used twice")
         _check_world(world_data, policy.set, fail, f"policies[{i}].set")
         policies[policy.name] = dict(policy.set)
+    if not any(not changes for changes in policies.values()):  # the world as it stands is always a finalist
+        policies[CURRENT if CURRENT not in policies else f"{CURRENT}_setting"] = {}
     problem = Problem(tuple(variables), tuple(allocations), spec.objective.figure, spec.objective.sense, tuple(constraints))
     s, sel = spec.search, spec.selection
     settings = SearchSettings(
@@ -1026,6 +1055,8 @@ def describe_optimisation(path: str | Path) -> str:
     dims = len(p.bounds())
     return (
         f"{path}: ok (optimisation {spec.name}; {p.sense} {p.objective} over {dims} search dimension(s), "
+        f"popsize {plan.settings.popsize} x {dims} = {plan.settings.popsize * dims} candidates per generation for at "
+        f"most {plan.settings.maxiter} generations, "
         f"{len(p.constraints)} constraint(s), {len(plan.policies)} named policies; {spec.replications} CRN "
         f"replications per candidate, selection {plan.settings.top} + named x {plan.settings.selection_replications} "
         f"fresh seeds; runs of {spec.warmup_days}+{spec.days} days; world {plan.world_path})"
@@ -1050,10 +1081,10 @@ def optimise_command(
         raise InputError("--out: a policy search needs an output folder (or pass --check to only validate the file)")
     executor = choose_executor(executor, workers, scheduler)
     plan = load_optimisation(path)
-    from tqdm import tqdm
+    from ..progress import progress
 
-    with make_executor(executor, workers, scheduler) as runner, tqdm(
-        total=plan.settings.maxiter, desc="generations", disable=not sys.stderr.isatty(), leave=False
+    with make_executor(executor, workers, scheduler) as runner, progress(
+        plan.settings.maxiter, "generations", "policy search"
     ) as bar:
         result = run_optimisation(plan, out, runner, resume, command, progress=bar.update)
     print(result.summary())

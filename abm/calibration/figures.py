@@ -38,12 +38,21 @@ def posterior_figure(result: "CalibrationResult") -> Figure:
         if prior is not None:
             grid = np.linspace(*_range(values, prior.support()), 200)
             ax.plot(grid, prior.pdf(grid), color="#dd8452", label="prior")
-        ax.set_title(name if prior is not None else f"{name} (truth of matching runs)", fontsize=9)
+        ax.set_title(textwrap.fill(_words(name) if prior is not None else f"{_words(name)} (truth of matching runs)",
+                                   45), fontsize=9)
+        ax.set_ylabel("density", fontsize=8)
         ax.tick_params(labelsize=8)
-        if k == 0:
-            ax.legend(fontsize=7)
+    handles, labels = fig.axes[0].get_legend_handles_labels()
+    fig.legend(handles, labels, fontsize=7, loc="outside lower center", ncol=3, frameon=False)
     fig.suptitle(textwrap.fill(f"{result.name}: posterior (model estimates, not counts)", 40 * cols), fontsize=10)
     return fig
+
+
+def _words(name: str) -> str:
+    """A parameter path or latent name as words: "adversary.arrivals_per_day" -> "arrivals per day (adversary)"."""
+    *where, last = name.split(".")
+    text = last.replace("_", " ")
+    return f"{text} ({'.'.join(where).replace('_', ' ')})" if where else text
 
 
 def _range(values: np.ndarray, support: tuple[float, float]) -> tuple[float, float]:
@@ -70,8 +79,10 @@ def predictive_figure(result: "CalibrationResult") -> Figure:
     ax.plot(mean, y, "o", color="#333333", markersize=3, label="predictive mean")
     ax.axvline(0.0, color="#dd8452", linewidth=1, label="observed")
     ax.set_yticks(y, table["summary"], fontsize=7)
-    ax.set_xlabel("(simulated - observed) / scale of the distance", fontsize=8)
-    ax.legend(fontsize=7, loc="lower right")
+    ax.set_xlabel("How far the simulated records lie from the agency's (in units of each summary's spread)",
+                  fontsize=8)
+    # Outside the axes, so the legend never hides an interval (the figure's constrained layout makes room).
+    fig.legend(*ax.get_legend_handles_labels(), fontsize=7, loc="outside lower center", ncol=3, frameon=False)
     ax.set_title(textwrap.fill(f"{result.name}: posterior predictive check", 70), fontsize=9)
     return fig
 

@@ -31,7 +31,6 @@ from __future__ import annotations
 
 import json
 import shutil
-import sys
 from collections.abc import Sequence
 from pathlib import Path
 from typing import Any
@@ -44,6 +43,7 @@ from ..experiment.executors import Executor
 from ..experiment.single import package_versions
 from ..experiment.worker import SUMMARY_FILE, RunTask, is_complete
 from ..observed import OBSERVED_DIR, conform
+from ..progress import progress
 from ..records import write_json, write_parquet
 from .abc import Generation, ReferenceTable, Simulated
 from .config import LATENT, CalibrationPlan
@@ -101,7 +101,7 @@ class ModelSimulator:
         if todo:
             tasks = (self._task(theta[i], seeds[i], labels[i], i) for i in todo)
             stage = labels[0].split("/")[0]
-            with _progress(len(todo), f"candidate runs ({stage})") as bar:
+            with progress(len(todo), "runs", f"candidate runs ({stage})") as bar:
                 for answer in self.executor.imap(tasks):
                     bar.update(1)
                     self._take(answer, index, dirs, summaries, failures)
@@ -153,13 +153,6 @@ class ModelSimulator:
         names = ("encounters", "checks") if spec.needs_checks() else ("encounters",)
         tables = {name: conform(name, pd.read_parquet(run_dir / OBSERVED_DIR / f"{name}.parquet")) for name in names}
         return spec.compute(tables, self.plan.spec.warmup_days)
-
-
-def _progress(total: int, label: str) -> Any:
-    """A progress bar on a terminal (none in a log), as batches show."""
-    from tqdm import tqdm
-
-    return tqdm(total=total, desc=label, unit="run", disable=not sys.stderr.isatty(), dynamic_ncols=True, leave=False)
 
 
 def _figure(run_dir: Path, key: str) -> float:

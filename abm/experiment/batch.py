@@ -21,6 +21,7 @@ from .compare import compare_points, format_comparison
 from .design import Plan, RunSpec, load_plan, point_shown
 from .executors import choose_executor, make_executor
 from .store import FAILURES_TABLE, Store, SummaryExtension
+from ..progress import progress
 from .worker import RunTask
 
 
@@ -69,13 +70,6 @@ def _tasks(
         )
 
 
-def _progress(total: int, initial: int, show: bool | None) -> Any:
-    from tqdm import tqdm
-
-    enabled = sys.stderr.isatty() if show is None else show
-    return tqdm(total=total, initial=initial, desc="runs", unit="run", disable=not enabled, dynamic_ncols=True)
-
-
 def run_batch(
     experiment: str | Path,
     out: str | Path,
@@ -95,7 +89,7 @@ def run_batch(
     ``on_warning`` is given each load warning (:func:`load_warnings`) before any run starts.
 
     A run that raises is recorded in failures.parquet and the batch goes on.
-    ``show_progress`` None shows a bar only on a terminal. ``extensions`` add
+    ``show_progress`` None shows a bar on a terminal and progress lines otherwise (False: nothing). ``extensions`` add
     summary columns per run (the command line adds every estimator's result);
     workers call them as each run finishes, so whatever they cache is computed
     in parallel, and the store calls them again when it builds the summary.
@@ -103,17 +97,17 @@ def run_batch(
     # The executor first: a process pool's server then imports the engine while the plan is read.
     runner = make_executor(executor, workers, scheduler, preload=[extension.__module__ for extension in extensions])
     plan = load_plan(experiment, calibration)
-    if on_warning is not None:
-        for warning in load_warnings(plan):
-            on_warning(warning)
     store = Store(out)
     store.open(plan, list(command), resume)
+    if on_warning is not None:  # after the store is open, so a refused --out stays a one-line error
+        for warning in load_warnings(plan):
+            on_warning(warning)
     done = store.complete(plan)
     todo = [spec for spec in plan.runs() if spec.run_id not in done]
     by_id = {spec.run_id: spec for spec in todo}
     failed = 0
     if todo:
-        with runner, _progress(plan.total_runs, len(done), show_progress) as bar:
+        with runner, progress(plan.total_runs, "runs", "batch", len(done), show_progress) as bar:
             for answer in runner.imap(_tasks(plan, todo, store, command, extensions)):
                 if not answer["ok"]:
                     failed += 1

@@ -56,6 +56,7 @@ class Bundle(Strict):
     """A named level that changes several dotted paths of the world together (a policy bundle)."""
 
     name: Name
+    label: str = Field("", max_length=80, description="how briefings name the level (default: its name in words)")
     note: str = ""
     set: dict[str, Any] = Field(default_factory=dict, description="dotted path -> value; empty = the world as it is")
 

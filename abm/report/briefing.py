@@ -20,12 +20,14 @@ from __future__ import annotations
 
 import math
 import shlex
-from collections.abc import Sequence
+from collections.abc import Callable, Sequence
 from dataclasses import dataclass
 from pathlib import Path
 from typing import Any
 
+import numpy as np
 import pandas as pd
+from scipy import special
 
 from ..analysis.estimator_check import bias_sentence, describe_quantity
 from ..analysis.policy_table import DelayLimits
@@ -37,6 +39,7 @@ from ..estimate.expansion import SOURCE as EXPANSION_SOURCE
 from ..records import write_atomically
 from . import html as html_renderer
 from .answer import section_answer
+from .bottom_line import bottom_line
 from .load_notes import load_blocks
 from . import markdown as markdown_renderer
 from .document import (
@@ -100,7 +103,10 @@ class Context:
 
     @property
     def baseline_name(self) -> str:
-        return str(self.batch.baseline)
+        """The baseline policy's display label."""
+        if self.batch.policy is None:
+            return str(self.batch.baseline)
+        return self.batch.policy_label(self.batch.baseline)
 
     def cell(self, point: int, figure: str) -> pd.Series | None:
         """The comparison row of one point and measure."""
@@ -173,7 +179,9 @@ def _level_list(batch: BatchView, label: str) -> list[str]:
     for level in factor.levels:
         note = factor.notes.get(str(level)) or (BEHAVIOUR_WORDS.get(str(level), "") if label == batch.behaviour else "")
         base = " (baseline)" if label == batch.policy and str(level) == str(batch.baseline) else ""
-        items.append(f"{level}{base}" + (f": {note}" if note else ""))
+        shown = batch.policy_label(level) if label == batch.policy else str(level)
+        key = f" [{level}]" if shown != str(level) else ""
+        items.append(f"{shown}{key}{base}" + (f": {note}" if note else ""))
     return items
 
 
@@ -253,7 +261,7 @@ def _best_sentence(ctx: Context, scenario: tuple) -> Item | None:
     where, under = ctx.scenario_text(scenario), ctx.under(scenario)
     days = ctx.batch.days
     policy = ctx.batch.policy_of(best)
-    data = {"claim": "best-within-limits", "scenario": where, "policy": policy, "point": best,
+    data = {"claim": "best-within-limits", "scenario": where, "policy": ctx.batch.policy_key(best), "point": best,
             "detections": ctx.means.loc[best, "detections"]}
     if ctx.batch.compare_to.get(best) is None:
         better = [p for p in ctx.scenario_points[scenario]
@@ -314,7 +322,8 @@ def _displacement_sentence(ctx: Context, scenario: tuple) -> Item | None:
     if excludes_zero(hazard["difference_low"], hazard["difference_high"]):
         direction = " — toward more dangerous boarding" if hazard["difference"] > 0 else " — toward safer boarding"
     text += f" Hazard-weighted boarding changes by {_effect(ctx, point, 'hazard_weighted_share')}{direction}."
-    data = {"claim": "displacement", "scenario": ctx.scenario_text(scenario), "policy": policy, "point": point,
+    data = {"claim": "displacement", "scenario": ctx.scenario_text(scenario), "policy": ctx.batch.policy_key(point),
+            "point": point,
             "displaced-share": "" if share is None else share}
     return Item(text, data)
 
@@ -372,7 +381,7 @@ def _adaptation_sentence(ctx: Context) -> Item | None:
     change = with_interval(r["change"], r["change_low"], r["change_high"], "count", True)
     verdict = ("changes the answer" if excludes_zero(r["change_low"], r["change_high"])
                else "does not change the answer by more than chance could")
-    text = (f"Assuming people adapt {verdict}: {r['policy']}'s detection gain against {ctx.baseline_name} "
+    text = (f"Assuming people adapt {verdict}: {ctx.batch.policy_label(r['policy'])}'s detection gain against {ctx.baseline_name} "
             f"is {number(r['effect_reference'], 'count', True)} under {r['reference']} behaviour and "
             f"{number(r['effect'], 'count', True)} under {r['behaviour']} behaviour, a difference of {change}, "
             "paired by replication.")
@@ -636,10 +645,14 @@ def _stakeholder_table(ctx: Context, scenario: tuple, index: int) -> Table:
                 if extra in ctx.means.columns:
                     m = MEASURE[extra]
                     own += f"\n{number(ctx.means.loc[r['point'], extra], m.kind)} {m.label.lower()} ({m.unit})"
+        prefers = str(r["policy"])
+        if r["tied_with"]:
+            prefers += (f"\ntied with {r['tied_with']} on {MEASURE[r['figure']].label.lower()}; chosen on "
+                        f"{MEASURE[r['tie_break']].label.lower()}")
         cells = [
             Cell(f"{r['stakeholder']}\n{next(s.wants for s in STAKEHOLDERS if s.name == r['stakeholder'])}",
                  header=True),
-            Cell(str(r["policy"]), {"stakeholder": r["stakeholder"], "point": r["point"]}),
+            Cell(prefers, {"stakeholder": r["stakeholder"], "point": r["point"]}),
             Cell(own),
         ]
         for other in STAKEHOLDERS:
@@ -657,8 +670,11 @@ def _stakeholder_table(ctx: Context, scenario: tuple, index: int) -> Table:
     columns = ["Stakeholder", "Prefers", "On their own figure"] + [
         f"Cost to {s.name.lower()} ({MEASURE[s.figure].label.lower()})" for s in STAKEHOLDERS
     ]
-    return Table(f"stakeholders-{index}", f"Stakeholders: {ctx.scenario_text(scenario)}", tuple(columns),
-                 tuple(rows))
+    caption = (f"Stakeholders: {ctx.scenario_text(scenario)}. Each prefers the policy best on their own figure; "
+               "policies indistinguishable from it (paired 95% interval of the difference holds zero) are a tie, "
+               "settled by their next figure. A cost is positive: how much worse another stakeholder's own figure "
+               "is under this preference than under theirs, with its paired 95% interval")
+    return Table(f"stakeholders-{index}", caption, tuple(columns), tuple(rows))
 
 
 # -- 5. figures -------------------------------------------------------------------------------------------
@@ -701,12 +717,23 @@ def _heatmap_block(ctx: Context) -> FigureBlock | None:
             title = f"{ctx.batch.policy_of(p)} vs {ctx.baseline_name}"
             if ctx.batch.scenario_labels:
                 title += f"\n{ctx.scenario_text(scenario)}"
-            panels.append((title, change, len(common)))
+            panels.append((title, change, len(common), _beyond_noise(diffs)))
     if not panels:
         return None
     policies = max(len(points) - 1 for points in ctx.scenario_points.values())
     cols = min(3, policies)
-    return heatmap_figure(panels[: 3 * cols], ctx.batch.replications, cols)
+    left_out = [title.replace("\n", ", ") for title, *_ in panels[3 * cols:]]
+    return heatmap_figure(panels[: 3 * cols], ctx.batch.replications, cols, left_out)
+
+
+def _beyond_noise(diffs: list[pd.DataFrame]) -> pd.DataFrame:
+    """Cells whose paired 95% t-interval of the change in share excludes zero (False with under two pairs)."""
+    stack = np.stack([d.to_numpy(dtype=float) for d in diffs])
+    if stack.shape[0] < 2:
+        return pd.DataFrame(False, index=diffs[0].index, columns=diffs[0].columns)
+    mean, sd = stack.mean(axis=0), stack.std(axis=0, ddof=1)
+    half = float(special.stdtrit(stack.shape[0] - 1, 0.975)) * sd / math.sqrt(stack.shape[0])
+    return pd.DataFrame(np.abs(mean) > half, index=diffs[0].index, columns=diffs[0].columns)
 
 
 def _daily_block(ctx: Context) -> FigureBlock | None:
@@ -719,9 +746,11 @@ def _daily_block(ctx: Context) -> FigureBlock | None:
     window = (max(0, day - 30), min(ctx.batch.end_day, day + 60))
     smooth = 7 if window[1] - window[0] >= 28 else 1
     panels = []
+    hidden: dict[str, None] = {}
     for scenario, points in list(ctx.scenario_points.items())[:4]:
         base = ctx.baseline_point(scenario) if ctx.batch.policy is not None else points[0]
         shown = [base] + [p for p in [_gain_point(ctx, scenario)] if p is not None and p != base]
+        hidden.update({ctx.batch.policy_of(p): None for p in points if p not in shown})
         frame = daily_series(ctx.batch, shown, ("detections", "truth_crossings"))
         lines = []
         for k, p in enumerate(shown):
@@ -732,7 +761,14 @@ def _daily_block(ctx: Context) -> FigureBlock | None:
                                        rows[["day", "replication"]].assign(value=rows[column].astype(float)),
                                        k, dashed))
         panels.append((ctx.scenario_text(scenario), lines))
-    return daily_figure(panels, day, name, window, smooth, ctx.batch.replications)
+    notes = []
+    if hidden:
+        notes.append(f"Each panel draws the baseline and the policy the headline examines; not drawn, to keep the "
+                     f"lines readable: {', '.join(hidden)} (their figures are in the comparison table).")
+    if len(ctx.scenario_points) > 4:
+        dropped = [ctx.scenario_text(s) for s in list(ctx.scenario_points)[4:]]
+        notes.append(f"Scenarios not drawn (four fit): {'; '.join(dropped)}.")
+    return daily_figure(panels, day, name, window, smooth, ctx.batch.replications, " ".join(notes))
 
 
 def _estimator_block(ctx: Context) -> FigureBlock | None:
@@ -740,7 +776,13 @@ def _estimator_block(ctx: Context) -> FigureBlock | None:
     if check.empty:
         return None
     pooled = rel[rel["behaviour"] == ALL_BEHAVIOURS].sort_values(["eligible", "score"], ascending=[False, True])
+    few, beyond = pooled[pooled["n"] < 2], pooled[pooled["n"] >= 2].iloc[12:]
     pooled = pooled[pooled["n"] >= 2].head(12)
+    notes = []
+    if len(few):
+        notes.append(f"Not drawn, with fewer than two runs to average: {', '.join(_estimator_label(r) for _, r in few.iterrows())}.")
+    if len(beyond):
+        notes.append(f"Not drawn, beyond the twelve most reliable: {', '.join(_estimator_label(r) for _, r in beyond.iterrows())}.")
     behaviours = _behaviour_order(ctx)
     rows = []
     for _, r in pooled.iterrows():
@@ -749,7 +791,7 @@ def _estimator_block(ctx: Context) -> FigureBlock | None:
         rows.append((_estimator_label(r), ratios))
     if not rows:
         return None
-    return estimator_figure(rows, behaviours, ctx.batch.runs)
+    return estimator_figure(rows, behaviours, ctx.batch.runs, " ".join(notes))
 
 
 def _behaviour_order(ctx: Context) -> list[str]:
@@ -1029,10 +1071,19 @@ def _drivers(batch: BatchView, runs: pd.DataFrame) -> tuple[pd.DataFrame | None,
         return None, str(exc)
 
 
+def _silent(stage: str) -> None:
+    return None
+
+
 def build(out: str | Path, baseline: str | None = None, limits: DelayLimits = DelayLimits(),
-          argv: Sequence[str] = ()) -> Briefing:
-    """Read a batch folder and build its briefing (nothing is written but the two per-run tables)."""
+          argv: Sequence[str] = (), report: Callable[[str], None] = _silent) -> Briefing:
+    """Read a batch folder and build its briefing (nothing is written but the two per-run tables).
+
+    ``report`` is told each stage as it starts (the command prints them).
+    """
+    report(f"reading {out}")
     batch = load_batch(out, baseline)
+    report(f"weighing the estimators against truth in {batch.runs} runs")
     evidence = gather(batch)
     runs = run_table(batch, evidence)
     table = comparison(batch, runs)
@@ -1045,9 +1096,11 @@ def build(out: str | Path, baseline: str | None = None, limits: DelayLimits = De
         contrast=behaviour_contrast(batch, runs, CONTRAST_FIGURES), scenario_points=scenarios(batch),
         drivers=drivers, drivers_problem=problem,
     )
+    report("comparing policies")
     sections = [section_question(ctx), section_answer(batch, evidence), section_headline(ctx), section_comparison(ctx),
-                section_assumptions(ctx),
-                section_figures(ctx), section_estimators(ctx)]
+                section_assumptions(ctx)]
+    report("drawing figures")
+    sections += [section_figures(ctx), section_estimators(ctx)]
     drivers = section_drivers(ctx)
     if drivers is not None:
         sections.append(drivers)
@@ -1059,6 +1112,7 @@ def build(out: str | Path, baseline: str | None = None, limits: DelayLimits = De
         sections=tuple(sections),
         footer="Made by undertow brief from the batch's tables. People hidden in vehicles can be hurt: read the "
                "cautions in section “Assumptions, limitations and cautions” before using any figure.",
+        bottom_line=bottom_line(ctx),
     )
     return Briefing(document, batch, evidence, runs, table, status, best)
 
@@ -1094,7 +1148,9 @@ def _write_text(path: Path, text: str) -> Path:
 
 
 def brief(out: str | Path, baseline: str | None = None, formats: Sequence[str] = FORMATS,
-          limits: DelayLimits = DelayLimits(), argv: Sequence[str] = ()) -> tuple[Briefing, dict[str, Path]]:
-    """Build and write a batch folder's briefing."""
-    briefing = build(out, baseline, limits, argv)
+          limits: DelayLimits = DelayLimits(), argv: Sequence[str] = (),
+          report: Callable[[str], None] = _silent) -> tuple[Briefing, dict[str, Path]]:
+    """Build and write a batch folder's briefing, telling ``report`` each stage."""
+    briefing = build(out, baseline, limits, argv, report)
+    report(f"writing {', '.join(formats)}")
     return briefing, write(briefing, formats)

@@ -78,6 +78,7 @@ class Document:
     subtitle: str
     sections: tuple[Section, ...]
     footer: str
+    bottom_line: str = ""  # at most three sentences shown before everything else
 
 
 # -- numbers ------------------------------------------------------------------------------------

@@ -21,6 +21,7 @@ import numpy as np
 import pandas as pd
 from matplotlib.backends.backend_agg import FigureCanvasAgg
 from matplotlib.figure import Figure
+from matplotlib.patches import Rectangle
 from matplotlib.ticker import NullFormatter
 
 from ..experiment.compare import bounded_mean_interval
@@ -131,24 +132,26 @@ def frontier_figure(
 
 
 def heatmap_figure(
-    panels: Sequence[tuple[str, pd.DataFrame, int]],
+    panels: Sequence[tuple[str, pd.DataFrame, int, pd.DataFrame]],
     replications: int,
     cols: int,
+    left_out: Sequence[str] = (),
 ) -> FigureBlock:
     """Change in attempt share (percentage points), boarding point x time band, one panel per comparison.
 
-    ``panels``: (title, points x bands table of changes in percentage points, pairs), row by row of
-    ``cols`` panels (one row per scenario, one column per policy).
+    ``panels``: (title, points x bands table of changes in percentage points, pairs, points x bands
+    table of whether the change is beyond replication noise), row by row of ``cols`` panels (one row
+    per scenario, one column per policy); ``left_out`` names comparisons not drawn.
     """
     cols = max(1, min(cols, len(panels)))
     rows = math.ceil(len(panels) / cols)
-    span = max((float(np.nanmax(np.abs(t.to_numpy()))) for _, t, _ in panels), default=1.0) or 1.0
+    span = max((float(np.nanmax(np.abs(t.to_numpy()))) for _, t, _, _ in panels), default=1.0) or 1.0
     cmap = matplotlib.colormaps["cividis"]
     with matplotlib.rc_context({**STYLE, "axes.grid": False}):
         fig = _figure(min(8.5, 3.0 * cols + 1.8), 2.6 * rows + 0.9)
         axes = fig.subplots(rows, cols, squeeze=False)
         image = None
-        for ax, (title, table, _) in zip(axes.flat, panels):
+        for ax, (title, table, _, beyond) in zip(axes.flat, panels):
             values = table.to_numpy(dtype=float)
             image = ax.imshow(values, cmap=cmap, vmin=-span, vmax=span, aspect="auto")
             ax.set_xticks(range(table.shape[1]), [_t(c) for c in table.columns], rotation=30, ha="right")
@@ -157,8 +160,12 @@ def heatmap_figure(
             for (i, j), value in np.ndenumerate(values):
                 shade = cmap((value + span) / (2 * span))
                 light = 0.299 * shade[0] + 0.587 * shade[1] + 0.114 * shade[2] > 0.55
-                ax.text(j, i, number(value, "rate", signed=True), ha="center", va="center", fontsize=8,
-                        color="black" if light else "white")
+                real = bool(beyond.iloc[i, j])
+                ax.text(j, i, number(value, "rate", signed=True) + ("*" if real else ""), ha="center", va="center",
+                        fontsize=8, fontweight="bold" if real else "normal", color="black" if light else "white")
+                if real:  # outlined: beyond replication noise
+                    ax.add_patch(Rectangle((j - 0.5, i - 0.5), 1, 1, fill=False,
+                                           edgecolor="#d62728", linewidth=1.6))
             ax.set_xlabel("Time band")
             ax.set_ylabel("Boarding point")
         for ax in list(axes.flat)[len(panels):]:
@@ -173,7 +180,9 @@ def heatmap_figure(
         "Source: truth records (every attempt's boarding point and time band, summarised days only). Each cell is "
         "the policy's share of attempting persons minus the baseline's, in percentage points, averaged over "
         f"{replications} paired replications (same seeds); cells of a panel sum to zero. Positive cells "
-        "(lighter) gained attempts.",
+        "(lighter) gained attempts. Cells outlined in red and marked * differ from zero beyond replication noise "
+        "(their paired 95% t-interval excludes zero); the others may be noise."
+        + (f" Not drawn, for room: {'; '.join(left_out)}." if left_out else ""),
         png, "Heat maps of the change in attempt share by boarding point and time band against the baseline",
     )
 
@@ -208,8 +217,11 @@ def daily_figure(
     window: tuple[int, int],
     smooth: int,
     replications: int,
+    left_out: str = "",
 ) -> FigureBlock:
-    """Daily detections (observed) and crossings (truth) around an intervention day, with replication bands."""
+    """Daily detections (observed) and crossings (truth) around an intervention day, with replication bands.
+
+    ``left_out`` says in a sentence which policies or scenarios are not drawn."""
     cols = min(len(panels), 2)
     rows = math.ceil(len(panels) / cols)
     with matplotlib.rc_context(STYLE):
@@ -242,7 +254,7 @@ def daily_figure(
         f"Sources: detections are observed records, crossings are truth (the model's simulated ground truth). "
         f"Lines are {smoothing}the mean over {replications} replications; bands are 95% intervals over "
         f"replications. The dotted line marks the world's intervention on day {day} ({intervention}), in force "
-        "under every policy.",
+        "under every policy." + (f" {left_out}" if left_out else ""),
         png, f"Daily detections and crossings around the intervention on day {day}",
     )
 
@@ -251,6 +263,7 @@ def estimator_figure(
     rows: Sequence[tuple[str, Mapping[str, np.ndarray]]],
     behaviours: Sequence[str],
     runs: int,
+    left_out: str = "",
 ) -> FigureBlock:
     """Estimate / truth per estimator (rows) and behaviour model (markers), log scale, 1 marked."""
     height = 1.2 + 0.36 * len(rows)
@@ -259,12 +272,16 @@ def estimator_figure(
         ax = fig.add_subplot()
         offsets = np.linspace(-0.22, 0.22, len(behaviours)) if len(behaviours) > 1 else np.zeros(1)
         rng = np.random.default_rng(0)  # fixed jitter, so the figure is the same every time
+        undrawn: dict[str, int] = {}  # estimator -> runs whose ratio cannot sit on a log axis (none, zero)
         for k, behaviour in enumerate(behaviours):
             colour, marker = SERIES_COLOURS[k % 4], MARKERS[k % 4]
             labelled = False
             for i, (_, ratios) in enumerate(rows):
                 values = np.asarray(ratios.get(behaviour, ()), dtype=float)
-                values = values[np.isfinite(values) & (values > 0)]
+                drawable = np.isfinite(values) & (values > 0)
+                if (~drawable).any():
+                    undrawn[rows[i][0]] = undrawn.get(rows[i][0], 0) + int((~drawable).sum())
+                values = values[drawable]
                 if not values.size:
                     continue
                 y = len(rows) - 1 - i + offsets[k]
@@ -293,6 +310,9 @@ def estimator_figure(
         "Source: each estimate is computed from observed records only and divided by the truth quantity it "
         f"targets (model truth), over the summarised days of each of the batch's {runs} runs. Large markers are "
         "means with 95% intervals over runs, small dots single runs; the dashed line is estimate = truth. "
-        "Estimators marked ≈ are compared with a truth that can only be counted approximately.",
+        "Estimators marked ≈ are compared with a truth that can only be counted approximately."
+        + (" Not drawn (no estimate, or an estimate or truth of zero, which a ratio on a log scale cannot show): "
+           + "; ".join(f"{name}, {n} run{'s' if n != 1 else ''}" for name, n in undrawn.items()) + "."
+           if undrawn else "") + (f" {left_out}" if left_out else ""),
         png, "Dot plot of estimate over truth per estimator and behaviour model",
     )

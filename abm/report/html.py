@@ -27,6 +27,7 @@ h1 { font-size: 1.7rem; margin: 0 0 .3rem; }
 h2 { font-size: 1.3rem; margin: 2.2rem 0 .6rem; border-bottom: 2px solid var(--ink); padding-bottom: .2rem; }
 h3 { font-size: 1.05rem; margin: 1.4rem 0 .4rem; }
 .subtitle { color: var(--muted); margin: 0 0 1rem; }
+.bottom-line { font-size: 1.08rem; margin: 0 0 1rem; }
 .caution { border: 2px solid var(--ink); padding: .6rem .9rem; margin: 1rem 0; }
 nav ol { columns: 2; margin: .5rem 0 1rem; padding-left: 1.4rem; }
 nav a { color: var(--ink); }
@@ -135,6 +136,8 @@ def render(document: Document) -> str:
         f'<li><a href="#s-{_e(s.key)}">{_e(s.title)}</a></li>' for s in document.sections
     )
     sections = "\n".join(_section(s, i, counter) for i, s in enumerate(document.sections, start=1))
+    bottom = (f'<p class="bottom-line" data-claim="bottom-line"><strong>Bottom line.</strong> '
+              f"{_e(document.bottom_line)}</p>" if document.bottom_line else "")
     return f"""<!DOCTYPE html>
 <html lang="en">
 <head>
@@ -145,7 +148,7 @@ def render(document: Document) -> str:
 <style>{CSS}</style>
 </head>
 <body>
-<header><h1>{_e(document.title)}</h1><p class="subtitle">{_e(document.subtitle)}</p></header>
+<header><h1>{_e(document.title)}</h1><p class="subtitle">{_e(document.subtitle)}</p>{bottom}</header>
 <nav aria-label="Contents"><ol>{toc}</ol></nav>
 <main>
 {sections}

@@ -73,6 +73,8 @@ def render(document: Document) -> str:
     """The whole briefing as Markdown text."""
     counter = [0]
     parts = [f"# {_e(document.title)}", "", _e(document.subtitle), ""]
+    if document.bottom_line:
+        parts += [f"**Bottom line.** {_e(document.bottom_line)}", ""]
     for number, section in enumerate(document.sections, start=1):
         parts += [f"## {number}. {_e(section.title)}", ""]
         for block in section.blocks:

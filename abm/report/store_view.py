@@ -44,6 +44,7 @@ class FactorView:
     path: str | None
     levels: tuple[Any, ...] = ()  # level labels (empty for a sampled range)
     notes: Mapping[str, str] = field(default_factory=dict)  # bundle name -> its note
+    display: Mapping[str, str] = field(default_factory=dict)  # bundle name -> its label: in the file
     baseline: Any = None
     low: float | None = None
     high: float | None = None
@@ -129,11 +130,27 @@ class BatchView:
             parts.append(f"{value} behaviour" if label == self.behaviour else f"{label} = {shown_value(value)}")
         return ", ".join(parts) if parts else "the scenario"
 
-    def policy_of(self, point: int) -> str:
-        """The policy level of a point in words (or the point's name when there is no policy factor)."""
+    def policy_key(self, point: int) -> str:
+        """The policy level's identifier as the experiment file names it (or the point's name without a policy)."""
         if self.policy is None:
             return f"point {point}"
         return str(self.points.loc[point, self.policy])
+
+    def policy_of(self, point: int) -> str:
+        """The policy level's display label: its ``label:`` in the experiment file, else its name in words."""
+        key = self.policy_key(point)
+        return key if self.policy is None else self.policy_label(key)
+
+    def policy_label(self, key: Any) -> str:
+        """A policy level's display label from its identifier."""
+        assert self.policy is not None
+        return self.factor(self.policy).display.get(str(key)) or display_label(str(key))
+
+
+def display_label(name: str) -> str:
+    """An identifier in words for people: "night_surge" -> "Night surge"."""
+    words = str(name).replace("_", " ").strip()
+    return words[:1].upper() + words[1:]
 
 
 def shown_value(value: Any) -> str:
@@ -153,15 +170,18 @@ def _factor_views(record: Mapping[str, Any]) -> list[FactorView]:
     for planned, spec in zip(record["factors"], specs, strict=True):
         levels = tuple(planned.get("levels") or ())
         notes: dict[str, str] = {}
+        display: dict[str, str] = {}
         behaviour = planned.get("path") == BEHAVIOUR_PATH
         for raw in spec.get("levels") or ():
             if isinstance(raw, dict):
                 notes[str(raw.get("name"))] = str(raw.get("note") or "")
+                if raw.get("label"):
+                    display[str(raw.get("name"))] = str(raw["label"])
                 behaviour = behaviour or BEHAVIOUR_PATH in (raw.get("set") or {})
         low, high = planned.get("range") or (None, None)
         views.append(
             FactorView(
-                label=planned["label"], path=planned.get("path"), levels=levels, notes=notes,
+                label=planned["label"], path=planned.get("path"), levels=levels, notes=notes, display=display,
                 baseline=planned.get("baseline"), low=low, high=high, changes_behaviour=behaviour,
             )
         )

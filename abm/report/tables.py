@@ -238,34 +238,48 @@ STAKEHOLDERS: tuple[Stakeholder, ...] = (
 )
 
 
+def _indistinguishable(runs: pd.DataFrame, a: int, b: int, figure: str, confidence: float) -> bool:
+    """True when the paired difference of two points on a figure has an interval holding zero (or none at all)."""
+    _, low, high, _ = paired_difference(_series(runs, a, figure), _series(runs, b, figure), confidence)
+    return not (math.isfinite(low) and math.isfinite(high)) or low <= 0 <= high
+
+
 def stakeholder_view(
     batch: BatchView, table: pd.DataFrame, runs: pd.DataFrame, scenario: tuple, confidence: float = CONFIDENCE
 ) -> pd.DataFrame:
     """Per stakeholder: the policy they would pick in one scenario and what it costs the others.
 
-    Each picks the point best on their own figure (ties broken by the second
-    figure). ``cost:<other>`` is the paired difference, on the other
-    stakeholder's figure, between this pick and the other's own pick
-    (``cost:<other>_low`` / ``_high`` its interval; zero when they agree).
+    Each picks the point best on their own figure. Points whose paired
+    difference from that best holds zero are tied with it (indistinguishable
+    over the replications), and the tie goes to the best of them on the
+    stakeholder's next figure; ``tied_with`` lists the others. ``cost:<other>``
+    is how much worse the other stakeholder's own figure is under this pick
+    than under their own pick (positive = a cost, whichever way the figure
+    runs; ``cost:<other>_low`` / ``_high`` its paired interval; zero when they agree).
     """
     m = means(table)
     points = [p for p in scenarios(batch).get(scenario, []) if p in m.index]
     picks: dict[str, int] = {}
+    ties: dict[str, list[int]] = {}
     for s in STAKEHOLDERS:
         if s.figure not in m.columns or m.loc[points, s.figure].isna().all():
             continue
         sign = MEASURE[s.figure].better
+        top = sorted(points, key=lambda p: (-sign * m.loc[p, s.figure], p))[0]
+        tied = [p for p in points if p == top or _indistinguishable(runs, p, top, s.figure, confidence)]
         tie = MEASURE[s.tie_break].better if s.tie_break in m.columns else 0
         picks[s.name] = sorted(
-            points, key=lambda p: (-sign * m.loc[p, s.figure], -tie * m.loc[p, s.tie_break] if tie else 0, p)
+            tied, key=lambda p: (-tie * m.loc[p, s.tie_break] if tie else 0, -sign * m.loc[p, s.figure], p)
         )[0]
+        ties[s.name] = [p for p in tied if p != picks[s.name]]
     rows = []
     for s in STAKEHOLDERS:
         if s.name not in picks:
             continue
         pick = picks[s.name]
         row = {"stakeholder": s.name, "point": pick, "policy": batch.policy_of(pick), "figure": s.figure,
-               "value": m.loc[pick, s.figure]}
+               "value": m.loc[pick, s.figure], "tied_with": ", ".join(batch.policy_of(p) for p in ties[s.name]),
+               "tie_break": s.tie_break}
         for other in STAKEHOLDERS:
             if other.name == s.name or other.name not in picks:
                 continue
@@ -276,6 +290,8 @@ def stakeholder_view(
                 diff, low, high, _ = paired_difference(
                     _series(runs, pick, other.figure), _series(runs, theirs, other.figure), confidence
                 )
+                if MEASURE[other.figure].better > 0:  # higher is better for them: less is the cost
+                    diff, low, high = -diff, -high, -low
             row.update({f"cost:{other.name}": diff, f"cost:{other.name}_low": low, f"cost:{other.name}_high": high,
                         f"pick:{other.name}": theirs})
         rows.append(row)

@@ -276,3 +276,20 @@ def test_the_command_line_checks_files_and_the_demo_example_validates(tmp_path, 
     err = capsys.readouterr().err.strip().splitlines()
     assert len(err) == 1 and err[0].startswith("undertow optimise: ") and ": seed: " in err[0]
     assert "3 search dimension(s)" in describe_optimisation(example)
+
+
+def test_search_reports_in_its_own_words_and_shows_candidates_by_their_settings():
+    problem = Problem((Variable("x", 0.0, 1.0), Variable("y", 0.0, 1.0)), (), "loss", "minimise")
+    settings = SearchSettings(replications=2, popsize=5, maxiter=2, tol=0.0, top=2, selection_replications=4)
+    result = search_policy(Toy(), problem, settings, seed=2, policies={"origin": {"x": 0.0, "y": 0.0}})
+    assert result.search["message"].startswith("stopped at the limit of 2 generations (search.maxiter)")
+    assert "Maximum number" not in result.summary()
+    assert "    settings: x = 0; y = 0" in result.summary()  # the named policy, by its settings
+
+
+def test_the_current_setting_is_always_a_finalist(tmp_path):
+    data = {key: value for key, value in BUDGET_SEARCH.items() if key != "policies"}
+    plan = load_optimisation(write(tmp_path / "o.yaml", data))
+    assert plan.policies == {"current": {}}
+    assert "popsize 5 x 1 = 5 candidates per generation" in describe_optimisation(write(
+        tmp_path / "p.yaml", data | {"search": {"popsize": 5, "maxiter": 2}}))

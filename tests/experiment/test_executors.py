@@ -18,7 +18,7 @@ from abm.experiment.store import FAILURES_TABLE, SUMMARY_TABLE
 from abm.experiment.worker import RunTask, execute_run
 from abm.world import load_world
 
-from .helpers import DEMO_WORLD, POLICY_FACTOR, experiment, write_yaml
+from .helpers import DEMO_WORLD, POLICY_FACTOR, experiment, undertow_command, write_yaml
 
 
 def _files(run_dir: Path) -> dict[str, bytes]:
@@ -157,3 +157,14 @@ def test_a_worker_and_its_estimates_do_not_import_scipy_stats() -> None:
     code = "import sys, abm.experiment.worker, abm.analysis.estimator_check; print('scipy.stats' in sys.modules)"
     shown = subprocess.run([sys.executable, "-c", code], capture_output=True, text=True, check=True)
     assert shown.stdout.strip() == "False"
+
+
+def test_a_batch_in_a_log_writes_progress_lines(tmp_path: Path) -> None:
+    # Not a terminal (pytest captures stderr): lines at every tenth, with elapsed and remaining time.
+    path = write_yaml(tmp_path / "experiment.yaml", experiment(replications=4, days=2, warmup_days=0))
+    result = subprocess.run([*undertow_command(), "batch", str(path), "--out", str(tmp_path / "out")],
+                            capture_output=True, text=True, check=False)
+    assert result.returncode == 0, result.stderr
+    lines = [line for line in result.stderr.splitlines() if line.startswith("batch: ")]
+    assert lines[-1].startswith("batch: 12/12 runs, ") and "elapsed" in lines[-1]
+    assert len(lines) >= 10 and "left" in lines[0]

@@ -131,7 +131,7 @@ def briefed(tmp_path_factory: pytest.TempPathFactory) -> Briefed:
                 "baseline": "current",
                 "levels": [
                     {"name": "current", "set": {}},
-                    {"name": "double_imaging", "note": MARKUP_NOTE,
+                    {"name": "double_imaging", "label": "Image twice as many", "note": MARKUP_NOTE,
                      "set": {"stations.gate_imaging.selection.fraction": 0.4}},
                 ],
             },
@@ -216,7 +216,7 @@ def test_scenario_section_says_where_the_baseline_is_overloaded(briefed: Briefed
     assert "The baseline is overloaded at" in scenario
     assert "station 'yard_dogs', evening (18-24 h): offered load 1.21" in scenario
     assert "miss their booked departure for want of places alone" in scenario
-    assert "double_imaging: station 'gate_imaging', evening" in scenario
+    assert "Image twice as many: station 'gate_imaging', evening" in scenario
 
 
 def test_every_figure_states_its_source_and_replications(briefed: Briefed) -> None:
@@ -268,6 +268,19 @@ def test_comparison_table_equals_a_pandas_computation(briefed: Briefed) -> None:
         assert _close(cell["data-difference-low"], dlow) and _close(cell["data-difference-high"], dhigh)
 
 
+def test_the_briefing_opens_with_a_bottom_line_of_at_most_three_sentences(briefed: Briefed) -> None:
+    md = briefed.markdown.replace("\\", "")
+    line = md[md.index("**Bottom line.**"):].split("\n")[0].removeprefix("**Bottom line.** ")
+    assert md.index("**Bottom line.**") < md.index("## 1.")
+    sentences = [s for s in re.split(r"(?<=[.])\s+(?=[A-Z])", line) if s]
+    assert 1 <= len(sentences) <= 3, sentences
+    assert "Under adaptive behaviour" in sentences[0]  # the headline scenario
+    assert "_" not in line  # display labels, no identifiers
+    if "is the policy to prefer" in line:  # which policy, its gain with an interval, cost and people
+        assert "95% interval" in sentences[0] and "staff-hours" in sentences[1] and "people who try" in line
+    assert 'data-claim="bottom-line"' in briefed.html
+
+
 def test_three_replications_carry_a_plain_warning(briefed: Briefed) -> None:
     md = briefed.markdown.replace("\\", "")
     comparison = md[md.index("Policy comparison"):]
@@ -308,7 +321,9 @@ def test_headline_names_the_best_policy_within_the_delay_limits(briefed: Briefed
         within = group[(group["time_in_port_p95_min"] <= 1.10 * base["time_in_port_p95_min"])
                        & (group["missed_departure_share"] <= base["missed_departure_share"] + 0.01)]
         assert claim["data-policy"] == within["detections"].idxmax()
-        assert claim["data-policy"] in claim["text"]
+        # display labels in headlines: the file's label, else the identifier in words; never the identifier
+        shown = {"current": "Current", "double_imaging": "Image twice as many"}[claim["data-policy"]]
+        assert shown in claim["text"] and "_" not in claim["text"].split(":")[0]
     crossings = next(c for c in briefed.page.claims if c["data-claim"] == "crossings")
     point = int(crossings["data-point"])
     assert _close(crossings["data-crossings"], runs.loc[runs["point"] == point, "crossings"].mean())
@@ -480,3 +495,29 @@ def test_a_sampled_design_briefs_with_what_it_supports(tmp_path: Path) -> None:
     assert {"question", "headline", "comparison", "figures", "estimators", "drivers", "method"} <= set(page.sections)
     assert "frontier" not in page.figures and "displacement" not in page.figures
     assert 'data-table="points"' in (out / "briefing.html").read_text(encoding="utf-8")
+
+
+def test_stakeholder_ties_and_costs_follow_one_convention(briefed: Briefed) -> None:
+    from abm.report.briefing import build
+    from abm.report.tables import MEASURE, STAKEHOLDERS, stakeholder_view
+
+    built = build(briefed.out)
+    runs = built.runs
+    for scenario in {tuple(v) for v in built.batch.points[built.batch.scenario_labels].itertuples(index=False)}:
+        view = stakeholder_view(built.batch, built.comparison, runs, scenario).set_index("stakeholder")
+        for s in STAKEHOLDERS:
+            pick = int(view.loc[s.name, "point"])
+            points = [p for p in built.batch.points.index if built.batch.scenario_of(p) == scenario]
+            mean = runs.groupby("point")[s.figure].mean()
+            best = max(points, key=lambda p: MEASURE[s.figure].better * mean[p])
+            if pick != best:  # a tie: the paired t-interval (scipy) of pick - best holds zero
+                diff = (runs[runs["point"] == pick].set_index("replication")[s.figure]
+                        - runs[runs["point"] == best].set_index("replication")[s.figure])
+                low, high = stats.t.interval(0.95, len(diff) - 1, loc=diff.mean(), scale=stats.sem(diff))
+                assert low <= 0 <= high and view.loc[s.name, "tied_with"]
+            for other in STAKEHOLDERS:
+                if other.name == s.name:
+                    continue
+                theirs = int(view.loc[s.name, f"pick:{other.name}"])
+                worse = MEASURE[other.figure].better * (mean[theirs] - mean[pick])  # positive: a cost to them
+                assert view.loc[s.name, f"cost:{other.name}"] == pytest.approx(worse, abs=1e-9)

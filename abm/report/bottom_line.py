@@ -1,0 +1,77 @@
+"""The briefing's bottom line: at most three plain sentences a decision-maker reads first.
+
+Which policy; what it gains (detections and crossings, each with its paired
+interval); what it costs (staff-hours, the 95th percentile of time in port,
+missed departures); and what it does to the people who try (pushed out of the
+crossing, and the hazard of where and how deep they board). It speaks about the
+headline scenario (adaptive behaviour when the batch has it) and the policy the
+headline names, with the same figures as the comparison table.
+"""
+
+from __future__ import annotations
+
+from typing import TYPE_CHECKING
+
+from .document import excludes_zero, interval, is_number, number
+
+if TYPE_CHECKING:
+    from .briefing import Context
+
+FIGURE_KIND = {"detections": "count", "crossings": "count", "staff_hours": "hours", "displaced_out": "count",
+               "hazard_weighted_share": "index", "time_in_port_p95_min": "minutes"}
+
+
+def _change(ctx: "Context", point: int, figure: str) -> tuple[str, bool] | None:
+    """ "+12 (95% interval +4 to +20)" and whether the interval excludes zero; None without the figure."""
+    row = ctx.cell(point, figure)
+    if row is None or not is_number(row["difference"]):
+        return None
+    kind = FIGURE_KIND[figure]
+    shown = number(row["difference"], kind, signed=True)
+    if not is_number(row["difference_low"]):
+        return f"{shown} (no interval: too few replications)", False
+    sure = excludes_zero(row["difference_low"], row["difference_high"])
+    if float(row["difference_low"]) == float(row["difference_high"]):
+        return shown, True  # the same in every replication (staff-hours)
+    return f"{shown} (95% interval {interval(row['difference_low'], row['difference_high'], kind, True)})", sure
+
+
+def bottom_line(ctx: "Context") -> str:
+    """At most three sentences: the policy and its gain, its cost, its effect on the people who try."""
+    scenario = ctx.primary()
+    under = ctx.under(scenario)
+    best = ctx.best.get(scenario)
+    others = [p for p in ctx.scenario_points[scenario] if ctx.batch.compare_to.get(p) is not None]
+    if ctx.batch.policy is None or not others:
+        return ("This batch compares no policies with a baseline; see the tables for each design point's figures, "
+                "which are model estimates, not counts.")
+    if best is None or ctx.batch.compare_to.get(best) is None:
+        return (f"{under}no policy tested finds more people than {ctx.baseline_name} within the delay limits "
+                f"({ctx.limits.describe(ctx.baseline_name)}), so the evidence here does not favour a change. "
+                "Every figure is a model estimate, not a count.")
+    policy = ctx.batch.policy_of(best)
+    detections, crossings = _change(ctx, best, "detections"), _change(ctx, best, "crossings")
+    gain = f"finds {detections[0]} people over {ctx.batch.days} days" if detections else "changes detections"
+    if crossings:
+        gain += f" and changes crossings by {crossings[0]}"
+    sure = bool(detections and detections[1])
+    first = (f"{under}{policy} is the policy to prefer within the delay limits: against {ctx.baseline_name} it {gain}"
+             + ("." if sure else ", though its gain in detections is not distinguishable from chance."))
+    costs = []
+    staff = _change(ctx, best, "staff_hours")
+    if staff:
+        costs.append(f"{staff[0]} staff-hours")
+    status = ctx.status.loc[best] if best in ctx.status.index else None
+    if status is not None and is_number(status["time_in_port_change"]):
+        costs.append(f"{number(status['time_in_port_change'], 'relative', True)} on the 95th percentile of time in "
+                     f"port and {number(status['missed_change_points'], 'rate', True)} percentage points of missed "
+                     "departures")
+    second = f"It costs {' and '.join(costs)}." if costs else ""
+    moved, hazard = _change(ctx, best, "displaced_out"), _change(ctx, best, "hazard_weighted_share")
+    people = []
+    if moved:
+        people.append(f"changes the people pushed out of the crossing to other routes by {moved[0]}")
+    if hazard:
+        people.append(f"changes the hazard of where and how deep they board by {hazard[0]} on a 0-1 scale")
+    third = f"For the people who try, it {' and '.join(people)}." if people else ""
+    return " ".join(part for part in (first, second, third) if part)

@@ -89,8 +89,10 @@ def _run_world(world_path: Path, days: int, seed: int, out: Path, argv: list[str
 
     world = load_world(world_path)
     from .experiment.batch import print_warning
+    from .experiment.single import refuse_existing
     from .port.load import load_report
 
+    refuse_existing(out)  # before the warnings, so a refused --out stays a one-line error
     for warning in load_report(world).warnings:
         print_warning(warning)
     from .progress import progress

@@ -98,7 +98,7 @@ import pandas as pd
 from pydantic import Field
 from scipy import optimize, stats
 
-from ..experiment.compare import bounded_mean_interval, figure_scale, mean_interval
+from ..experiment.compare import MIN_REPLICATIONS, bounded_mean_interval, figure_scale, mean_interval
 from ..experiment.design import read_project_file
 from ..errors import InputError
 from ..experiment.executors import Executor, choose_executor, make_executor
@@ -341,7 +341,11 @@ class PolicySearchResult:
             lines.append(f"  {path} = {_shown(value)}")
         if not self.best_changes:
             lines.append("  the world as it stands (no changes)")
-        lines.append(f"  on fresh seeds ({self.level:.0%} t-intervals over {reps} replications):")
+        lines.append(f"  on fresh seeds ({self.level:.0%} intervals over {reps} replications; log scale for counts "
+                     "and times, logit scale for shares):")
+        if reps < MIN_REPLICATIONS:
+            lines.append(f"  warning: only {reps} fresh replications: these intervals are unreliable; raise "
+                         f"selection.replications to at least {MIN_REPLICATIONS}")
         for figure in dict.fromkeys([p.objective, *(c.figure for c in p.constraints), *REPORTED]):
             if f"{figure}_mean" in sel.columns:
                 lines.append(

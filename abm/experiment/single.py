@@ -71,6 +71,12 @@ class RunDirectoryExists(InputError):
     """The output directory already holds something; runs never overwrite."""
 
 
+def refuse_existing(out: Path) -> None:
+    """Raise RunDirectoryExists when ``out`` exists: a run never writes over anything."""
+    if out.exists():
+        raise RunDirectoryExists(f"{out}: already exists; choose another output directory (nothing was overwritten)")
+
+
 def package_versions() -> dict[str, str]:
     """Installed versions of the packages a run depends on."""
     versions = {"python": sys.version.split()[0]}
@@ -198,8 +204,7 @@ def run_to_directory(
     which experiment run this is.
     """
     out = Path(out)
-    if out.exists():
-        raise RunDirectoryExists(f"{out}: already exists; choose another output directory (nothing was overwritten)")
+    refuse_existing(out)
     model = simulate(world, warmup + days, seed, progress)
     staging = out.with_name(f".{out.name}.partial")
     if staging.exists():

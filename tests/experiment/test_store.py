@@ -160,7 +160,11 @@ def test_a_run_that_raises_is_recorded_and_the_batch_goes_on(
     out = tmp_path / "out"
     assert main(["batch", str(path), "--out", str(out)]) == 1
     captured = capsys.readouterr()
-    assert captured.err.splitlines() == [f"undertow batch: 2 of 4 runs failed; errors in {out / FAILURES_TABLE}"]
+    errors = [line for line in captured.err.splitlines() if line.startswith("undertow batch:")]
+    assert errors == [f"undertow batch: 2 of 4 runs failed; errors in {out / FAILURES_TABLE}"]
+    # the load report saw it coming: vehicles selected with no lane on duty, under that policy only
+    assert any("station 'gate_imaging'" in line and "no lane is on duty" in line and "unstaffed_gate" in line
+               for line in captured.err.splitlines())
     failures = pd.read_parquet(out / FAILURES_TABLE)
     assert list(failures.columns) == ["run_id", "point", "replication", "seed", "error", "traceback"]
     assert list(failures["run_id"]) == ["p001-r00", "p001-r01"]

@@ -84,19 +84,16 @@ def print_summary(summary: dict, title: str) -> None:
 
 
 def _run_world(world_path: Path, days: int, seed: int, out: Path, argv: list[str]) -> int:
-    from .experiment.single import run_to_directory
+    from .experiment.batch import print_warning
+    from .experiment.single import refuse_existing, run_to_directory
+    from .port.load import load_report
+    from .progress import progress
     from .world import file_hash, load_world
 
     world = load_world(world_path)
-    from .experiment.batch import print_warning
-    from .experiment.single import refuse_existing
-    from .port.load import load_report
-
     refuse_existing(out)  # before the warnings, so a refused --out stays a one-line error
     for warning in load_report(world).warnings:
         print_warning(warning)
-    from .progress import progress
-
     with progress(days, "days", "simulating") as bar:
         summary = run_to_directory(world, file_hash(world_path), days, seed, out, command=argv, progress=bar.update)
     print_summary(summary, f"{world.name}: {days} days, seed {seed} -> {out}")
@@ -115,7 +112,8 @@ def cmd_run(args: argparse.Namespace) -> int:
     kind = _file_kind(args.world)
     if kind != "world":
         command = {"experiment": "batch", "calibration": "calibrate", "optimisation": "optimise"}[kind]
-        raise InputError(f"{world}: is {'an' if kind[0] in 'aeio' else 'a'} {kind} file; run it with undertow {command} {world} --out DIR")
+        article = "an" if kind[0] in "aeio" else "a"
+        raise InputError(f"{world}: is {article} {kind} file; run it with undertow {command} {world} --out DIR")
     out = Path(args.out) if args.out else Path("outputs") / f"{world.parent.name or world.stem}-seed{args.seed}"
     return _run_world(world, args.days, args.seed, out, ["undertow", *args.argv])
 

@@ -178,15 +178,6 @@ def crn_seeds(root: int, replications: int) -> tuple[int, ...]:
     return tuple(int(child.generate_state(1)[0]) for child in np.random.SeedSequence(root).spawn(replications))
 
 
-def is_experiment_file(path: str | Path) -> bool:
-    """True when ``path`` reads as an experiment (``kind: experiment`` or a top-level ``world:``)."""
-    try:
-        data = read_yaml_mapping(path)
-    except WorldFileError:
-        return False  # unreadable files are left to the world check, whose messages they already have
-    return data.get("kind") == "experiment" or "world" in data
-
-
 def load_plan(path: str | Path, calibration: str | Path | None = None) -> Plan:
     """Read, validate and expand an experiment file; raise ExperimentFileError (or WorldFileError).
 

@@ -51,7 +51,8 @@ def bottom_line(ctx: "Context") -> str:
                 "Every figure is a model estimate, not a count.")
     policy = ctx.batch.policy_of(best)
     detections, crossings = _change(ctx, best, "detections"), _change(ctx, best, "crossings")
-    gain = f"finds {detections[0]} people over {ctx.batch.days} days" if detections else "changes detections"
+    gain = (f"changes detections by {detections[0]} people over {ctx.batch.days} days" if detections
+            else "changes detections")
     if crossings:
         gain += f" and changes crossings by {crossings[0]}"
     sure = bool(detections and detections[1])

@@ -221,7 +221,7 @@ def cmd_brief(args: argparse.Namespace) -> int:
     formats = parse_formats(args.format)
     limits = DelayLimits(args.max_delay_increase / 100, args.max_missed_increase)
     briefing, paths = brief(args.out, args.baseline, formats, limits, ["undertow", *args.argv], _brief_stage)
-    print(f"Bottom line. {briefing.document.bottom_line}\n")
+    print(f"Bottom line (model estimates, not counts). {briefing.document.bottom_line}\n")
     for path in paths.values():
         print(path)
     return EXIT_OK

@@ -55,7 +55,7 @@ def test_the_demo_calibrates_compares_under_the_posterior_and_briefs(small_demo:
     printed = capsys.readouterr().out
     for stage in ("1/3 calibrating", "2/3 comparing policies", "3/3 writing the briefing"):
         assert f"undertow demo: {stage}" in printed
-    assert "persons who crossed undetected: " in printed and "self-check trials" in printed
+    assert "persons who eventually crossed (some after earlier detections): " in printed and "self-check trials" in printed
     record = json.loads((small_demo / "batch" / "experiment.json").read_text(encoding="utf-8"))
     assert Path(record["calibration"]["folder"]) == (small_demo / "calibration").resolve()
     summary = pd.read_parquet(small_demo / "batch" / "summary.parquet")

@@ -61,7 +61,7 @@ LATENT = ("attempts", "persons", "crossings", "crossings_after_last_check")
 LATENT_MEANING = {
     "attempts": "person-attempts",
     "persons": "distinct persons who tried",
-    "crossings": "persons who crossed undetected",
+    "crossings": "persons who eventually crossed (some after earlier detections)",
     "crossings_after_last_check": "crossings by persons who boarded after every station (no record can show them)",
 }
 # Column names of the particle tables besides the parameters; a prior may not take one.

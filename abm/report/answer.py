@@ -89,7 +89,8 @@ def _answer_in_words(view: CalibrationView) -> Paragraph:
 
     days = int(view.record["days"])
     text = (f"Over the {days} days of the agency's records, the calibrated model puts the people who tried at "
-            f"{figure('persons')} distinct persons, of whom {figure('crossings')} crossed undetected; "
+            f"{figure('persons')} distinct persons, of whom {figure('crossings')} eventually crossed (some after "
+            "being found on an earlier try); "
             f"{figure('crossings_after_last_check')} of those crossings boarded after the last check, where no "
             "record can see them.")
     if check is not None and "crossings" in check.index:
@@ -109,6 +110,14 @@ def _coverage_text(check: pd.DataFrame | None, quantity: str) -> tuple[str, dict
     return text, {"coverage": float(row["coverage"]), "trials": int(row["trials"])}
 
 
+def _unknown_label(quantity: str, prior: str) -> str:
+    """An unknown as the reader needs it: what it is, its prior, and whether it multiplies the world's value."""
+    if prior.endswith("(multiplier)"):
+        return (f"{quantity}: a multiplier on the world file's value (1 = as the file says); "
+                f"prior {prior.removesuffix('(multiplier)').strip()}")
+    return f"{quantity}: an unknown of the world; prior {prior}" if prior else f"{quantity} (unknown of the world)"
+
+
 def _calibrated_table(view: CalibrationView) -> Table:
     post = view.posterior.set_index("quantity")
     days = int(view.record["days"])
@@ -118,7 +127,7 @@ def _calibrated_table(view: CalibrationView) -> Table:
     for quantity in names:
         row = post.loc[quantity]
         latent = quantity in LATENT
-        label = LATENT_MEANING[quantity] if latent else f"{quantity} (unknown of the world)"
+        label = LATENT_MEANING[quantity] if latent else _unknown_label(quantity, str(row.get("about", "")))
         coverage, data = _coverage_text(view.self_check, quantity)
         kind = "count" if latent else "ratio"
         rows.append((

@@ -33,7 +33,28 @@ def _change(ctx: "Context", point: int, figure: str) -> tuple[str, bool] | None:
     sure = excludes_zero(row["difference_low"], row["difference_high"])
     if float(row["difference_low"]) == float(row["difference_high"]):
         return shown, True  # the same in every replication (staff-hours)
-    return f"{shown} (95% interval {interval(row['difference_low'], row['difference_high'], kind, True)})", sure
+    spread = interval(row["difference_low"], row["difference_high"], kind, True, like=row["difference"])
+    return f"{shown} (95% interval {spread})", sure
+
+
+def _other_behaviour(ctx: "Context", scenario: tuple, best: int, sure: bool) -> str:
+    """"; under static behaviour ... " when the batch also ran the same policy under another behaviour model
+    (saying the answer depends on the assumption when the gain is clear under one model and not the other)."""
+    if ctx.batch.behaviour is None:
+        return ""
+    parts, differs = [], False
+    for other, points in ctx.scenario_points.items():
+        if other == scenario:
+            continue
+        twin = next((p for p in points if ctx.batch.policy_of(p) == ctx.batch.policy_of(best)), None)
+        change = _change(ctx, twin, "detections") if twin is not None else None
+        if change is not None:
+            reading = "" if change[1] else ", not distinguishable from chance"
+            parts.append(f"under {ctx.scenario_text(other)} it changes detections by {change[0]}{reading}")
+            differs = differs or change[1] != sure
+    if not parts:
+        return ""
+    return "; " + "; ".join(parts) + (", so the answer depends on how people are assumed to behave" if differs else "")
 
 
 def bottom_line(ctx: "Context") -> str:
@@ -57,21 +78,22 @@ def bottom_line(ctx: "Context") -> str:
         gain += f" and changes crossings by {crossings[0]}"
     sure = bool(detections and detections[1])
     first = (f"{under}{policy} is the policy to prefer within the delay limits: against {ctx.baseline_name} it {gain}"
-             + ("." if sure else ", though its gain in detections is not distinguishable from chance."))
+             + ("" if sure else ", though its gain in detections is not distinguishable from chance")
+             + _other_behaviour(ctx, scenario, best, sure) + ".")
     costs = []
     staff = _change(ctx, best, "staff_hours")
     if staff:
-        costs.append(f"{staff[0]} staff-hours")
+        costs.append(f"It takes {staff[0]} staff-hours")
     status = ctx.status.loc[best] if best in ctx.status.index else None
     if status is not None and is_number(status["time_in_port_change"]):
-        costs.append(f"{number(status['time_in_port_change'], 'relative', True)} on the 95th percentile of time in "
-                     f"port and {number(status['missed_change_points'], 'rate', True)} percentage points of missed "
-                     "departures")
-    second = f"It costs {' and '.join(costs)}." if costs else ""
+        costs.append(f"changes the 95th percentile of time in port by "
+                     f"{number(status['time_in_port_change'], 'relative', True)} and missed departures by "
+                     f"{number(status['missed_change_points'], 'rate', True)} percentage points")
+    second = ("; it ".join(costs) if staff else "It " + costs[0]) + "." if costs else ""
     moved, hazard = _change(ctx, best, "displaced_out"), _change(ctx, best, "hazard_weighted_share")
     people = []
     if moved:
-        people.append(f"changes the people pushed out of the crossing to other routes by {moved[0]}")
+        people.append(f"changes the number pushed out of the crossing to other routes by {moved[0]}")
     if hazard:
         people.append(f"changes the hazard of where and how deep they board by {hazard[0]} on a 0-1 scale")
     third = f"For the people who try, it {' and '.join(people)}." if people else ""

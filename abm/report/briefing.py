@@ -359,8 +359,8 @@ def _estimate_sentence(ctx: Context, scenario: tuple) -> Item | None:
     else:  # an estimator whose intervals miss is not quoted with one
         figure = (f"{number(est['mean'])} (not reliable here: its {float(proxy['level']):.0%} intervals held the truth "
                   f"in {_pct(proxy['coverage'])} of runs, so no interval is quoted)")
-    text = (f"From observed records alone, {label} puts the person-attempts that got past the last check "
-            f"({ctx.evidence.last_station}) unfound at {figure} under "
+    text = (f"{ctx.under(scenario)}from observed records alone, {label} puts the person-attempts that got past the "
+            f"last check ({ctx.evidence.last_station}) unfound at {figure} under "
             f"{ctx.batch.policy_of(base)}, against the model's {_value(ctx, base, 'truth_past_checks')}.")
     if unseen is not None and cross is not None and cross["mean"] > 0:
         text += (f" A further {_value(ctx, base, 'crossings_after_checks')} crossings "
@@ -595,16 +595,15 @@ def section_assumptions(ctx: Context) -> Section:
             f"{ctx.baseline_name} under {reference} behaviour, under the other model, and how much the effect "
             "changes (the difference of the two, paired by replication, with its 95% interval). A change whose "
             "interval excludes zero means the answer depends on the assumption.", lead="Static against adaptive."))
-        picks = []
-        for scenario, point in ctx.best.items():
-            picks.append(f"{ctx.batch.policy_of(point)} under {ctx.scenario_text(scenario)}")
+        picks = [f"under {ctx.scenario_text(scenario)}, {ctx.batch.policy_of(point)}"
+                 for scenario, point in ctx.best.items()]
         if picks:
-            blocks.append(Paragraph("The policy detecting most within the delay limits is " + "; ".join(picks) + "."))
+            blocks.append(Paragraph("The policy detecting most within the delay limits: " + "; ".join(picks) + "."))
         rows = []
         for _, r in ctx.contrast.iterrows():
             kind = MEASURE[r["figure"]].kind
             rows.append((
-                Cell(str(r["policy"]), {"point": r["point"]}, header=True),
+                Cell(b.policy_label(r["policy"]), {"point": r["point"]}, header=True),
                 Cell(f"{MEASURE[r['figure']].label} ({MEASURE[r['figure']].source})"),
                 Cell(number(r["effect_reference"], kind, True),
                      {"figure": r["figure"], "value": r["effect_reference"]}),
@@ -673,7 +672,7 @@ def _stakeholder_table(ctx: Context, scenario: tuple, index: int) -> Table:
     caption = (f"Stakeholders: {ctx.scenario_text(scenario)}. Each prefers the policy best on their own figure; "
                "policies indistinguishable from it (paired 95% interval of the difference holds zero) are a tie, "
                "settled by their next figure. A cost is positive: how much worse another stakeholder's own figure "
-               "is under this preference than under theirs, with its paired 95% interval")
+               "is under this preference than under theirs, with its paired 95% interval (a negative cost is a gain)")
     return Table(f"stakeholders-{index}", caption, tuple(columns), tuple(rows))
 
 

@@ -278,6 +278,7 @@ def test_the_briefing_opens_with_a_bottom_line_of_at_most_three_sentences(briefe
     assert "_" not in line  # display labels, no identifiers
     if "is the policy to prefer" in line:  # which policy, its gain with an interval, cost and people
         assert "95% interval" in sentences[0] and "staff-hours" in sentences[1] and "people who try" in line
+        assert "time in port" in sentences[1]
     assert 'data-claim="bottom-line"' in briefed.html
 
 

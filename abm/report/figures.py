@@ -60,6 +60,11 @@ def _figure(width: float, height: float) -> Figure:
     return fig
 
 
+def _words(name: object) -> str:
+    """A world name on an axis as words: "north_lay_by" -> "north lay by"."""
+    return _t(str(name).replace("_", " "))
+
+
 def _png(fig: Figure, footer: str) -> bytes:
     fig.text(0.01, 0.01, _t(footer), fontsize=7.5, color="#444444", ha="left", va="bottom")
     FigureCanvasAgg(fig)
@@ -107,8 +112,9 @@ def frontier_figure(
                     fmt=marker, color=colour, markersize=7 if p.on_frontier else 5,
                     markerfacecolor=colour if p.within else "white", capsize=2, linewidth=0.9,
                 )
-                ax.annotate(_t(p.label), (p.time_in_port[0], p.detections[0]), xytext=(5, 4),
-                            textcoords="offset points", fontsize=7.5, color="#222222")
+                # each scenario's labels on their own line above the marker, so near markers do not overprint
+                ax.annotate(_t(p.label), (p.time_in_port[0], p.detections[0]), xytext=(5, 4 + 10 * k),
+                            textcoords="offset points", fontsize=7.5, color=colour if k else "#222222")
             on = sorted((p for p in points if p.on_frontier), key=lambda p: p.time_in_port[0])
             ax.plot([p.time_in_port[0] for p in on], [p.detections[0] for p in on], linestyle=line, color=colour,
                     marker=marker, markersize=0, linewidth=1.4, label=_t(f"{scenario}: efficient frontier"))
@@ -154,8 +160,8 @@ def heatmap_figure(
         for ax, (title, table, _, beyond) in zip(axes.flat, panels):
             values = table.to_numpy(dtype=float)
             image = ax.imshow(values, cmap=cmap, vmin=-span, vmax=span, aspect="auto")
-            ax.set_xticks(range(table.shape[1]), [_t(c) for c in table.columns], rotation=30, ha="right")
-            ax.set_yticks(range(table.shape[0]), [_t(i) for i in table.index])
+            ax.set_xticks(range(table.shape[1]), [_words(c) for c in table.columns], rotation=30, ha="right")
+            ax.set_yticks(range(table.shape[0]), [_words(i) for i in table.index])
             ax.set_title(_t(title))
             for (i, j), value in np.ndenumerate(values):
                 shade = cmap((value + span) / (2 * span))

@@ -32,6 +32,7 @@ from ..calibration.target import load_target
 from ..errors import InputError
 from ..estimate.report import run_all
 from ..world import load_world
+from .context import percent
 from .document import Bullets, Cell, Item, Paragraph, Section, Table, interval, number
 from .evidence import ALL_BEHAVIOURS, Evidence
 from .store_view import BatchView
@@ -95,7 +96,7 @@ def _answer_in_words(view: CalibrationView) -> Paragraph:
             "record can see them.")
     if check is not None and "crossings" in check.index:
         text += (f" Its self-check found intervals like these held the known truth in "
-                 f"{_pct(check.loc['crossings', 'coverage'])} of {int(check.loc['crossings', 'trials'])} trials "
+                 f"{percent(check.loc['crossings', 'coverage'])} of {int(check.loc['crossings', 'trials'])} trials "
                  f"(nominal {view.level:.0%}).")
     else:
         text += " How often such intervals hold the truth was not measured (no self-check)."
@@ -106,7 +107,7 @@ def _coverage_text(check: pd.DataFrame | None, quantity: str) -> tuple[str, dict
     if check is None or quantity not in set(check["quantity"]):
         return "not measured", {}
     row = check.set_index("quantity").loc[quantity]
-    text = f"{_pct(row['coverage'])} of {int(row['trials'])}\n{_pct(row['coverage_low'])} to {_pct(row['coverage_high'])}"
+    text = f"{percent(row['coverage'])} of {int(row['trials'])}\n{percent(row['coverage_low'])} to {percent(row['coverage_high'])}"
     return text, {"coverage": float(row["coverage"]), "trials": int(row["trials"])}
 
 
@@ -166,7 +167,7 @@ def _estimator_rows(view: CalibrationView, evidence: Evidence) -> tuple[list[tup
             ok = bool(m["eligible"]) and within_nominal(float(m["coverage"]), float(m["level"]))
             reliable += ok
             batch_text = (f"bias {number(m['relative_bias'], 'relative', True)}; its {float(m['level']):.0%} intervals "
-                          f"held the truth in {_pct(m['coverage'])} of {int(m['n'])} runs")
+                          f"held the truth in {percent(m['coverage'])} of {int(m['n'])} runs")
             verdict = "reliable here" if ok else "not reliable here"
             data = {"slug": slug, "coverage": float(m["coverage"]), "reliable": str(ok).lower()}
         else:
@@ -186,10 +187,6 @@ def _assumptions_line(assumptions: tuple[str, ...]) -> str:
     """The first assumption (what the family shares) and the last (what this estimator adds), as one line."""
     picked = list(dict.fromkeys((assumptions[0], assumptions[-1]))) if assumptions else []
     return "; ".join(picked) + ("; …" if len(assumptions) > len(picked) else "")
-
-
-def _pct(share: float) -> str:
-    return f"{100 * float(share):.0f}%" if math.isfinite(float(share)) else "n/a"
 
 
 def _why_estimators_fail(batch: BatchView) -> str:

@@ -15,7 +15,7 @@ from typing import TYPE_CHECKING
 from .document import excludes_zero, interval, is_number, number
 
 if TYPE_CHECKING:
-    from .briefing import Context
+    from .context import Context
 
 FIGURE_KIND = {"detections": "count", "crossings": "count", "staff_hours": "hours", "displaced_out": "count",
                "hazard_weighted_share": "index", "time_in_port_p95_min": "minutes"}

@@ -1,0 +1,486 @@
+"""An optimisation file run on the port model: the file's schema, its validation, the model as evaluator, the store.
+
+:func:`load_optimisation` reads and checks a ``kind: optimisation`` file (every
+candidate's world is validated before any run), :class:`ModelEvaluator` turns
+candidates into changed worlds and replications into runs through a batch
+executor, and :func:`run_optimisation` runs :func:`abm.analysis.policy_search.search_policy`
+into an output folder that ``--resume`` takes up. The method itself is described
+in :mod:`abm.analysis.policy_search`.
+"""
+
+from __future__ import annotations
+
+import difflib
+import hashlib
+import json
+import math
+import sys
+from collections.abc import Callable, Mapping, Sequence
+from dataclasses import dataclass, field
+from pathlib import Path
+from typing import Annotated, Any, Literal
+
+import numpy as np
+import pandas as pd
+from pydantic import Field
+
+from ..errors import InputError
+from ..experiment.design import read_project_file
+from ..experiment.executors import Executor, choose_executor, make_executor
+from ..experiment.single import package_versions
+from ..experiment.worker import SUMMARY_FILE, RunTask, is_complete
+from ..records import METHODS_FILE, write_atomically, write_json, write_parquet
+from ..world import WorldFileError, file_hash, parse_world, read_yaml_mapping
+from ..world.paths import PathProblem, apply_changes, set_path
+from ..world.schema import NumberOnly, Strict
+from .policy_search import (
+    FIGURE_SOURCES, FIGURES, Allocation, Constraint, PolicySearchError, PolicySearchResult, Problem, SearchSettings,
+    Variable, candidate_id, search_policy,
+)
+
+CURRENT = "current"  # the name given to the world as it stands when the file names no such policy
+
+class OptimisationFileError(WorldFileError):
+    """An optimisation file that cannot be used, with the key path at fault. ``str()`` is one line."""
+
+
+# -- the port model as an evaluator --------------------------------------------------------------
+
+
+class ModelEvaluator:
+    """Candidates as changed worlds, replications as runs through a batch executor (entered by the caller).
+
+    A run lives in ``OUT/runs/<candidate id>/<seed>``; one found complete is
+    read, not run again. A candidate whose changed world is invalid gives NaN
+    figures (the search counts it infeasible).
+    """
+
+    figures = FIGURES
+
+    def __init__(
+        self,
+        world: Mapping[str, Any],
+        world_sha256: str,
+        days: int,
+        warmup: int,
+        out: Path,
+        executor: Executor,
+        command: Sequence[str] = (),
+    ) -> None:
+        self.world = dict(world)
+        self.world_sha256 = world_sha256
+        self.days, self.warmup = days, warmup
+        self.out = Path(out)
+        self.executor = executor
+        self.command = tuple(command)
+        self.ran = 0
+        self.reused = 0
+        self.invalid: dict[str, str] = {}  # candidate id -> why its world is invalid
+
+    def run_dir(self, cid: str, seed: int) -> Path:
+        return self.out / "runs" / cid / str(seed)
+
+    def __call__(self, candidates: Sequence[Mapping[str, Any]], seeds: Sequence[int]) -> np.ndarray:
+        out = np.full((len(candidates), len(seeds), len(self.figures)), np.nan)
+        tasks, where = [], {}
+        for k, changes in enumerate(candidates):
+            cid = candidate_id(changes)
+            try:
+                world = apply_changes(self.world, dict(changes))
+                parse_world(world, f"<candidate {cid}>")
+            except (WorldFileError, PathProblem) as exc:
+                self.invalid[cid] = str(exc)
+                continue
+            write_json({"candidate": cid, "set": dict(changes)}, self.out / "candidates" / f"{cid}.json")
+            for r, seed in enumerate(seeds):
+                run_dir = self.run_dir(cid, seed)
+                where[f"{cid}/{seed}"] = (k, r, run_dir)
+                if is_complete(run_dir):
+                    self.reused += 1
+                    continue
+                run_dir.parent.mkdir(parents=True, exist_ok=True)
+                tasks.append(
+                    RunTask(
+                        run_id=f"{cid}/{seed}",
+                        point=k,
+                        replication=r,
+                        seed=int(seed),
+                        days=self.days,
+                        warmup=self.warmup,
+                        world=world,
+                        world_sha256=self.world_sha256,
+                        out=str(run_dir.resolve()),
+                        command=self.command,
+                        values={path: value for path, value in changes.items() if isinstance(value, (int, float, str))},
+                    )
+                )
+        failed = set()
+        for answer in self.executor.imap(tasks):
+            if answer["ok"]:
+                self.ran += 1
+            else:
+                failed.add(answer["run_id"])
+                print(f"policy search: run {answer['run_id']} failed: {answer['error']}", file=sys.stderr)
+        for key, (k, r, run_dir) in where.items():
+            if key not in failed:
+                out[k, r] = run_figures(run_dir, self.warmup)
+        return out
+
+
+def run_figures(run_dir: Path, warmup: int) -> np.ndarray:
+    """A run's :data:`FIGURES`: its summary's numbers, check hours after the warm-up and encounters."""
+    summary = json.loads((run_dir / SUMMARY_FILE).read_text(encoding="utf-8"))
+    methods = pd.read_parquet(run_dir / METHODS_FILE, columns=["day", "check_minutes"])
+    derived = {
+        "check_hours": float(methods.loc[methods["day"] >= warmup, "check_minutes"].sum()) / 60.0,
+        "encounters": float(summary["detections"]) + float(summary["interdictions"]),
+    }
+    values = []
+    for figure in FIGURES:
+        value = derived[figure] if figure in derived else summary.get(figure)
+        values.append(float(value) if isinstance(value, (int, float)) and not isinstance(value, bool) else math.nan)
+    return np.array(values)
+
+
+# -- optimisation files -----------------------------------------------------------------------
+
+
+Number = Annotated[float, NumberOnly]
+WholeNumber = Annotated[int, Field(ge=0), NumberOnly]
+AtLeastOne = Annotated[int, Field(ge=1), NumberOnly]
+AtLeastTwo = Annotated[int, Field(ge=2), NumberOnly]
+OpenShare = Annotated[float, Field(gt=0.0, lt=1.0), NumberOnly]
+Positive = Annotated[float, Field(gt=0.0), NumberOnly]
+
+
+class ObjectiveSpec(Strict):
+    figure: str
+    sense: Literal["minimise", "maximise"]
+
+
+class VariableSpec(Strict):
+    path: str = Field(min_length=1)
+    bounds: tuple[Number, Number]
+    integer: bool = False
+
+
+class AllocationPath(Strict):
+    path: str = Field(min_length=1)
+    weight: Positive = 1.0
+    max: Annotated[float, Field(ge=0.0), NumberOnly] | None = None
+
+
+class AllocationSpec(Strict):
+    name: str = Field(min_length=1, max_length=80)
+    total: Positive
+    integer: bool = False
+    paths: list[AllocationPath] = Field(min_length=2)
+
+
+class ConstraintSpec(Strict):
+    figure: str
+    max: Number | None = None
+    min: Number | None = None
+
+
+class PolicySpec(Strict):
+    name: str = Field(min_length=1, max_length=80)
+    note: str = ""
+    set: dict[str, Any] = Field(default_factory=dict)
+
+
+class SearchSpec(Strict):
+    popsize: AtLeastOne = Field(8, description="candidates per generation for each search dimension: a generation "
+                                "holds popsize x dimensions candidates (scipy's meaning)")
+    maxiter: AtLeastOne = Field(10, description="the most generations the search runs")
+    tol: Annotated[float, Field(ge=0.0), NumberOnly] = 0.01
+    mutation: tuple[Number, Number] = (0.5, 1.0)
+    recombination: Annotated[float, Field(ge=0.0, le=1.0), NumberOnly] = 0.7
+    init: Literal["latinhypercube", "sobol", "halton", "random"] = "latinhypercube"
+
+
+class SelectionSpec(Strict):
+    top: AtLeastOne = 3
+    replications: AtLeastTwo = 8
+    alpha: OpenShare = 0.05
+    level: OpenShare = 0.95
+
+
+class Optimisation(Strict):
+    """A whole optimisation file."""
+
+    kind: Literal["optimisation"] = "optimisation"
+    name: str = Field(min_length=1, max_length=200)
+    note: str = ""
+    world: str = Field(min_length=1)
+    days: AtLeastOne
+    warmup_days: WholeNumber = 0
+    replications: AtLeastOne = 3
+    seed: WholeNumber
+    objective: ObjectiveSpec
+    variables: list[VariableSpec] = Field(default_factory=list)
+    allocations: list[AllocationSpec] = Field(default_factory=list)
+    constraints: list[ConstraintSpec] = Field(default_factory=list)
+    policies: list[PolicySpec] = Field(default_factory=list)
+    search: SearchSpec = Field(default_factory=SearchSpec)
+    selection: SelectionSpec = Field(default_factory=SelectionSpec)
+
+
+@dataclass(frozen=True, eq=False)
+class OptimisationPlan:
+    """A validated optimisation file, ready to search."""
+
+    source: Path
+    spec: Optimisation
+    world_path: Path
+    world_data: dict[str, Any]
+    world_sha256: str
+    problem: Problem
+    settings: SearchSettings
+    policies: dict[str, dict[str, Any]] = field(default_factory=dict)
+
+    def digest(self) -> str:
+        text = json.dumps(
+            {"optimisation": self.spec.model_dump(mode="json"), "world": self.world_data},
+            sort_keys=True,
+            default=str,
+            separators=(",", ":"),
+        )
+        return hashlib.sha256(text.encode("utf-8")).hexdigest()
+
+
+def load_optimisation(path: str | Path) -> OptimisationPlan:
+    """Read and validate an optimisation file; raise :class:`OptimisationFileError` naming the key at fault."""
+    source, data, spec = read_project_file(path, Optimisation, OptimisationFileError)
+
+    def fail(key: str, message: str) -> OptimisationFileError:
+        return OptimisationFileError(source, key, message)
+
+    world_path = source.parent / spec.world
+    if not world_path.is_file():
+        raise fail("world", f"no world file at {world_path}")
+    world_data = read_yaml_mapping(world_path)
+    world = parse_world(world_data, world_path)
+    _check_figure(spec.objective.figure, "objective.figure", fail)
+    constraints = []
+    for i, c in enumerate(spec.constraints):
+        _check_figure(c.figure, f"constraints[{i}].figure", fail)
+        if (c.max is None) == (c.min is None):
+            raise fail(f"constraints[{i}]", "give exactly one of max or min")
+        if c.figure == "missed_departure_share" and world.departures is None:
+            raise fail(f"constraints[{i}].figure", "the world has no departures, so no departure can be missed")
+        constraints.append(Constraint(c.figure, c.max, c.min))
+    variables = [_variable(spec, i, world_data, fail) for i in range(len(spec.variables))]
+    allocations = [_allocation(spec, i, world_data, fail) for i in range(len(spec.allocations))]
+    if not variables and not allocations:
+        raise fail("variables", "a search needs at least one variable or allocation")
+    seen: dict[str, str] = {}
+    for key, paths in [(f"variables[{i}]", [v.path]) for i, v in enumerate(variables)] + [
+        (f"allocations[{i}]", list(a.paths)) for i, a in enumerate(allocations)
+    ]:
+        for p in paths:
+            if p in seen:
+                raise fail(key, f"changes {p}, which {seen[p]} also changes; one decision per value")
+            seen[p] = key
+    policies: dict[str, dict[str, Any]] = {}
+    for i, policy in enumerate(spec.policies):
+        if policy.name in policies:
+            raise fail(f"policies[{i}].name", f"the policy name '{policy.name}' is used twice")
+        _check_world(world_data, policy.set, fail, f"policies[{i}].set")
+        policies[policy.name] = dict(policy.set)
+    if not any(not changes for changes in policies.values()):  # the world as it stands is always a finalist
+        policies[CURRENT if CURRENT not in policies else f"{CURRENT}_setting"] = {}
+    problem = Problem(tuple(variables), tuple(allocations), spec.objective.figure, spec.objective.sense, tuple(constraints))
+    s, sel = spec.search, spec.selection
+    settings = SearchSettings(
+        replications=spec.replications,
+        popsize=s.popsize,
+        maxiter=s.maxiter,
+        tol=s.tol,
+        mutation=(float(s.mutation[0]), float(s.mutation[1])),
+        recombination=s.recombination,
+        init=s.init,
+        top=sel.top,
+        selection_replications=sel.replications,
+        alpha=sel.alpha,
+        level=sel.level,
+    )
+    return OptimisationPlan(source, spec, world_path, world_data, file_hash(world_path), problem, settings, policies)
+
+
+def _check_figure(figure: str, key: str, fail: Callable[[str, str], OptimisationFileError]) -> None:
+    if figure not in FIGURE_SOURCES or figure == "days":
+        close = difflib.get_close_matches(figure, FIGURES, n=1, cutoff=0.5)
+        hint = f"; did you mean '{close[0]}'?" if close else f"; expected one of {', '.join(f for f in FIGURES if f != 'days')}"
+        raise fail(key, f"unknown figure '{figure}'{hint}")
+
+
+def _check_world(
+    world: dict[str, Any], changes: Mapping[str, Any], fail: Callable[[str, str], OptimisationFileError], key: str, prefix: str = ""
+) -> None:
+    data = world
+    for path, value in changes.items():
+        try:
+            data = set_path(data, path, value)
+        except PathProblem as exc:
+            raise fail(f"{key}.{path}" if key.endswith(".set") else key, f"{prefix}{exc}") from None
+    try:
+        parse_world(data, "<candidate>")
+    except WorldFileError as exc:
+        raise fail(key, f"{prefix}in the world, {exc.path}: {exc.message}") from None
+
+
+def _variable(spec: Optimisation, i: int, world: dict[str, Any], fail: Callable[[str, str], OptimisationFileError]) -> Variable:
+    v = spec.variables[i]
+    low, high = v.bounds
+    if not low < high:
+        raise fail(f"variables[{i}].bounds", f"expected low < high, got [{low:g}, {high:g}]")
+    if v.integer and (low != int(low) or high != int(high)):
+        raise fail(f"variables[{i}].bounds", f"an integer variable needs whole-number bounds, got [{low:g}, {high:g}]")
+    for end, value in (("low", low), ("high", high)):
+        shown = int(value) if v.integer else float(value)
+        _check_world(world, {v.path: shown}, fail, f"variables[{i}].path", f"at the {end} bound, ")
+    return Variable(v.path, float(low), float(high), v.integer)
+
+
+def _allocation(
+    spec: Optimisation, i: int, world: dict[str, Any], fail: Callable[[str, str], OptimisationFileError]
+) -> Allocation:
+    a = spec.allocations[i]
+    key = f"allocations[{i}]"
+    if a.integer and (any(p.weight != 1 for p in a.paths) or a.total != int(a.total)):
+        raise fail(key, "an integer allocation needs unit weights and a whole-number total")
+    allocation = Allocation(
+        a.name,
+        float(a.total),
+        tuple(p.path for p in a.paths),
+        tuple(float(p.weight) for p in a.paths),
+        tuple(None if p.max is None else float(p.max) for p in a.paths),
+        a.integer,
+    )
+    # The extremes: everything to the first path, everything to the last.
+    for shares, what in (([1.0] * allocation.dim, "the first path"), ([0.0] * allocation.dim, "the last path")):
+        _check_world(world, allocation.decode(shares), fail, key, f"with the total on {what}, ")
+    return allocation
+
+
+# -- running an optimisation file -------------------------------------------------------------
+
+HEADER = "optimisation.json"
+
+
+def _open_store(out: Path, plan: OptimisationPlan, command: Sequence[str], resume: bool) -> None:
+    header = out / HEADER
+    if out.exists() and not out.is_dir():
+        raise PolicySearchError(f"{out}: is a file; --out needs a folder")
+    if header.is_file():
+        if not resume:
+            raise PolicySearchError(
+                f"{out}: already holds a policy search; pass --resume to finish it, or choose another --out "
+                "(nothing was overwritten)"
+            )
+        if json.loads(header.read_text(encoding="utf-8")).get("optimisation_sha256") != plan.digest():
+            raise PolicySearchError(
+                f"{out}: holds a different policy search (the file or its world changed); choose another --out "
+                "(nothing was overwritten)"
+            )
+        return
+    if out.is_dir() and any(out.iterdir()):
+        raise PolicySearchError(f"{out}: is not empty and holds no policy search; choose another --out (nothing was overwritten)")
+    out.mkdir(parents=True, exist_ok=True)
+    write_json(
+        {
+            "optimisation": plan.spec.model_dump(mode="json"),
+            "optimisation_file": str(plan.source),
+            "optimisation_sha256": plan.digest(),
+            "world_file": str(plan.world_path),
+            "world_sha256": plan.world_sha256,
+            "packages": package_versions(),
+            "command": list(command),
+        },
+        header,
+    )
+
+
+def run_optimisation(
+    plan: OptimisationPlan,
+    out: str | Path,
+    executor: Executor,
+    resume: bool = False,
+    command: Sequence[str] = (),
+    figure: bool = True,
+    progress: Callable[[int], None] | None = None,
+) -> PolicySearchResult:
+    """Search a validated plan with an executor the caller has entered; write the tables, summary and figure."""
+    out = Path(out)
+    _open_store(out, plan, command, resume)
+    evaluate = ModelEvaluator(
+        plan.world_data, plan.world_sha256, plan.spec.days, plan.spec.warmup_days, out, executor, command
+    )
+    result = search_policy(
+        evaluate, plan.problem, plan.settings, seed=plan.spec.seed, policies=plan.policies, name=plan.spec.name,
+        progress=progress,
+    )
+    result.search.update({"runs": evaluate.ran, "reused": evaluate.reused, "invalid": dict(evaluate.invalid)})
+    write_parquet(_plain(result.selection), out / "selection.parquet")
+    write_parquet(_plain(result.history), out / "history.parquet")
+    write_parquet(_plain(result.frontier), out / "frontier.parquet")
+    write_atomically(out / "summary.txt", lambda tmp: tmp.write_text(result.summary() + "\n", encoding="utf-8"))
+    if figure:
+        fig = result.frontier_figure()
+        write_atomically(out / "frontier.png", lambda tmp: fig.savefig(tmp, dpi=110, format="png"))
+    return result
+
+
+def _plain(frame: pd.DataFrame) -> pd.DataFrame:
+    """Columns of mixed values (a policy's settings) as JSON text, so the table writes to Parquet."""
+    out = frame.copy()
+    for column in out.columns:
+        if out[column].dtype == object:
+            kinds = {type(v) for v in out[column] if v is not None and not (isinstance(v, float) and math.isnan(v))}
+            if len(kinds) > 1 or (kinds and not kinds <= {str}):
+                out[column] = [json.dumps(v, default=str) for v in out[column]]
+    return out
+
+
+def describe_optimisation(path: str | Path) -> str:
+    """Validate an optimisation file and say what it would run, in one line."""
+    plan = load_optimisation(path)
+    spec, p = plan.spec, plan.problem
+    dims = len(p.bounds())
+    return (
+        f"{path}: ok (optimisation {spec.name}; {p.sense} {p.objective} over {dims} search dimension(s), "
+        f"popsize {plan.settings.popsize} x {dims} = {plan.settings.popsize * dims} candidates per generation for at "
+        f"most {plan.settings.maxiter} generations, "
+        f"{len(p.constraints)} constraint(s), {len(plan.policies)} named policies; {spec.replications} CRN "
+        f"replications per candidate, selection {plan.settings.top} + named x {plan.settings.selection_replications} "
+        f"fresh seeds; runs of {spec.warmup_days}+{spec.days} days; world {plan.world_path})"
+    )
+
+
+def optimise_command(
+    path: str | Path,
+    out: str | Path | None,
+    executor: str | None,
+    workers: int | None,
+    scheduler: str | None,
+    resume: bool,
+    check: bool,
+    command: Sequence[str],
+) -> None:
+    """``undertow optimise``: validate (``check``) or search, and print the summary."""
+    if check:
+        print(describe_optimisation(path))
+        return
+    if out is None:
+        raise InputError("--out: a policy search needs an output folder (or pass --check to only validate the file)")
+    executor = choose_executor(executor, workers, scheduler)
+    plan = load_optimisation(path)
+    from ..progress import progress
+
+    with make_executor(executor, workers, scheduler) as runner, progress(
+        plan.settings.maxiter, "generations", "policy search"
+    ) as bar:
+        result = run_optimisation(plan, out, runner, resume, command, progress=bar.update)
+    print(result.summary())
+    print(f"\nselection.parquet, history.parquet, frontier.parquet, summary.txt and frontier.png in {out}", file=sys.stderr)

@@ -164,7 +164,9 @@ def _station_rows(world: World, lay: Layout, rate: np.ndarray) -> tuple[list[dic
         for b, band in enumerate(world.band_names):
             hours = np.flatnonzero(lay.band_of_hour == b)
             offered, given = work[s, hours].sum(), capacity[hours].sum()
-            load = np.nan if offered == 0 else (np.inf if given == 0 else offered / given)
+            no_lane = offered > 0 and given == 0
+            with np.errstate(over="ignore"):
+                load = np.nan if offered == 0 else (np.inf if no_lane else offered / given)
             peak = np.nan if np.isnan(hourly[hours]).all() else float(np.nanmax(hourly[hours]))
             span = world.time_bands[band]
             rows.append({
@@ -172,7 +174,7 @@ def _station_rows(world: World, lay: Layout, rate: np.ndarray) -> tuple[list[dic
                 "hours": f"{span[0]:02d}-{span[1]:02d}", "arrivals_per_hour": arrivals[s, hours].mean(),
                 "lanes": lanes[s, hours].mean(), "load": load, "busiest_hour_load": peak,
             })
-            if np.isinf(load):
+            if no_lane:
                 warnings.append(f"warning: station '{station.name}', {band} ({span[0]:02d}-{span[1]:02d} h): "
                                 f"vehicles are selected but no lane is on duty; staff a lane in the roster or "
                                 f"select none in this band")

@@ -9,7 +9,7 @@ from __future__ import annotations
 import difflib
 from collections.abc import Iterable
 
-from .schema import DEFAULT_KEY, MONTHS, World
+from .schema import DEFAULT_KEY, MONTHS, World, covers_no_hour
 
 
 class ReferenceProblem(ValueError):
@@ -221,8 +221,8 @@ def _check_suspended_method(world: World, i: int) -> None:
 def _check_bands(world: World) -> None:
     owner: dict[int, str] = {}
     for name, span in world.time_bands.items():
-        if span[0] == span[1]:
-            raise ReferenceProblem(f"time_bands.{name}", "a band needs start hour != end hour")
+        if covers_no_hour(span):
+            raise ReferenceProblem(f"time_bands.{name}", f"a band needs hours to cover; {list(span)} covers none")
         for hour in hours_of(span):
             if hour in owner:
                 raise ReferenceProblem(f"time_bands.{name}", f"hour {hour} is already in band '{owner[hour]}'")

@@ -38,6 +38,11 @@ DEFAULT_KEY = "default"
 MONTHS = ("jan", "feb", "mar", "apr", "may", "jun", "jul", "aug", "sep", "oct", "nov", "dec")
 
 
+def covers_no_hour(span: tuple[int, int]) -> bool:
+    """True for a [start, end) span with no hour in it: equal ends, or [24, 0] (24 wraps to 0)."""
+    return span[0] % 24 == span[1] % 24 and not (span[0] == 0 and span[1] == 24)
+
+
 class Strict(BaseModel):
     """Base for every section: unknown keys are errors, values are not coerced loosely."""
 
@@ -280,8 +285,8 @@ class Posting(Strict):
 
     @model_validator(mode="after")
     def _shift_not_empty(self) -> "Posting":
-        if self.hours[0] == self.hours[1]:
-            raise ValueError("a posting needs start hour != end hour")
+        if covers_no_hour(self.hours):
+            raise ValueError(f"a posting needs hours to cover; {list(self.hours)} covers none")
         return self
 
 
@@ -299,8 +304,8 @@ class Team(Strict):
 
     @model_validator(mode="after")
     def _shift_not_empty(self) -> "Team":
-        if self.hours[0] == self.hours[1]:
-            raise ValueError("a shift needs start hour != end hour")
+        if covers_no_hour(self.hours):
+            raise ValueError(f"a shift needs hours to cover; {list(self.hours)} covers none")
         return self
 
 

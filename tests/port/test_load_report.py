@@ -172,3 +172,9 @@ def test_batch_gives_each_warning_once_naming_the_points_it_holds_for(tmp_path: 
     assert len(seen) == 3 and len(set(seen)) == 3  # gate's three bands, each once, though two runs use that world
     assert all(w.startswith("warning: station 'gate'") and w.endswith("(design points: policy='one_gate_lane')")
                for w in seen)
+
+
+def test_overflowing_traffic_is_overload_not_a_missing_lane() -> None:
+    world = terminal(traffic={"vehicles_per_day": 1e306, "hourly_profile": [1] * 24})
+    text = "\n".join(load_report(parse_world(world)).warnings)
+    assert "no lane is on duty" not in text and "station 'gate', day (08-20 h): offered load" in text

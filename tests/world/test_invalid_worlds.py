@@ -664,3 +664,21 @@ def test_demo_world_validates_through_console_script() -> None:
     assert result.returncode == 0, result.stderr
     assert result.stderr == ""
     assert "ok" in result.stdout
+
+
+@pytest.mark.parametrize("where, span", [("band", [24, 0]), ("shift", [24, 0]), ("shift", [7, 7])])
+def test_hours_that_cover_nothing_are_refused_in_one_line(where: str, span: list[int], tmp_path: Path,
+                                                         capsys: pytest.CaptureFixture[str]) -> None:
+    # [24, 0] wraps to nothing: it used to pass validation and end in an internal error in the engine
+    data = yaml.safe_load((ROOT / "worlds" / "reference" / "mmc" / "world.yaml").read_text(encoding="utf-8"))
+    if where == "band":
+        data["time_bands"] = {"all_day": [0, 24], "ghost": span}
+        key = "time_bands.ghost"
+    else:
+        data["roster"]["teams"][0]["hours"] = span
+        key = "roster.teams[0]"
+    path = tmp_path / "world.yaml"
+    path.write_text(yaml.safe_dump(data), encoding="utf-8")
+    assert main(["check", str(path)]) == 2
+    err = capsys.readouterr().err
+    assert err.count("\n") == 1 and key in err and f"{span} covers none" in err, err

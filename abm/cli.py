@@ -328,6 +328,16 @@ _seed = _whole_number(0, "seed")
 _non_negative_int = _whole_number(0)
 
 
+def _scheduler_address(text: str) -> str:
+    """A Dask scheduler address: [tcp:// or tls://]HOST:PORT, checked before anything starts."""
+    import re
+
+    if not re.fullmatch(r"((tcp|tls)://)?(\[[0-9a-fA-F:]+\]|[A-Za-z0-9_.-]+):\d{1,5}", text) or int(
+        text.rsplit(":", 1)[1]) > 65535:
+        raise argparse.ArgumentTypeError(f"expected an address like tcp://HOST:PORT, got '{text}'")
+    return text
+
+
 def _non_negative_float(text: str) -> float:
     try:
         value = float(text)
@@ -354,7 +364,7 @@ def build_parser() -> argparse.ArgumentParser:
         "--executor", choices=["serial", "processes", "dask"], help="where runs execute (default serial; dask with --scheduler)"
     )
     batch.add_argument("--workers", type=_positive_int, help="worker processes (default: one per CPU)")
-    batch.add_argument("--scheduler", metavar="ADDRESS", help="an existing Dask scheduler, e.g. tcp://10.0.0.5:8786")
+    batch.add_argument("--scheduler", type=_scheduler_address, metavar="ADDRESS", help="an existing Dask scheduler, e.g. tcp://10.0.0.5:8786")
     batch.add_argument("--resume", action="store_true", help="finish a batch in --out: skip complete runs, redo the rest")
     batch.set_defaults(func=cmd_batch)
 
@@ -426,7 +436,7 @@ def build_parser() -> argparse.ArgumentParser:
             "--executor", choices=["serial", "processes", "dask"], help="where runs execute (default serial; dask with --scheduler)"
         )
         search.add_argument("--workers", type=_positive_int, help="worker processes (default: one per CPU)")
-        search.add_argument("--scheduler", metavar="ADDRESS", help="an existing Dask scheduler, e.g. tcp://10.0.0.5:8786")
+        search.add_argument("--scheduler", type=_scheduler_address, metavar="ADDRESS", help="an existing Dask scheduler, e.g. tcp://10.0.0.5:8786")
         search.add_argument("--resume", action="store_true", help="take up an interrupted run in --out: finished runs are kept")
         search.add_argument("--check", action="store_true", help="only validate the file and say what it would run")
         search.set_defaults(func=func)

@@ -6,12 +6,14 @@ import contextlib
 import hashlib
 import io
 import json
+import os
 import subprocess
 import sys
 from pathlib import Path
 
 import pandas as pd
 import pytest
+import yaml
 
 from abm.cli import main
 
@@ -232,3 +234,32 @@ def test_check_refuses_an_unknown_kind(tmp_path: Path) -> None:
     assert result.returncode == 2
     assert result.stderr.strip() == (f"undertow check: {path}: kind: expected one of world, experiment, "
                                      "calibration, optimisation, got 'banana'")
+
+
+def test_former_internal_errors_are_one_line_refusals(tmp_path: Path) -> None:
+    # Each of these used to end in "internal error" (exit 1) or hang: zero posting weights under randomised
+    # command, a mutation outside scipy's [0, 2], a FIFO given as a file, a malformed scheduler address.
+    world = yaml.safe_load(DEMO.read_text(encoding="utf-8"))
+    world["roster"]["command"] = "randomised"
+    for posting in world["roster"]["teams"][2]["postings"]:
+        posting["weight"] = 0
+    zero = tmp_path / "zero.yaml"
+    zero.write_text(yaml.safe_dump(world), encoding="utf-8")
+    optimisation = yaml.safe_load((ROOT / "worlds" / "kestrel_quay" / "optimise.yaml").read_text(encoding="utf-8"))
+    optimisation["world"] = str(DEMO)
+    optimisation["search"]["mutation"] = [0.5, 3.0]
+    mutation = tmp_path / "mutation.yaml"
+    mutation.write_text(yaml.safe_dump(optimisation), encoding="utf-8")
+    fifo = tmp_path / "fifo.yaml"
+    os.mkfifo(fifo)
+    experiment = ROOT / "worlds" / "kestrel_quay" / "experiment.yaml"
+    for command, needle in (
+        (["run", str(zero), "--days", "1", "--out", str(tmp_path / "r")], "roster.teams[2].postings: the weights sum to 0"),
+        (["check", str(mutation)], "search.mutation: expected 0 <= low <= high <= 2"),
+        (["check", str(fifo)], "not a regular file"),
+        (["batch", str(experiment), "--out", str(tmp_path / "b"), "--scheduler", "no address"],
+         "--scheduler: expected an address like tcp://HOST:PORT"),
+    ):
+        result = subprocess.run([str(UNDERTOW), *command], capture_output=True, text=True, timeout=60, check=False)
+        assert result.returncode == 2 and needle in result.stderr and result.stderr.count("\n") == 1, result.stderr
+    assert not (tmp_path / "r").exists() and not (tmp_path / "b").exists()

@@ -22,7 +22,7 @@ from typing import Annotated, Any, Literal
 
 import numpy as np
 import pandas as pd
-from pydantic import Field
+from pydantic import Field, field_validator
 
 from ..errors import InputError
 from ..experiment.design import read_project_file
@@ -194,7 +194,15 @@ class SearchSpec(Strict):
                                 "holds popsize x dimensions candidates (scipy's meaning)")
     maxiter: AtLeastOne = Field(10, description="the most generations the search runs")
     tol: Annotated[float, Field(ge=0.0), NumberOnly] = 0.01
-    mutation: tuple[Number, Number] = (0.5, 1.0)
+    mutation: tuple[Number, Number] = Field((0.5, 1.0), description="differential weight, drawn each generation "
+                                           "between the two values; both in [0, 2] (scipy's range)")
+
+    @field_validator("mutation")
+    @classmethod
+    def _mutation_in_range(cls, value: tuple[float, float]) -> tuple[float, float]:
+        if not 0 <= value[0] <= value[1] <= 2:
+            raise ValueError(f"expected 0 <= low <= high <= 2, got {list(value)}")
+        return value
     recombination: Annotated[float, Field(ge=0.0, le=1.0), NumberOnly] = 0.7
     init: Literal["latinhypercube", "sobol", "halton", "random"] = "latinhypercube"
 

@@ -175,6 +175,8 @@ def _kind(value: Any) -> str:
 def read_yaml_mapping(path: str | Path) -> dict[str, Any]:
     """Read a YAML file that must hold a mapping; raise WorldFileError otherwise."""
     path = Path(path)
+    if path.exists() and not path.is_dir() and not path.is_file():  # a FIFO or a device would block or never end
+        raise WorldFileError(path, "", "not a regular file; expected a YAML text file")
     try:
         text = path.read_text(encoding="utf-8")
     except FileNotFoundError:

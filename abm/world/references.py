@@ -133,6 +133,9 @@ def check_references(world: World) -> None:
                 _require(key, world.point_names, f"roster.teams[{i}].postings[{j}].patrols.{key}", "boarding point")
         if team.postings and not team.flexible:
             raise ReferenceProblem(f"roster.teams[{i}].postings", "only a flexible team can have postings")
+        if team.postings and not sum(p.weight for p in team.postings) > 0:
+            raise ReferenceProblem(f"roster.teams[{i}].postings", "the weights sum to 0, so randomised command has "
+                                   "nothing to draw; give at least one posting a positive weight")
     _check_lanes_fit(world)
 
     for key in world.adversary.adaptive.band_waiting:

@@ -27,6 +27,7 @@ from pydantic import Field, field_validator
 from ..errors import InputError
 from ..experiment.design import read_project_file
 from ..experiment.executors import Executor, choose_executor, make_executor
+from ..experiment.lock import LOCK_FILE, acquire, check_unlocked, release
 from ..experiment.single import package_versions
 from ..experiment.worker import SUMMARY_FILE, RunTask, is_complete
 from ..records import METHODS_FILE, write_atomically, write_json, write_parquet
@@ -377,10 +378,13 @@ def _allocation(
 HEADER = "optimisation.json"
 
 
-def _open_store(out: Path, plan: OptimisationPlan, command: Sequence[str], resume: bool) -> None:
+def _open_store(out: Path, plan: OptimisationPlan, command: Sequence[str], resume: bool) -> Path:
+    """Start a search in OUT or take one up; returns the folder's lock, which the caller releases."""
     header = out / HEADER
     if out.exists() and not out.is_dir():
         raise PolicySearchError(f"{out}: is a file; --out needs a folder")
+    if out.is_dir():
+        check_unlocked(out)
     if header.is_file():
         if not resume:
             raise PolicySearchError(
@@ -392,10 +396,11 @@ def _open_store(out: Path, plan: OptimisationPlan, command: Sequence[str], resum
                 f"{out}: holds a different policy search (the file or its world changed); choose another --out "
                 "(nothing was overwritten)"
             )
-        return
-    if out.is_dir() and any(out.iterdir()):
+        return acquire(out)
+    if out.is_dir() and any(p.name != LOCK_FILE for p in out.iterdir()):
         raise PolicySearchError(f"{out}: is not empty and holds no policy search; choose another --out (nothing was overwritten)")
     out.mkdir(parents=True, exist_ok=True)
+    lock = acquire(out)
     write_json(
         {
             "optimisation": plan.spec.model_dump(mode="json"),
@@ -408,6 +413,7 @@ def _open_store(out: Path, plan: OptimisationPlan, command: Sequence[str], resum
         },
         header,
     )
+    return lock
 
 
 def run_optimisation(
@@ -421,7 +427,18 @@ def run_optimisation(
 ) -> PolicySearchResult:
     """Search a validated plan with an executor the caller has entered; write the tables, summary and figure."""
     out = Path(out)
-    _open_store(out, plan, command, resume)
+    lock = _open_store(out, plan, command, resume)
+    try:  # the folder is locked from open to the end: one writer at a time
+        return _search(plan, out, executor, command, figure, progress)
+    finally:
+        release(lock)
+
+
+def _search(
+    plan: OptimisationPlan, out: Path, executor: Executor, command: Sequence[str], figure: bool,
+    progress: Callable[[int], None] | None,
+) -> PolicySearchResult:
+    """The body of :func:`run_optimisation`, in an opened folder."""
     evaluate = ModelEvaluator(
         plan.world_data, plan.world_sha256, plan.spec.days, plan.spec.warmup_days, out, executor, command
     )

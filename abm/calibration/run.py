@@ -178,6 +178,16 @@ def run_calibration(
     out = Path(out)
     store = CalibrationStore(out, plan)
     store.open(command, resume)
+    try:  # the folder is locked from open to close: one writer at a time
+        return _calibrate(plan, out, executor, store, command, figures)
+    finally:
+        store.close()
+
+
+def _calibrate(
+    plan: CalibrationPlan, out: Path, executor: Executor, store: CalibrationStore, command: Sequence[str], figures: bool
+) -> CalibrationResult:
+    """The body of :func:`run_calibration`, on an opened store."""
     simulate = ModelSimulator(plan, out, executor, command)
     spec = plan.spec
     names = dict(summary_names=plan.summary_spec.names(), latent_names=LATENT)

@@ -40,6 +40,7 @@ import pandas as pd
 
 from ..errors import InputError
 from ..experiment.executors import Executor
+from ..experiment.lock import LOCK_FILE, acquire, check_unlocked, release
 from ..experiment.single import package_versions
 from ..experiment.worker import SUMMARY_FILE, RunTask, is_complete
 from ..observed import OBSERVED_DIR, conform
@@ -167,12 +168,21 @@ class CalibrationStore:
     def __init__(self, out: str | Path, plan: CalibrationPlan) -> None:
         self.out = Path(out)
         self.plan = plan
+        self.lock: Path | None = None  # held from open() to close(): one writer per folder
+
+    def close(self) -> None:
+        """Give up the folder's lock."""
+        if self.lock is not None:
+            release(self.lock)
+            self.lock = None
 
     def open(self, command: Sequence[str], resume: bool) -> None:
         """Start a calibration in OUT, or (``resume``) take up the same calibration found there."""
         header = self.out / HEADER
         if self.out.exists() and not self.out.is_dir():
             raise CalibrationStoreError(f"{self.out}: is a file; --out needs a folder")
+        if self.out.is_dir():
+            check_unlocked(self.out)
         if header.is_file():
             if not resume:
                 raise CalibrationStoreError(
@@ -181,6 +191,7 @@ class CalibrationStore:
                 )
             held = json.loads(header.read_text(encoding="utf-8"))
             if held.get("calibration_sha256") == self.plan.digest():
+                self.lock = acquire(self.out)
                 return
             if held.get("simulation_sha256") != self.plan.simulation_digest():
                 raise CalibrationStoreError(
@@ -189,11 +200,12 @@ class CalibrationStore:
                 )
             # Only settings changed (method, summaries, records, level...): finished runs of unchanged draws
             # are reused, generations made under the old settings are made again.
-        elif self.out.is_dir() and any(self.out.iterdir()):
+        elif self.out.is_dir() and any(p.name != LOCK_FILE for p in self.out.iterdir()):
             raise CalibrationStoreError(
                 f"{self.out}: is not empty and holds no calibration; choose another --out (nothing was overwritten)"
             )
         self.out.mkdir(parents=True, exist_ok=True)
+        self.lock = acquire(self.out)
         self._write_header(command)
 
     def _write_header(self, command: Sequence[str]) -> None:

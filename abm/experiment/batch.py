@@ -99,22 +99,25 @@ def run_batch(
     plan = load_plan(experiment, calibration)
     store = Store(out)
     store.open(plan, list(command), resume)
-    if on_warning is not None:  # after the store is open, so a refused --out stays a one-line error
-        for warning in load_warnings(plan):
-            on_warning(warning)
-    done = store.complete(plan)
-    todo = [spec for spec in plan.runs() if spec.run_id not in done]
-    by_id = {spec.run_id: spec for spec in todo}
-    failed = 0
-    if todo:
-        with runner, progress(plan.total_runs, "runs", "batch", len(done), show_progress) as bar:
-            for answer in runner.imap(_tasks(plan, todo, store, command, extensions)):
-                if not answer["ok"]:
-                    failed += 1
-                    store.record_failure(by_id[answer["run_id"]], answer["error"], answer["traceback"])
-                    bar.set_postfix_str(f"{failed} failed")
-                bar.update(1)
-    summary, failures = store.rebuild(plan, extensions)
+    try:  # the folder is locked from open to close: one writer at a time
+        if on_warning is not None:  # after the store is open, so a refused --out stays a one-line error
+            for warning in load_warnings(plan):
+                on_warning(warning)
+        done = store.complete(plan)
+        todo = [spec for spec in plan.runs() if spec.run_id not in done]
+        by_id = {spec.run_id: spec for spec in todo}
+        failed = 0
+        if todo:
+            with runner, progress(plan.total_runs, "runs", "batch", len(done), show_progress) as bar:
+                for answer in runner.imap(_tasks(plan, todo, store, command, extensions)):
+                    if not answer["ok"]:
+                        failed += 1
+                        store.record_failure(by_id[answer["run_id"]], answer["error"], answer["traceback"])
+                        bar.set_postfix_str(f"{failed} failed")
+                    bar.update(1)
+        summary, failures = store.rebuild(plan, extensions)
+    finally:
+        store.close()
     labels = [f.label for f in plan.factors]
     comparison = compare_points(summary, labels, {p.index: p.compare_to for p in plan.points})
     return BatchResult(Path(out), plan, len(todo), summary, failures, comparison)

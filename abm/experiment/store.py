@@ -28,6 +28,7 @@ import pandas as pd
 from ..errors import InputError
 from ..records import write_json, write_parquet
 from .design import Plan, PlannedFactor, RunSpec
+from .lock import LOCK_FILE, acquire, check_unlocked, release
 from .posterior import DRAW_COLUMN
 from .single import SUMMARY_SOURCES, package_versions
 from .worker import SUMMARY_FILE, is_complete
@@ -63,6 +64,13 @@ class Store:
         self.out = Path(out)
         self.runs = self.out / RUNS_DIR
         self.failed = self.out / FAILED_DIR
+        self.lock: Path | None = None  # held from open() to close(): one writer per folder
+
+    def close(self) -> None:
+        """Give up the folder's lock (a store that was never opened holds none)."""
+        if self.lock is not None:
+            release(self.lock)
+            self.lock = None
 
     def run_dir(self, run_id: str) -> Path:
         return self.runs / run_id
@@ -72,6 +80,8 @@ class Store:
         record = self.out / EXPERIMENT_FILE
         if self.out.exists() and not self.out.is_dir():
             raise StoreError(f"{self.out}: is a file; --out needs a folder")
+        if self.out.is_dir():
+            check_unlocked(self.out)
         if record.is_file():
             if not resume:
                 raise StoreError(
@@ -85,13 +95,15 @@ class Store:
                     f"{self.out}: holds a batch of a different experiment (the experiment or its world changed "
                     "since it started); choose another --out (nothing was overwritten)"
                 )
+            self.lock = acquire(self.out)  # before tidying: a second writer must not tidy the first's runs away
             self._tidy()
             return
-        if self.out.is_dir() and any(self.out.iterdir()):
+        if self.out.is_dir() and any(p.name != LOCK_FILE for p in self.out.iterdir()):
             raise StoreError(
                 f"{self.out}: is not empty and holds no batch; choose another --out (nothing was overwritten)"
             )
         self.runs.mkdir(parents=True, exist_ok=True)
+        self.lock = acquire(self.out)
         calibration = {"calibration": plan.posterior.record()} if plan.posterior is not None else {}
         write_json(
             {

@@ -263,3 +263,12 @@ def test_former_internal_errors_are_one_line_refusals(tmp_path: Path) -> None:
         result = subprocess.run([str(UNDERTOW), *command], capture_output=True, text=True, timeout=60, check=False)
         assert result.returncode == 2 and needle in result.stderr and result.stderr.count("\n") == 1, result.stderr
     assert not (tmp_path / "r").exists() and not (tmp_path / "b").exists()
+
+
+def test_a_users_own_partial_folder_survives_a_run(tmp_path: Path) -> None:
+    mine = tmp_path / ".myrun.partial"
+    mine.mkdir()
+    (mine / "notes.txt").write_text("the user's own", encoding="utf-8")
+    assert main(["run", str(DEMO), "--days", "1", "--out", str(tmp_path / "myrun")]) == 0
+    assert (mine / "notes.txt").read_text(encoding="utf-8") == "the user's own"
+    assert sorted(p.name for p in tmp_path.iterdir()) == [".myrun.partial", "myrun"]  # no staging left behind

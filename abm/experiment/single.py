@@ -16,6 +16,7 @@ run directory that exists is always whole.
 from __future__ import annotations
 
 import shutil
+import uuid
 import sys
 from collections.abc import Callable
 from importlib import metadata
@@ -206,24 +207,27 @@ def run_to_directory(
     out = Path(out)
     refuse_existing(out)
     model = simulate(world, warmup + days, seed, progress)
-    staging = out.with_name(f".{out.name}.partial")
-    if staging.exists():
-        shutil.rmtree(staging)
-    write_records(model.records, staging)
-    summary = summarise(model.records, days, warmup)
-    write_json(summary, staging / "summary.json")
-    write_json(world.model_dump(mode="json"), staging / WORLD_FILE)
-    manifest: dict[str, Any] = {
-        "world_name": world.name,
-        "world_sha256": world_hash,
-        "seed": seed,
-        "days": days,
-        "packages": package_versions(),
-        "command": command or [],
-    }
-    if warmup:
-        manifest["warmup_days"] = warmup
-    manifest.update(manifest_extra or {})
-    write_json(manifest, staging / "manifest.json")
-    staging.rename(out)
+    # A name of this call's own: never a folder the user (or another writer) made, so nothing of theirs is touched.
+    staging = out.with_name(f".{out.name}.{uuid.uuid4().hex[:12]}.partial")
+    try:
+        write_records(model.records, staging)
+        summary = summarise(model.records, days, warmup)
+        write_json(summary, staging / "summary.json")
+        write_json(world.model_dump(mode="json"), staging / WORLD_FILE)
+        manifest: dict[str, Any] = {
+            "world_name": world.name,
+            "world_sha256": world_hash,
+            "seed": seed,
+            "days": days,
+            "packages": package_versions(),
+            "command": command or [],
+        }
+        if warmup:
+            manifest["warmup_days"] = warmup
+        manifest.update(manifest_extra or {})
+        write_json(manifest, staging / "manifest.json")
+        staging.rename(out)
+    except BaseException:
+        shutil.rmtree(staging, ignore_errors=True)  # ours alone, made above
+        raise
     return summary

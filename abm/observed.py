@@ -39,6 +39,7 @@ import numpy as np
 import pandas as pd
 
 from .errors import InputError
+from .run_files import damage
 
 OBSERVED_DIR = "observed"
 
@@ -191,6 +192,9 @@ def read_observed(run_dir: str | Path, names: RecordNames | None = None) -> dict
     base = Path(run_dir) / OBSERVED_DIR
     if not base.is_dir():
         raise ObservedRecordsError(f"{run_dir}: no '{OBSERVED_DIR}/' folder of observed records")
+    problem = damage(Path(run_dir), only=[f"{OBSERVED_DIR}/{name}.parquet" for name in OBSERVED_COLUMNS])
+    if problem is not None:
+        raise ObservedRecordsError(f"{problem}; the run is damaged: rerun it")
     return _read_folder(base, (".parquet",), names, "")
 
 

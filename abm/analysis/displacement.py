@@ -78,6 +78,7 @@ from ..errors import InputError
 from ..experiment.single import WORLD_FILE
 from ..observed import read_observed
 from ..records import TRUTH_COLUMNS, TRUTH_DIR, read_truth, write_json
+from ..run_files import damage
 from ..world import parse_world
 from ..world.schema import AreaSelector, DisplacementAreas, World
 from .net_effect import CrossingsVsDetections, net_effect
@@ -400,6 +401,9 @@ def _read_run(run_dir: str | Path) -> _Run:
     path = Path(run_dir)
     if not path.is_dir():
         raise DisplacementInputError(f"{path}: no such run directory")
+    problem = damage(path)
+    if problem is not None:
+        raise DisplacementInputError(f"{problem}; the run is damaged: rerun it")
     missing = [name for name in TRUTH_COLUMNS if not (path / TRUTH_DIR / f"{name}.parquet").is_file()]
     if missing:
         raise DisplacementInputError(

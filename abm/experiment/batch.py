@@ -9,6 +9,7 @@ run directories.
 
 from __future__ import annotations
 
+import contextlib
 import sys
 from collections.abc import Callable, Iterator, Sequence
 from dataclasses import dataclass
@@ -100,15 +101,25 @@ def run_batch(
     store = Store(out)
     store.open(plan, list(command), resume)
     try:  # the folder is locked from open to close: one writer at a time
-        if on_warning is not None:  # after the store is open, so a refused --out stays a one-line error
-            for warning in load_warnings(plan):
-                on_warning(warning)
         done = store.complete(plan)
         todo = [spec for spec in plan.runs() if spec.run_id not in done]
         by_id = {spec.run_id: spec for spec in todo}
         failed = 0
         if todo:
-            with runner, progress(plan.total_runs, "runs", "batch", len(done), show_progress) as bar:
+            with contextlib.ExitStack() as stack:
+                try:
+                    stack.enter_context(runner)  # a scheduler that cannot be reached fails here, before any run
+                except BaseException:
+                    store.discard_if_empty()  # so a retry needs no --resume
+                    raise
+                if on_warning is not None:  # once work can start: a refused --out or scheduler stays one line
+                    for warning in load_warnings(plan):
+                        on_warning(warning)
+                    if store.damaged:
+                        plural = "s are" if len(store.damaged) > 1 else " is"
+                        on_warning(f"warning: {len(store.damaged)} damaged run{plural} run again "
+                                   f"(first: {store.damaged[0]})")
+                bar = stack.enter_context(progress(plan.total_runs, "runs", "batch", len(done), show_progress))
                 for answer in runner.imap(_tasks(plan, todo, store, command, extensions)):
                     if not answer["ok"]:
                         failed += 1

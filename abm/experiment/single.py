@@ -29,6 +29,7 @@ import pandas as pd
 from ..errors import InputError
 from ..model import PortModel
 from ..records import RecordBook, write_json, write_records
+from ..run_files import record_files
 from ..world.schema import World
 
 WORLD_FILE = "world.json"
@@ -226,6 +227,7 @@ def run_to_directory(
             manifest["warmup_days"] = warmup
         manifest.update(manifest_extra or {})
         write_json(manifest, staging / "manifest.json")
+        record_files(staging)  # last: what a complete run holds, for checking it later
         staging.rename(out)
     except BaseException:
         shutil.rmtree(staging, ignore_errors=True)  # ours alone, made above

@@ -27,6 +27,7 @@ import pandas as pd
 
 from ..errors import InputError
 from ..records import write_json, write_parquet
+from ..run_files import damage
 from .design import Plan, PlannedFactor, RunSpec
 from .lock import LOCK_FILE, acquire, check_unlocked, release
 from .posterior import DRAW_COLUMN
@@ -65,6 +66,20 @@ class Store:
         self.runs = self.out / RUNS_DIR
         self.failed = self.out / FAILED_DIR
         self.lock: Path | None = None  # held from open() to close(): one writer per folder
+        self.damaged: list[str] = []  # what was wrong with each damaged run complete() found
+        self.created: list[Path] = []  # folders open() made for a new batch, deepest last
+        self.started = False  # open() wrote a new batch's record (rather than taking up one)
+
+    def discard_if_empty(self) -> None:
+        """Undo a batch this open() started when it ran nothing (its executor could not start), so a retry needs
+        no --resume. Only what :meth:`open` made goes: the experiment record, then the folders it created."""
+        if not self.started or (self.runs.is_dir() and any(self.runs.iterdir())):
+            return
+        (self.out / EXPERIMENT_FILE).unlink(missing_ok=True)
+        self.close()
+        for folder in reversed(self.created):
+            if folder.is_dir() and not any(folder.iterdir()):
+                folder.rmdir()
 
     def close(self) -> None:
         """Give up the folder's lock (a store that was never opened holds none)."""
@@ -102,6 +117,7 @@ class Store:
             raise StoreError(
                 f"{self.out}: is not empty and holds no batch; choose another --out (nothing was overwritten)"
             )
+        self.created = [p for p in (self.out, self.runs) if not p.exists()]
         self.runs.mkdir(parents=True, exist_ok=True)
         self.lock = acquire(self.out)
         calibration = {"calibration": plan.posterior.record()} if plan.posterior is not None else {}
@@ -122,6 +138,7 @@ class Store:
             },
             record,
         )
+        self.started = True
 
     def _tidy(self) -> None:
         """Before resuming: partial runs are redone from scratch, and so are failed ones."""
@@ -133,8 +150,24 @@ class Store:
             shutil.rmtree(self.failed)
 
     def complete(self, plan: Plan) -> set[str]:
-        """Run ids of the plan whose run directories are complete."""
-        return {spec.run_id for spec in plan.runs() if is_complete(self.run_dir(spec.run_id))}
+        """Run ids of the plan whose run directories are complete and whole (sizes and SHA-256 as recorded).
+
+        A damaged run (a file cut short, missing or changed) is removed, so the batch runs it again;
+        ``self.damaged`` keeps what was wrong with each.
+        """
+        done = set()
+        self.damaged = []
+        for spec in plan.runs():
+            run_dir = self.run_dir(spec.run_id)
+            if not (run_dir / SUMMARY_FILE).is_file():
+                continue
+            problem = damage(run_dir)
+            if problem is None:
+                done.add(spec.run_id)
+            else:
+                self.damaged.append(problem)
+                shutil.rmtree(run_dir)  # inside this batch's runs/: the tool's own, and redone next
+        return done
 
     def record_failure(self, spec: RunSpec, error: str, trace: str) -> None:
         """Keep a failed run's error until the batch is rebuilt (or the run is redone)."""

@@ -18,6 +18,7 @@ from dataclasses import dataclass, field
 from pathlib import Path
 from typing import Any
 
+from ..run_files import damage
 from ..world import parse_world
 from .single import run_to_directory
 
@@ -43,9 +44,10 @@ class RunTask:
     extensions: tuple[Callable[[Path], Mapping[str, Any]], ...] = ()
 
 
-def is_complete(run_dir: Path) -> bool:
-    """A run directory is complete once it exists: it appears by rename only after everything is written."""
-    return (run_dir / SUMMARY_FILE).is_file()
+def is_complete(run_dir: Path, digests: bool = False) -> bool:
+    """A run directory is complete once it exists (it appears by rename only after everything is written) and
+    its recorded files are all there at their sizes (and, with ``digests``, their content)."""
+    return (run_dir / SUMMARY_FILE).is_file() and damage(run_dir, digests=digests) is None
 
 
 def failure(task: RunTask, error: str, trace: str) -> dict[str, Any]:

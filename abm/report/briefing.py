@@ -356,8 +356,7 @@ def build(out: str | Path, baseline: str | None = None, limits: DelayLimits = De
 
     ``report`` is told each stage as it starts (the command prints them).
     """
-    report(f"reading {out}")
-    batch = load_batch(out, baseline)
+    batch = load_batch(out, baseline)  # bad input fails here, before any stage is reported
     report(f"weighing the estimators against truth in {batch.runs} runs")
     evidence = gather(batch)
     runs = run_table(batch, evidence)

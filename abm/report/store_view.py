@@ -28,6 +28,7 @@ import pandas as pd
 
 from ..errors import InputError
 from ..experiment.store import EXPERIMENT_FILE, RUNS_DIR, SUMMARY_TABLE
+from ..run_files import damage
 
 BEHAVIOUR_PATH = "adversary.behaviour"
 
@@ -244,6 +245,11 @@ def load_batch(out: str | Path, baseline: str | None = None) -> BatchView:
     summary = pd.read_parquet(summary_path)
     if summary.empty:
         raise BriefingInputError(f"{summary_path}: no completed run to brief")
+    for run_id in summary["run_id"]:
+        problem = damage(out / RUNS_DIR / str(run_id))
+        if problem is not None:
+            raise BriefingInputError(f"{problem}; a run of this batch is damaged: undertow batch EXPERIMENT --out "
+                                     f"{out} --resume runs it again")
     spec = record["experiment"]
     factors = _factor_views(record)
     behaviour = next((f.label for f in factors if f.changes_behaviour), None)

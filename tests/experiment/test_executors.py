@@ -3,6 +3,7 @@
 from __future__ import annotations
 
 import json
+import os
 import subprocess
 import sys
 from pathlib import Path
@@ -168,3 +169,16 @@ def test_a_batch_in_a_log_writes_progress_lines(tmp_path: Path) -> None:
     lines = [line for line in result.stderr.splitlines() if line.startswith("batch: ")]
     assert lines[-1].startswith("batch: 12/12 runs, ") and "elapsed" in lines[-1]
     assert len(lines) >= 10 and "left" in lines[0]
+
+
+def test_an_unreachable_scheduler_leaves_nothing_that_blocks_a_retry(tmp_path: Path) -> None:
+    path = write_yaml(tmp_path / "experiment.yaml", experiment(replications=1, days=1, warmup_days=0))
+    out = tmp_path / "out"
+    command = [*undertow_command(), "batch", str(path), "--out", str(out)]
+    # nothing listens on port 9 here: the client gives up after its 20 s connect timeout
+    result = subprocess.run([*command, "--scheduler", "tcp://127.0.0.1:9"], capture_output=True, text=True,
+                            timeout=120, check=False)
+    assert result.returncode == 2 and result.stderr.count("\n") == 1, result.stderr
+    assert "cannot connect to a Dask scheduler" in result.stderr and not out.exists()
+    retry = subprocess.run(command, capture_output=True, text=True, timeout=120, check=False)  # no --resume needed
+    assert retry.returncode == 0, retry.stderr

@@ -54,12 +54,13 @@ def cmd_check(args: argparse.Namespace) -> int:
     for path in args.files:
         kind = _file_kind(path)
         if kind == "experiment":
-            print(describe_experiment(path))
-            print("\n".join(load_warnings(load_plan(path))) or "  no design point's world is overloaded")
+            print(describe_experiment(path, args.allow_large))
+            print("\n".join(load_warnings(load_plan(path, allow_large=args.allow_large)))
+                  or "  no design point's world is overloaded")
         elif kind == "calibration":
-            print(describe_calibration(path))
+            print(describe_calibration(path, args.allow_large))
         elif kind == "optimisation":
-            print(describe_optimisation(path))
+            print(describe_optimisation(path, args.allow_large))
         else:
             world = load_world(path)
             print(f"{path}: ok ({world.name}; {len(world.stations)} stations, "
@@ -83,8 +84,9 @@ def print_summary(summary: dict, title: str) -> None:
     print("  (truth = simulated ground truth; observed = what an agency would hold. Model estimates, not counts.)")
 
 
-def _run_world(world_path: Path, days: int, seed: int, out: Path, argv: list[str]) -> int:
+def _run_world(world_path: Path, days: int, seed: int, out: Path, argv: list[str], allow_large: bool = False) -> int:
     from .experiment.batch import print_warning
+    from .experiment.budget import SHOWN_VEHICLE_DAYS, Keys, PlanSize, busiest_day, refusal
     from .experiment.single import refuse_existing, run_to_directory
     from .port.load import load_report
     from .progress import progress
@@ -92,6 +94,13 @@ def _run_world(world_path: Path, days: int, seed: int, out: Path, argv: list[str
 
     world = load_world(world_path)
     refuse_existing(out)  # before the warnings, so a refused --out stays a one-line error
+    size = PlanSize(1, days, busiest_day(world.model_dump(mode="json")))
+    problem = refusal(size, Keys("traffic.vehicles_per_day", "--days", "--days"), out, allow_large)
+    if problem is not None:
+        where = problem[0] if problem[0].startswith("--") else f"{world_path}: {problem[0]}"
+        raise InputError(f"{where}: {problem[1]}")
+    if size.vehicle_days > SHOWN_VEHICLE_DAYS:
+        print_warning(size.describe())
     for warning in load_report(world).warnings:
         print_warning(warning)
     with progress(days, "days", "simulating") as bar:
@@ -115,7 +124,7 @@ def cmd_run(args: argparse.Namespace) -> int:
         article = "an" if kind[0] in "aeio" else "a"
         raise InputError(f"{world}: is {article} {kind} file; run it with undertow {command} {world} --out DIR")
     out = Path(args.out) if args.out else Path("outputs") / f"{world.parent.name or world.stem}-seed{args.seed}"
-    return _run_world(world, args.days, args.seed, out, ["undertow", *args.argv])
+    return _run_world(world, args.days, args.seed, out, ["undertow", *args.argv], args.allow_large)
 
 
 DEMO_EXPERIMENT = REPO_WORLDS / "kestrel_quay" / "demo_experiment.yaml"
@@ -271,7 +280,7 @@ def cmd_batch(args: argparse.Namespace) -> int:
         # every estimator's result becomes summary columns, so briefings can weigh them against truth
         ok = batch_command(
             args.experiment, args.out, args.executor, args.workers, args.scheduler, args.resume, command,
-            extensions=(cached_estimates,),
+            extensions=(cached_estimates,), allow_large=args.allow_large,
         )
     except KeyboardInterrupt:
         return _interrupted("batch", args.out)
@@ -287,7 +296,7 @@ def cmd_calibrate(args: argparse.Namespace) -> int:
     try:
         calibrate_command(
             args.calibration, args.out, args.executor, args.workers, args.scheduler, args.resume, args.check,
-            ["undertow", *args.argv],
+            ["undertow", *args.argv], args.allow_large,
         )
     except KeyboardInterrupt:
         return _interrupted("calibrate", args.out)
@@ -302,7 +311,7 @@ def cmd_optimise(args: argparse.Namespace) -> int:
     try:
         optimise_command(
             args.optimisation, args.out, args.executor, args.workers, args.scheduler, args.resume, args.check,
-            ["undertow", *args.argv],
+            ["undertow", *args.argv], args.allow_large,
         )
     except KeyboardInterrupt:
         return _interrupted("optimise", args.out)
@@ -348,6 +357,10 @@ def _non_negative_float(text: str) -> float:
     return value
 
 
+ALLOW_LARGE_HELP = ("start a plan above the size ceilings (e.g. for a cluster); never one that cannot fit one "
+                    "worker's memory or the disk")
+
+
 def build_parser() -> argparse.ArgumentParser:
     """The argument parser with every sub-command."""
     parser = _Parser(prog="undertow", description=__doc__.splitlines()[0])
@@ -355,6 +368,7 @@ def build_parser() -> argparse.ArgumentParser:
 
     check = sub.add_parser("check", help="validate world, experiment, calibration and optimisation files")
     check.add_argument("files", nargs="+", help="YAML files of any kind the tool reads (by their kind:)")
+    check.add_argument("--allow-large", action="store_true", help=ALLOW_LARGE_HELP)
     check.set_defaults(func=cmd_check)
 
     batch = sub.add_parser("batch", help="run an experiment's batch of runs and compare its design points")
@@ -366,6 +380,7 @@ def build_parser() -> argparse.ArgumentParser:
     batch.add_argument("--workers", type=_positive_int, help="worker processes (default: one per CPU)")
     batch.add_argument("--scheduler", type=_scheduler_address, metavar="ADDRESS", help="an existing Dask scheduler, e.g. tcp://10.0.0.5:8786")
     batch.add_argument("--resume", action="store_true", help="finish a batch in --out: skip complete runs, redo the rest")
+    batch.add_argument("--allow-large", action="store_true", help=ALLOW_LARGE_HELP)
     batch.set_defaults(func=cmd_batch)
 
     run = sub.add_parser("run", help="simulate a world and write a run directory")
@@ -373,6 +388,7 @@ def build_parser() -> argparse.ArgumentParser:
     run.add_argument("--days", type=_positive_int, default=365, help="operating days (default 365)")
     run.add_argument("--seed", type=_seed, default=0, help="root seed (default 0)")
     run.add_argument("--out", help="run directory to create (default outputs/WORLD-seedS)")
+    run.add_argument("--allow-large", action="store_true", help=ALLOW_LARGE_HELP)
     run.set_defaults(func=cmd_run)
 
     demo = sub.add_parser("demo", help="run the demo experiment on local processes and brief it")
@@ -439,6 +455,7 @@ def build_parser() -> argparse.ArgumentParser:
         search.add_argument("--scheduler", type=_scheduler_address, metavar="ADDRESS", help="an existing Dask scheduler, e.g. tcp://10.0.0.5:8786")
         search.add_argument("--resume", action="store_true", help="take up an interrupted run in --out: finished runs are kept")
         search.add_argument("--check", action="store_true", help="only validate the file and say what it would run")
+        search.add_argument("--allow-large", action="store_true", help=ALLOW_LARGE_HELP)
         search.set_defaults(func=func)
     return parser
 

@@ -272,3 +272,39 @@ def test_a_users_own_partial_folder_survives_a_run(tmp_path: Path) -> None:
     assert main(["run", str(DEMO), "--days", "1", "--out", str(tmp_path / "myrun")]) == 0
     assert (mine / "notes.txt").read_text(encoding="utf-8") == "the user's own"
     assert sorted(p.name for p in tmp_path.iterdir()) == [".myrun.partial", "myrun"]  # no staging left behind
+
+
+def test_plans_too_large_are_refused_before_anything_runs(tmp_path: Path) -> None:
+    # A world of 5e8 lorries a day, a run of a billion days, ten million replications: each passes the schema,
+    # each is refused in one line naming the key within a few seconds (budget rates: abm.experiment.budget).
+    world = yaml.safe_load(DEMO.read_text(encoding="utf-8"))
+    world["traffic"]["vehicles_per_day"] = 5e8
+    huge = tmp_path / "huge.yaml"
+    huge.write_text(yaml.safe_dump(world), encoding="utf-8")
+    experiment = yaml.safe_load((ROOT / "worlds" / "kestrel_quay" / "experiment.yaml").read_text(encoding="utf-8"))
+    experiment["world"] = str(DEMO)
+    experiment["replications"] = 10**7
+    many = tmp_path / "many.yaml"
+    many.write_text(yaml.safe_dump(experiment), encoding="utf-8")
+    calibration = yaml.safe_load((ROOT / "worlds" / "kestrel_quay" / "calibration.yaml").read_text(encoding="utf-8"))
+    calibration["world"] = str(DEMO)
+    calibration["observed"]["path"] = str(ROOT / "worlds" / "kestrel_quay" / "observed_extract")
+    calibration["method"]["draws"] = 10**8
+    draws = tmp_path / "draws.yaml"
+    draws.write_text(yaml.safe_dump(calibration), encoding="utf-8")
+    optimisation = yaml.safe_load((ROOT / "worlds" / "kestrel_quay" / "optimise.yaml").read_text(encoding="utf-8"))
+    optimisation["world"] = str(DEMO)
+    optimisation["search"]["popsize"] = 10**7
+    popsize = tmp_path / "popsize.yaml"
+    popsize.write_text(yaml.safe_dump(optimisation), encoding="utf-8")
+    for command, key in (
+        (["run", str(huge), "--days", "3", "--out", str(tmp_path / "a")], "traffic.vehicles_per_day: one run would need"),
+        (["run", str(DEMO), "--days", str(10**9), "--out", str(tmp_path / "b")], "--days: one run would need"),
+        (["check", str(many)], "replications: 30,000,000 runs is more than 100,000"),
+        (["batch", str(many), "--out", str(tmp_path / "c"), "--allow-large"], "replications: the records would need"),
+        (["calibrate", str(draws), "--check"], "method.draws: 100,000,020 runs is more than 100,000"),  # 20 predictive
+        (["optimise", str(popsize), "--check"], "search.popsize: "),
+    ):
+        result = subprocess.run([str(UNDERTOW), *command], capture_output=True, text=True, timeout=60, check=False)
+        assert result.returncode == 2 and key in result.stderr and result.stderr.count("\n") == 1, result.stderr
+    assert not any((tmp_path / name).exists() for name in "abc")

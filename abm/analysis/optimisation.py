@@ -25,6 +25,7 @@ import pandas as pd
 from pydantic import Field, field_validator
 
 from ..errors import InputError
+from ..experiment.budget import Keys, PlanSize, busiest_day, refusal
 from ..experiment.design import read_project_file
 from ..experiment.executors import Executor, choose_executor, make_executor
 from ..experiment.lock import LOCK_FILE, acquire, check_unlocked, release
@@ -258,7 +259,7 @@ class OptimisationPlan:
         return hashlib.sha256(text.encode("utf-8")).hexdigest()
 
 
-def load_optimisation(path: str | Path) -> OptimisationPlan:
+def load_optimisation(path: str | Path, allow_large: bool = False, out: Path | None = None) -> OptimisationPlan:
     """Read and validate an optimisation file; raise :class:`OptimisationFileError` naming the key at fault."""
     source, data, spec = read_project_file(path, Optimisation, OptimisationFileError)
 
@@ -314,6 +315,15 @@ def load_optimisation(path: str | Path) -> OptimisationPlan:
         alpha=sel.alpha,
         level=sel.level,
     )
+    size = PlanSize(
+        s.popsize * max(len(problem.bounds()), 1) * (s.maxiter + 1) * spec.replications
+        + (sel.top + len(policies)) * sel.replications,
+        spec.days + spec.warmup_days, busiest_day(world_data),
+    )
+    refused = refusal(size, Keys("traffic.vehicles_per_day (in the world file)", "days", "search.popsize"), out,
+                      allow_large)
+    if refused is not None:
+        raise fail(refused[0].split(" ")[0], refused[1])
     return OptimisationPlan(source, spec, world_path, world_data, file_hash(world_path), problem, settings, policies)
 
 
@@ -468,9 +478,9 @@ def _plain(frame: pd.DataFrame) -> pd.DataFrame:
     return out
 
 
-def describe_optimisation(path: str | Path) -> str:
+def describe_optimisation(path: str | Path, allow_large: bool = False) -> str:
     """Validate an optimisation file and say what it would run, in one line."""
-    plan = load_optimisation(path)
+    plan = load_optimisation(path, allow_large)
     spec, p = plan.spec, plan.problem
     dims = len(p.bounds())
     return (
@@ -492,15 +502,16 @@ def optimise_command(
     resume: bool,
     check: bool,
     command: Sequence[str],
+    allow_large: bool = False,
 ) -> None:
     """``undertow optimise``: validate (``check``) or search, and print the summary."""
     if check:
-        print(describe_optimisation(path))
+        print(describe_optimisation(path, allow_large))
         return
     if out is None:
         raise InputError("--out: a policy search needs an output folder (or pass --check to only validate the file)")
     executor = choose_executor(executor, workers, scheduler)
-    plan = load_optimisation(path)
+    plan = load_optimisation(path, allow_large, Path(out))
     from ..progress import progress
 
     with make_executor(executor, workers, scheduler) as runner, progress(

@@ -46,6 +46,7 @@ from ..errors import InputError
 from ..observed import RecordNames
 from ..world import WorldFileError, file_hash, parse_world, read_yaml_mapping
 from ..world.paths import PathProblem, apply_unknowns, get_path, holds_numbers, set_path
+from ..experiment.budget import Keys, PlanSize, busiest_day, refusal
 from ..experiment.design import read_project_file
 from ..world.schema import NumberOnly, Strict
 from .priors import DISTRIBUTIONS, Prior, PriorError, PriorSet
@@ -233,8 +234,12 @@ def world_with(world: dict[str, Any], priors: PriorSet, theta: np.ndarray) -> di
 # -- loading -----------------------------------------------------------------------------------
 
 
-def load_calibration(path: str | Path) -> CalibrationPlan:
-    """Read and validate a calibration file; raise :class:`CalibrationFileError` naming the key at fault."""
+def load_calibration(path: str | Path, allow_large: bool = False, out: Path | None = None) -> CalibrationPlan:
+    """Read and validate a calibration file; raise :class:`CalibrationFileError` naming the key at fault.
+
+    A calibration too large for this machine (or, without ``allow_large``, above the ceilings of
+    :mod:`abm.experiment.budget`) is refused; ``out`` is where its runs would go.
+    """
     source, data, spec = read_project_file(path, Calibration, CalibrationFileError)
     _check_method(spec, source)
     for i, group in enumerate(spec.summaries):
@@ -266,7 +271,24 @@ def load_calibration(path: str | Path) -> CalibrationPlan:
         observed=observed,
     )
     _check_settings(plan)
+    _check_size(plan, allow_large, out)
     return plan
+
+
+def _check_size(plan: CalibrationPlan, allow_large: bool, out: Path | None) -> None:
+    """Refuse, naming the key, a calibration whose candidate runs will not fit (see :mod:`abm.experiment.budget`)."""
+    if plan.method == "smc":
+        limit = plan.setting("max_simulations")
+        runs = limit if limit is not None else plan.setting("initial_draws") + math.ceil(
+            plan.setting("generations") * plan.setting("particles") / plan.setting("quantile"))
+        key = "method.max_simulations" if limit is not None else "method.particles"
+    else:
+        runs, key = plan.setting("draws"), "method.draws"
+    spec = plan.spec
+    size = PlanSize(runs + spec.predictive_runs, spec.days + spec.warmup_days, busiest_day(plan.world_data))
+    problem = refusal(size, Keys("traffic.vehicles_per_day (in the world file)", "days", key), out, allow_large)
+    if problem is not None:
+        raise CalibrationFileError(plan.source, problem[0].split(" ")[0], problem[1])
 
 
 def _check_method(spec: Calibration, source: Path) -> None:
@@ -420,9 +442,9 @@ def _observed_summaries(
 # -- one-line schema errors ------------------------------------------------------------------
 
 
-def describe_calibration(path: str | Path) -> str:
+def describe_calibration(path: str | Path, allow_large: bool = False) -> str:
     """Validate a calibration file and say what it would run, in one line."""
-    plan = load_calibration(path)
+    plan = load_calibration(path, allow_large)
     spec = plan.spec
     if plan.method == "smc":
         how = (

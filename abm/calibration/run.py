@@ -268,9 +268,10 @@ def calibrate(
     resume: bool = False,
     command: Sequence[str] = (),
     figures: bool = True,
+    allow_large: bool = False,
 ) -> CalibrationResult:
     """Validate and run the calibration file at ``path`` into ``out`` (``resume`` takes up an interrupted one)."""
-    plan = load_calibration(path)
+    plan = load_calibration(path, allow_large, Path(out))
     with make_executor(executor, workers, scheduler) as runner:
         return run_calibration(plan, out, runner, resume, command, figures)
 
@@ -284,14 +285,15 @@ def calibrate_command(
     resume: bool,
     check: bool,
     command: Sequence[str],
+    allow_large: bool = False,
 ) -> None:
     """``undertow calibrate``: validate (``check``) or run, and print the summary."""
     if check:
-        print(describe_calibration(path))
+        print(describe_calibration(path, allow_large))
         return
     if out is None:
         raise InputError("--out: a calibration needs an output folder (or pass --check to only validate the file)")
     executor = choose_executor(executor, workers, scheduler)
-    result = calibrate(path, out, executor, workers, scheduler, resume, command)
+    result = calibrate(path, out, executor, workers, scheduler, resume, command, allow_large=allow_large)
     print(result.summary())
     print(f"\nTables, summary.txt and figures in {out}", file=sys.stderr)

@@ -19,6 +19,7 @@ from typing import Any
 import pandas as pd
 
 from .compare import compare_points, format_comparison
+from .budget import SHOWN_VEHICLE_DAYS, PlanSize, busiest_day
 from .design import Plan, RunSpec, load_plan, point_shown
 from .executors import choose_executor, make_executor
 from .store import FAILURES_TABLE, Store, SummaryExtension
@@ -83,11 +84,13 @@ def run_batch(
     extensions: Sequence[SummaryExtension] = (),
     calibration: str | Path | None = None,
     on_warning: Callable[[str], None] | None = None,
+    allow_large: bool = False,
 ) -> BatchResult:
     """Run (or finish, with ``resume``) every run of an experiment into ``out``.
 
     ``calibration`` overrides the file's ``calibration:`` folder (see :func:`load_plan`).
-    ``on_warning`` is given each load warning (:func:`load_warnings`) before any run starts.
+    ``on_warning`` is given each load warning (:func:`load_warnings`) before any run starts, and the plan's
+    size when it is large. ``allow_large`` lets a plan past the ceilings of :mod:`abm.experiment.budget`.
 
     A run that raises is recorded in failures.parquet and the batch goes on.
     ``show_progress`` None shows a bar on a terminal and progress lines otherwise (False: nothing). ``extensions`` add
@@ -97,7 +100,7 @@ def run_batch(
     """
     # The executor first: a process pool's server then imports the engine while the plan is read.
     runner = make_executor(executor, workers, scheduler, preload=[extension.__module__ for extension in extensions])
-    plan = load_plan(experiment, calibration)
+    plan = load_plan(experiment, calibration, allow_large, Path(out))
     store = Store(out)
     store.open(plan, list(command), resume)
     try:  # the folder is locked from open to close: one writer at a time
@@ -113,6 +116,10 @@ def run_batch(
                     store.discard_if_empty()  # so a retry needs no --resume
                     raise
                 if on_warning is not None:  # once work can start: a refused --out or scheduler stays one line
+                    size = PlanSize(plan.total_runs, plan.spec.days + plan.spec.warmup_days,
+                                    max(busiest_day(plan.world_for(p.index)) for p in plan.points))
+                    if size.vehicle_days > SHOWN_VEHICLE_DAYS:
+                        on_warning(size.describe())
                     for warning in load_warnings(plan):
                         on_warning(warning)
                     if store.damaged:
@@ -164,11 +171,12 @@ def batch_command(
     resume: bool,
     command: Sequence[str],
     extensions: Sequence[SummaryExtension] = (),
+    allow_large: bool = False,
 ) -> bool:
     """``undertow batch``: run the batch, print the comparison; False when some runs failed (noted on stderr)."""
     executor = choose_executor(executor, workers, scheduler)
     result = run_batch(experiment, out, executor, workers, scheduler, resume, command, extensions=extensions,
-                       on_warning=print_warning)
+                       on_warning=print_warning, allow_large=allow_large)
     done = result.total - result.failed
     print(f"{result.plan.spec.name}: {done} of {result.total} runs complete ({result.ran} run now) -> {result.out}")
     print(format_comparison(result.comparison, [f.label for f in result.plan.factors]))

@@ -24,6 +24,7 @@ import difflib
 import hashlib
 import itertools
 import json
+import math
 from collections.abc import Callable, Iterator, Sequence
 from dataclasses import dataclass
 from pathlib import Path
@@ -36,6 +37,7 @@ from scipy.stats import qmc
 from ..world import WorldFileError, file_hash, parse_world, read_yaml_mapping
 from ..world.loader import allowed_keys, format_loc
 from ..world.paths import PathProblem, apply_changes, set_path
+from .budget import Keys, PlanSize, busiest_day, refusal
 from .posterior import Posterior, PosteriorProblem, read_posterior
 from .schema import SAMPLED_DESIGNS, Bundle, Experiment, Factor
 from .single import SUMMARY_SOURCES
@@ -178,11 +180,16 @@ def crn_seeds(root: int, replications: int) -> tuple[int, ...]:
     return tuple(int(child.generate_state(1)[0]) for child in np.random.SeedSequence(root).spawn(replications))
 
 
-def load_plan(path: str | Path, calibration: str | Path | None = None) -> Plan:
+def load_plan(
+    path: str | Path, calibration: str | Path | None = None, allow_large: bool = False, out: Path | None = None
+) -> Plan:
     """Read, validate and expand an experiment file; raise ExperimentFileError (or WorldFileError).
 
     ``calibration`` names a calibration output folder in place of the file's
     ``calibration:`` key (``undertow demo`` passes the one it has just made).
+    A plan too large for this machine (or, without ``allow_large``, above the
+    ceilings of :mod:`abm.experiment.budget`) is refused before its design
+    points are expanded; ``out`` is where its records would go.
     """
     source, data, spec = read_project_file(path, Experiment, ExperimentFileError)
     if calibration is not None:
@@ -196,6 +203,7 @@ def load_plan(path: str | Path, calibration: str | Path | None = None) -> Plan:
     factors = tuple(_plan_factor(spec, i, source, world_data) for i in range(len(spec.factors)))
     _check_labels(factors, source)
     _check_overlaps(factors, world_data, source)
+    _check_size(spec, factors, world_data, source, allow_large, out)
     points = _design_points(spec, factors)
     for point in points:
         try:
@@ -218,6 +226,29 @@ def load_plan(path: str | Path, calibration: str | Path | None = None) -> Plan:
 
 
 # -- checks ---------------------------------------------------------------------------------
+
+
+def _point_count(spec: Experiment, factors: Sequence[PlannedFactor]) -> int:
+    """How many design points the design will have, without expanding them."""
+    if spec.design == "full_factorial":
+        return math.prod(len(f.levels) for f in factors)
+    if spec.design == "one_at_a_time":
+        return 1 + sum(len(f.levels) - 1 for f in factors)
+    assert spec.samples is not None
+    return spec.samples
+
+
+def _check_size(
+    spec: Experiment, factors: Sequence[PlannedFactor], world: dict[str, Any], source: Path, allow_large: bool,
+    out: Path | None,
+) -> None:
+    """Refuse, naming the key, a plan that will not fit (see :mod:`abm.experiment.budget`)."""
+    points = _point_count(spec, factors)
+    size = PlanSize(points * spec.replications, spec.days + spec.warmup_days, busiest_day(world))
+    runs_key = "samples" if spec.samples is not None and spec.replications * 10 < spec.samples else "replications"
+    problem = refusal(size, Keys("traffic.vehicles_per_day (in the world file)", "days", runs_key), out, allow_large)
+    if problem is not None:
+        raise ExperimentFileError(source, problem[0].split(" ")[0], problem[1])
 
 
 def _check_design_keys(spec: Experiment, source: Path) -> None:
@@ -571,9 +602,9 @@ def _sha256(value: Any) -> str:
     return hashlib.sha256(text.encode("utf-8")).hexdigest()
 
 
-def describe_experiment(path: str | Path) -> str:
+def describe_experiment(path: str | Path, allow_large: bool = False) -> str:
     """Validate an experiment file and say what it would run, in one line."""
-    plan = load_plan(path)
+    plan = load_plan(path, allow_large=allow_large)
     spec = plan.spec
     unknowns = f"; {plan.posterior.describe()}" if plan.posterior is not None else ""
     return (

@@ -24,10 +24,13 @@ def _number_only(value: Any) -> Any:
 
 
 NumberOnly = BeforeValidator(_number_only)  # shared by every file schema of the project
+# No quantity of a world reaches a billion in its unit (minutes, vehicles, people, utility); a larger number is a
+# typo, and one near the float or integer limits would overflow the engine's arithmetic (common practice, no source).
+LARGEST = 1e9
 Probability = Annotated[float, Field(ge=0.0, le=1.0), NumberOnly]
-NonNegative = Annotated[float, Field(ge=0.0), NumberOnly]
-Positive = Annotated[float, Field(gt=0.0), NumberOnly]
-Count = Annotated[int, Field(ge=0), NumberOnly]
+NonNegative = Annotated[float, Field(ge=0.0, le=LARGEST), NumberOnly]
+Positive = Annotated[float, Field(gt=0.0, le=LARGEST), NumberOnly]
+Count = Annotated[int, Field(ge=0, le=int(LARGEST)), NumberOnly]
 Hour = Annotated[int, Field(ge=0, le=24), NumberOnly]
 NAME_PATTERN = r"^[A-Za-z0-9_\-]+$"
 CLOCK_PATTERN = r"^([01]\d|2[0-3]):[0-5]\d$"

@@ -26,7 +26,7 @@ from typing import Any, Protocol
 
 from ..errors import InputError
 from .fork_server import start_fork_server, start_method, start_server_for
-from .worker import RunTask, execute_run, failure
+from .worker import RunTask, execute_run, failure, watch_parent
 
 EXECUTORS = ("serial", "processes", "dask")
 # A run in flight when its worker process dies is retried on a fresh pool up to this many attempts in all
@@ -106,7 +106,10 @@ class ProcessExecutor:
 
     def _new_pool(self) -> ProcessPoolExecutor:
         start_fork_server(self.preload)  # again: after a worker died, the server may have gone too
-        return ProcessPoolExecutor(max_workers=self.workers, mp_context=multiprocessing.get_context(start_method()))
+        return ProcessPoolExecutor(
+            max_workers=self.workers, mp_context=multiprocessing.get_context(start_method()),
+            initializer=watch_parent, initargs=(os.getpid(),),
+        )
 
     def __enter__(self) -> "ProcessExecutor":
         self._pool = self._new_pool()

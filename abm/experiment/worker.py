@@ -12,6 +12,9 @@ instead of by the coordinator afterwards.
 from __future__ import annotations
 
 import json
+import os
+import threading
+import time
 import traceback
 from collections.abc import Callable, Mapping
 from dataclasses import dataclass, field
@@ -42,6 +45,27 @@ class RunTask:
     values: dict[str, Any] = field(default_factory=dict)  # factor label -> value, for the manifest
     # module-level functions of the run directory (they travel by name); see the module docstring
     extensions: tuple[Callable[[Path], Mapping[str, Any]], ...] = ()
+
+
+PARENT_POLL_SECONDS = 1.0
+
+
+def watch_parent(pid: int) -> None:
+    """In a pool worker: exit within about a second of the command's process dying (killed, even by SIGKILL).
+
+    A worker forked from the fork server is the server's child, so nothing tells it when the command is gone;
+    without this it would finish its run and idle on, keeping the server and the resource tracker alive.
+    """
+
+    def watch() -> None:
+        while True:
+            time.sleep(PARENT_POLL_SECONDS)
+            try:
+                os.kill(pid, 0)
+            except (ProcessLookupError, PermissionError):  # gone (or its number reused by another user's process)
+                os._exit(0)
+
+    threading.Thread(target=watch, name="watch-parent", daemon=True).start()
 
 
 def is_complete(run_dir: Path, digests: bool = False) -> bool:

@@ -181,3 +181,52 @@ def test_an_unreachable_scheduler_leaves_nothing_that_blocks_a_retry(tmp_path: P
     assert "cannot connect to a Dask scheduler" in result.stderr and not out.exists()
     retry = subprocess.run(command, capture_output=True, text=True, timeout=120, check=False)  # no --resume needed
     assert retry.returncode == 0, retry.stderr
+
+
+def _descendants(pid: int) -> list[int]:
+    """Every process below ``pid`` (Linux /proc)."""
+    parents: dict[int, list[int]] = {}
+    for entry in Path("/proc").iterdir():
+        if entry.name.isdigit():
+            try:
+                fields = (entry / "stat").read_text().rsplit(")", 1)[1].split()
+            except OSError:
+                continue
+            parents.setdefault(int(fields[1]), []).append(int(entry.name))
+    found, todo = [], [pid]
+    while todo:
+        for child in parents.get(todo.pop(), []):
+            found.append(child)
+            todo.append(child)
+    return found
+
+
+def _running(pid: int) -> bool:
+    try:
+        return (Path("/proc") / str(pid) / "stat").read_text().rsplit(")", 1)[1].split()[0] != "Z"
+    except OSError:
+        return False
+
+
+@pytest.mark.skipif(not Path("/proc/self/stat").exists(), reason="reads the process tree from Linux /proc")
+def test_a_killed_batch_leaves_no_worker_behind(tmp_path: Path) -> None:
+    import signal
+    import time
+
+    path = write_yaml(tmp_path / "experiment.yaml", experiment(days=200))
+    command = [*undertow_command(), "batch", str(path), "--out", str(tmp_path / "out"), "--executor", "processes",
+               "--workers", "2"]
+    main = subprocess.Popen(command, stdout=subprocess.DEVNULL, stderr=subprocess.DEVNULL)
+    for _ in range(300):  # the fork server, the resource tracker and two workers
+        if len(_descendants(main.pid)) >= 4:
+            break
+        time.sleep(0.2)
+    below = _descendants(main.pid)
+    assert len(below) >= 4
+    main.send_signal(signal.SIGKILL)
+    main.wait()
+    for _ in range(50):  # workers watch their command every second (abm.experiment.worker.watch_parent)
+        if not any(_running(pid) for pid in below):
+            break
+        time.sleep(0.2)
+    assert not [pid for pid in below if _running(pid)]

@@ -13,7 +13,7 @@ import sys
 from collections.abc import Callable, Sequence
 from pathlib import Path
 
-from .errors import InputError
+from .errors import InputError, refuse_unwritable
 
 EXIT_OK, EXIT_FAULT, EXIT_INPUT, EXIT_INTERRUPTED = 0, 1, 2, 130
 
@@ -94,6 +94,7 @@ def _run_world(world_path: Path, days: int, seed: int, out: Path, argv: list[str
 
     world = load_world(world_path)
     refuse_existing(out)  # before the warnings, so a refused --out stays a one-line error
+    refuse_unwritable(out)
     size = PlanSize(1, days, busiest_day(world.model_dump(mode="json")))
     problem = refusal(size, Keys("traffic.vehicles_per_day", "--days", "--days"), out, allow_large)
     if problem is not None:
@@ -155,6 +156,7 @@ def cmd_demo(args: argparse.Namespace) -> int:
         if not needed.exists():
             raise InputError(f"{needed}: the demo's files are not here; run from a checkout of the project")
     out = Path(args.out)
+    refuse_unwritable(out)
     calibration_out, batch_out = out / "calibration", out / "batch"
     plan = load_calibration(DEMO_CALIBRATION)
     resume = args.resume and _is_earlier_demo_of(out, plan.digest())

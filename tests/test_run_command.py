@@ -308,3 +308,18 @@ def test_plans_too_large_are_refused_before_anything_runs(tmp_path: Path) -> Non
         result = subprocess.run([str(UNDERTOW), *command], capture_output=True, text=True, timeout=60, check=False)
         assert result.returncode == 2 and key in result.stderr and result.stderr.count("\n") == 1, result.stderr
     assert not any((tmp_path / name).exists() for name in "abc")
+
+
+@pytest.mark.parametrize("command", [
+    ["run", "worlds/kestrel_quay/world.yaml", "--days", "2"], ["batch", "worlds/kestrel_quay/experiment.yaml"],
+    ["calibrate", "worlds/kestrel_quay/calibration.yaml"], ["optimise", "worlds/kestrel_quay/optimise.yaml"],
+    ["estimate", "worlds/kestrel_quay/observed_extract"],
+])
+def test_an_out_that_cannot_be_made_is_refused_before_any_work(command: list[str], tmp_path: Path,
+                                                               capsys: pytest.CaptureFixture[str]) -> None:
+    blocker = tmp_path / "a_file"
+    blocker.write_text("", encoding="utf-8")
+    args = [command[0], str(ROOT / command[1]), *command[2:], "--out", str(blocker / "sub")]
+    assert main(args) == 2
+    err = capsys.readouterr().err
+    assert err.count("\n") == 1 and "a_file is a file, so no folder can be made there" in err, err

@@ -24,7 +24,7 @@ import numpy as np
 import pandas as pd
 from pydantic import Field, field_validator
 
-from ..errors import InputError
+from ..errors import InputError, refuse_unwritable
 from ..experiment.budget import Keys, PlanSize, busiest_day, refusal
 from ..experiment.design import read_project_file
 from ..experiment.executors import Executor, choose_executor, make_executor
@@ -511,6 +511,7 @@ def optimise_command(
     if out is None:
         raise InputError("--out: a policy search needs an output folder (or pass --check to only validate the file)")
     executor = choose_executor(executor, workers, scheduler)
+    refuse_unwritable(out)
     plan = load_optimisation(path, allow_large, Path(out))
     from ..progress import progress
 

@@ -15,7 +15,7 @@ from pathlib import Path
 
 import pandas as pd
 
-from ..errors import InputError
+from ..errors import InputError, refuse_unwritable
 from ..experiment.executors import Executor, choose_executor, make_executor
 from ..records import write_atomically, write_json, write_parquet
 from .abc import ABCPosterior, PredictiveCheck, abc_smc, predictive_check
@@ -271,6 +271,7 @@ def calibrate(
     allow_large: bool = False,
 ) -> CalibrationResult:
     """Validate and run the calibration file at ``path`` into ``out`` (``resume`` takes up an interrupted one)."""
+    refuse_unwritable(out)
     plan = load_calibration(path, allow_large, Path(out))
     with make_executor(executor, workers, scheduler) as runner:
         return run_calibration(plan, out, runner, resume, command, figures)

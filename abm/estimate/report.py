@@ -14,7 +14,7 @@ from typing import TextIO
 import numpy as np
 import pandas as pd
 
-from ..errors import InputError
+from ..errors import InputError, refuse_unwritable
 from .expansion import EXPANSION, Sensitivities, beta_for, expansion, expansion_name, selection_shares
 from .frequency import (
     CHAO,
@@ -295,6 +295,7 @@ def estimate_command(
     rng = np.random.default_rng(seed) if seed is not None else None
     results, failures = run_all(tables, span, level, sensitivities or None, rng=rng)
     target = Path(records if out_dir is None else out_dir)
+    refuse_unwritable(target)
     if target.exists() and not target.is_dir():
         raise InputError(f"--out {target} exists and is not a folder")
     target.mkdir(parents=True, exist_ok=True)

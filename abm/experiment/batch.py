@@ -23,6 +23,7 @@ from .budget import SHOWN_VEHICLE_DAYS, PlanSize, busiest_day
 from .design import Plan, RunSpec, load_plan, point_shown
 from .executors import choose_executor, make_executor
 from .store import FAILURES_TABLE, Store, SummaryExtension
+from ..errors import refuse_unwritable
 from ..progress import progress
 from .worker import RunTask
 
@@ -100,6 +101,7 @@ def run_batch(
     """
     # The executor first: a process pool's server then imports the engine while the plan is read.
     runner = make_executor(executor, workers, scheduler, preload=[extension.__module__ for extension in extensions])
+    refuse_unwritable(out)
     plan = load_plan(experiment, calibration, allow_large, Path(out))
     store = Store(out)
     store.open(plan, list(command), resume)

@@ -103,7 +103,11 @@ class Store:
                     f"{self.out}: already holds a batch; pass --resume to finish it, or choose another --out "
                     "(nothing was overwritten)"
                 )
-            held = json.loads(record.read_text(encoding="utf-8"))
+            try:
+                held = json.loads(record.read_text(encoding="utf-8"))
+            except (OSError, ValueError):
+                raise StoreError(f"{record}: damaged (not readable JSON); the batch cannot be taken up: choose "
+                                 "another --out (nothing was changed)") from None
             if held.get("experiment_sha256") != plan.digest():
                 _refuse_changed_posterior(self.out, held, plan)
                 raise StoreError(

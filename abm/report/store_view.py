@@ -241,8 +241,16 @@ def load_batch(out: str | Path, baseline: str | None = None) -> BatchView:
         raise BriefingInputError(f"{out}: no {EXPERIMENT_FILE}; is it a batch folder written by undertow batch?")
     if not summary_path.is_file():
         raise BriefingInputError(f"{out}: no {SUMMARY_TABLE}; finish the batch (undertow batch ... --resume) first")
-    record = json.loads(record_path.read_text(encoding="utf-8"))
-    summary = pd.read_parquet(summary_path)
+    try:
+        record = json.loads(record_path.read_text(encoding="utf-8"))
+    except (OSError, ValueError) as exc:
+        raise BriefingInputError(f"{record_path}: damaged (not readable JSON: {exc.__class__.__name__}); the batch "
+                                 "cannot be briefed") from None
+    try:
+        summary = pd.read_parquet(summary_path)
+    except (OSError, ValueError) as exc:
+        raise BriefingInputError(f"{summary_path}: damaged ({' '.join(str(exc).split())[:120]}); rebuild it with "
+                                 f"undertow batch EXPERIMENT --out {out} --resume") from None
     if summary.empty:
         raise BriefingInputError(f"{summary_path}: no completed run to brief")
     for run_id in summary["run_id"]:

@@ -69,3 +69,14 @@ def test_readers_refuse_a_damaged_run_in_one_line(batch: tuple[Path, Path, pd.Da
         err = capsys.readouterr().err
         assert err.count("\n") == 1 and ".parquet" in err and "damaged" in err, err
     assert not (out / "est").exists() and not (out / "briefing.html").exists()
+
+
+def test_a_damaged_batch_record_is_named_not_an_internal_error(batch: tuple[Path, Path, pd.DataFrame],
+                                                               capsys: pytest.CaptureFixture[str]) -> None:
+    path, out, _ = batch
+    (out / "experiment.json").write_text("{broken", encoding="utf-8")
+    for command in (["brief", str(out)], ["batch", str(path), "--out", str(out), "--resume"]):
+        capsys.readouterr()
+        assert main(command) == 2
+        err = capsys.readouterr().err
+        assert err.count("\n") == 1 and "experiment.json: damaged" in err, err

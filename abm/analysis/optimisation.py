@@ -401,7 +401,12 @@ def _open_store(out: Path, plan: OptimisationPlan, command: Sequence[str], resum
                 f"{out}: already holds a policy search; pass --resume to finish it, or choose another --out "
                 "(nothing was overwritten)"
             )
-        if json.loads(header.read_text(encoding="utf-8")).get("optimisation_sha256") != plan.digest():
+        try:
+            held = json.loads(header.read_text(encoding="utf-8"))
+        except (OSError, ValueError):
+            raise PolicySearchError(f"{header}: damaged (not readable JSON); the search cannot be taken up: choose "
+                                    "another --out (nothing was changed)") from None
+        if not isinstance(held, dict) or held.get("optimisation_sha256") != plan.digest():
             raise PolicySearchError(
                 f"{out}: holds a different policy search (the file or its world changed); choose another --out "
                 "(nothing was overwritten)"

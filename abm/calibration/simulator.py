@@ -189,7 +189,11 @@ class CalibrationStore:
                     f"{self.out}: already holds a calibration; pass --resume to finish it, or choose another --out "
                     "(nothing was overwritten)"
                 )
-            held = json.loads(header.read_text(encoding="utf-8"))
+            try:
+                held = json.loads(header.read_text(encoding="utf-8"))
+            except (OSError, ValueError):
+                raise CalibrationStoreError(f"{header}: damaged (not readable JSON); the calibration cannot be taken "
+                                            "up: choose another --out (nothing was changed)") from None
             if held.get("calibration_sha256") == self.plan.digest():
                 self.lock = acquire(self.out)
                 return

@@ -7,6 +7,7 @@ value so the loader can report ``file: key.path: what was expected``.
 from __future__ import annotations
 
 import difflib
+import math
 from collections.abc import Iterable
 
 from .schema import DEFAULT_KEY, MONTHS, World, covers_no_hour
@@ -137,6 +138,7 @@ def check_references(world: World) -> None:
             raise ReferenceProblem(f"roster.teams[{i}].postings", "the weights sum to 0, so randomised command has "
                                    "nothing to draw; give at least one posting a positive weight")
     _check_lanes_fit(world)
+    _check_staffed(world)
 
     for key in world.adversary.adaptive.band_waiting:
         _require(key, bands, f"adversary.adaptive.band_waiting.{key}", "time band")
@@ -233,6 +235,36 @@ def _check_bands(world: World) -> None:
     missing = sorted(set(range(24)) - set(owner))
     if missing:
         raise ReferenceProblem("time_bands", f"every hour must be in one band; hour {missing[0]} is in none")
+
+
+def _selects(world: World, s_index: int) -> bool:
+    """Whether a station can ever have a vehicle to check: it selects some, or a station refers alarms to it."""
+    station = world.stations[s_index]
+    if station.role == "secondary":
+        return any(other.refer_to == station.name for other in world.stations)
+    sel = station.selection
+    if sel.rule == "all":
+        return True
+    if sel.rule == "targeted":
+        return sel.noise_sd > 0 or any(math.log(c.risk_weight) > sel.threshold for c in world.vehicle_classes)
+    shares = [sel.fraction, *sel.fraction_by_band.values(), sel.busy_fraction if sel.rule == "queue_aware" else 0.0]
+    factors = [sel.class_factor.get(c.name, 1.0) for c in world.vehicle_classes]
+    return max(shares) * max(factors) > 0
+
+
+def _check_staffed(world: World) -> None:
+    """A station that will have vehicles to check has a lane on duty at some hour, under some team or posting."""
+    for s_index, station in enumerate(world.stations):
+        staffed = any(
+            team.lanes.get(station.name, 0) > 0 or any(p.lanes.get(station.name, 0) > 0 for p in team.postings)
+            for team in world.roster.teams
+        )
+        if not staffed and _selects(world, s_index):
+            raise ReferenceProblem(
+                f"stations[{s_index}]",
+                f"'{station.name}' will have vehicles to check but no team staffs it at any hour; give it lanes in "
+                "a team of roster.teams, or select none there",
+            )
 
 
 def _check_lanes_fit(world: World) -> None:

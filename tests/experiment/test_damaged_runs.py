@@ -80,3 +80,24 @@ def test_a_damaged_batch_record_is_named_not_an_internal_error(batch: tuple[Path
         assert main(command) == 2
         err = capsys.readouterr().err
         assert err.count("\n") == 1 and "experiment.json: damaged" in err, err
+
+
+def test_damaged_calibration_and_search_records_are_named(tmp_path: Path) -> None:
+    from abm.analysis.optimisation import HEADER as SEARCH_HEADER
+    from abm.analysis.optimisation import _open_store, load_optimisation
+    from abm.calibration.config import load_calibration
+    from abm.calibration.simulator import HEADER as CALIBRATION_HEADER
+    from abm.calibration.simulator import CalibrationStore
+    from abm.errors import InputError
+
+    root = Path(__file__).resolve().parents[2] / "worlds" / "kestrel_quay"
+    calibration, search = tmp_path / "calibration", tmp_path / "search"
+    for folder, name in ((calibration, CALIBRATION_HEADER), (search, SEARCH_HEADER)):
+        folder.mkdir()
+        (folder / name).write_text("{broken", encoding="utf-8")
+    with pytest.raises(InputError, match="damaged") as caught:
+        CalibrationStore(calibration, load_calibration(root / "calibration.yaml")).open([], resume=True)
+    assert CALIBRATION_HEADER in str(caught.value) and "\n" not in str(caught.value)
+    with pytest.raises(InputError, match="damaged") as caught:
+        _open_store(search, load_optimisation(root / "optimise.yaml"), [], resume=True)
+    assert SEARCH_HEADER in str(caught.value) and "\n" not in str(caught.value)

@@ -682,3 +682,15 @@ def test_hours_that_cover_nothing_are_refused_in_one_line(where: str, span: list
     assert main(["check", str(path)]) == 2
     err = capsys.readouterr().err
     assert err.count("\n") == 1 and key in err and f"{span} covers none" in err, err
+
+
+def test_a_station_with_vehicles_to_check_and_no_lane_ever_is_refused(tmp_path: Path,
+                                                                      capsys: pytest.CaptureFixture[str]) -> None:
+    # It used to pass validation and stop the engine on day 0 ("selected a vehicle that no staffed lane can check").
+    data = yaml.safe_load((ROOT / "worlds" / "reference" / "mmc" / "world.yaml").read_text(encoding="utf-8"))
+    data["roster"]["teams"][0]["lanes"] = {}
+    path = tmp_path / "world.yaml"
+    path.write_text(yaml.safe_dump(data), encoding="utf-8")
+    assert main(["check", str(path)]) == 2
+    err = capsys.readouterr().err
+    assert err.count("\n") == 1 and "stations[0]: 'only_station' will have vehicles to check but no team staffs" in err

@@ -25,7 +25,7 @@ import pandas as pd
 from pydantic import Field, field_validator
 
 from ..errors import InputError, refuse_unwritable
-from ..experiment.budget import Keys, PlanSize, busiest_day, refusal
+from ..experiment.budget import SHOWN_VEHICLE_DAYS, Keys, PlanSize, busiest_day, refusal
 from ..experiment.design import read_project_file
 from ..experiment.executors import Executor, choose_executor, make_executor
 from ..experiment.lock import LOCK_FILE, acquire, check_unlocked, release
@@ -248,6 +248,7 @@ class OptimisationPlan:
     problem: Problem
     settings: SearchSettings
     policies: dict[str, dict[str, Any]] = field(default_factory=dict)
+    size: PlanSize | None = None  # what its runs will need (abm.experiment.budget)
 
     def digest(self) -> str:
         text = json.dumps(
@@ -324,7 +325,9 @@ def load_optimisation(path: str | Path, allow_large: bool = False, out: Path | N
                       allow_large)
     if refused is not None:
         raise fail(refused[0].split(" ")[0], refused[1])
-    return OptimisationPlan(source, spec, world_path, world_data, file_hash(world_path), problem, settings, policies)
+
+    return OptimisationPlan(source, spec, world_path, world_data, file_hash(world_path), problem, settings, policies,
+                            size)
 
 
 def _check_figure(figure: str, key: str, fail: Callable[[str, str], OptimisationFileError]) -> None:
@@ -518,6 +521,8 @@ def optimise_command(
     executor = choose_executor(executor, workers, scheduler)
     refuse_unwritable(out)
     plan = load_optimisation(path, allow_large, Path(out))
+    if plan.size is not None and plan.size.vehicle_days > SHOWN_VEHICLE_DAYS:
+        print(plan.size.describe(), file=sys.stderr)
     from ..progress import progress
 
     with make_executor(executor, workers, scheduler) as runner, progress(

@@ -31,6 +31,7 @@ one :class:`CalibrationFileError` line ``FILE: KEY.PATH: message``.
 
 from __future__ import annotations
 
+import dataclasses
 import difflib
 import hashlib
 import json
@@ -170,6 +171,7 @@ class CalibrationPlan:
     priors: PriorSet
     summary_spec: SummarySpec
     observed: np.ndarray  # the observed summaries, in summary_spec.names() order
+    size: PlanSize | None = None  # what its candidate runs will need (abm.experiment.budget)
 
     @property
     def method(self) -> str:
@@ -271,12 +273,12 @@ def load_calibration(path: str | Path, allow_large: bool = False, out: Path | No
         observed=observed,
     )
     _check_settings(plan)
-    _check_size(plan, allow_large, out)
-    return plan
+    return dataclasses.replace(plan, size=_check_size(plan, allow_large, out))
 
 
-def _check_size(plan: CalibrationPlan, allow_large: bool, out: Path | None) -> None:
-    """Refuse, naming the key, a calibration whose candidate runs will not fit (see :mod:`abm.experiment.budget`)."""
+def _check_size(plan: CalibrationPlan, allow_large: bool, out: Path | None) -> PlanSize:
+    """Refuse, naming the key, a calibration whose candidate runs will not fit (see :mod:`abm.experiment.budget`);
+    return what it will need."""
     if plan.method == "smc":
         limit = plan.setting("max_simulations")
         runs = limit if limit is not None else plan.setting("initial_draws") + math.ceil(
@@ -289,6 +291,7 @@ def _check_size(plan: CalibrationPlan, allow_large: bool, out: Path | None) -> N
     problem = refusal(size, Keys("traffic.vehicles_per_day (in the world file)", "days", key), out, allow_large)
     if problem is not None:
         raise CalibrationFileError(plan.source, problem[0].split(" ")[0], problem[1])
+    return size
 
 
 def _check_method(spec: Calibration, source: Path) -> None:

@@ -16,6 +16,7 @@ from pathlib import Path
 import pandas as pd
 
 from ..errors import InputError, refuse_unwritable
+from ..experiment.budget import SHOWN_VEHICLE_DAYS
 from ..experiment.executors import Executor, choose_executor, make_executor
 from ..records import write_atomically, write_json, write_parquet
 from .abc import ABCPosterior, PredictiveCheck, abc_smc, predictive_check
@@ -273,6 +274,8 @@ def calibrate(
     """Validate and run the calibration file at ``path`` into ``out`` (``resume`` takes up an interrupted one)."""
     refuse_unwritable(out)
     plan = load_calibration(path, allow_large, Path(out))
+    if plan.size is not None and plan.size.vehicle_days > SHOWN_VEHICLE_DAYS:
+        print(plan.size.describe(), file=sys.stderr)
     with make_executor(executor, workers, scheduler) as runner:
         return run_calibration(plan, out, runner, resume, command, figures)
 

@@ -86,7 +86,7 @@ def print_summary(summary: dict, title: str) -> None:
 
 def _run_world(world_path: Path, days: int, seed: int, out: Path, argv: list[str], allow_large: bool = False) -> int:
     from .experiment.batch import print_warning
-    from .experiment.budget import SHOWN_VEHICLE_DAYS, Keys, PlanSize, busiest_day, refusal
+    from .experiment.budget import SHOWN_VEHICLE_DAYS, Keys, PlanSize, busiest_day, refuse
     from .experiment.single import refuse_existing, run_to_directory
     from .port.load import load_report
     from .progress import progress
@@ -96,10 +96,8 @@ def _run_world(world_path: Path, days: int, seed: int, out: Path, argv: list[str
     refuse_existing(out)  # before the warnings, so a refused --out stays a one-line error
     refuse_unwritable(out)
     size = PlanSize(1, days, busiest_day(world.model_dump(mode="json")))
-    problem = refusal(size, Keys("traffic.vehicles_per_day", "--days", "--days"), out, allow_large)
-    if problem is not None:
-        where = problem[0] if problem[0].startswith("--") else f"{world_path}: {problem[0]}"
-        raise InputError(f"{where}: {problem[1]}")
+    refuse(size, Keys("traffic.vehicles_per_day", "--days", "--days"), out, allow_large,
+           lambda key, message: InputError(f"{key if key.startswith('--') else f'{world_path}: {key}'}: {message}"))
     if size.vehicle_days > SHOWN_VEHICLE_DAYS:
         print_warning(size.describe())
     for warning in load_report(world).warnings:

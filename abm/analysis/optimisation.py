@@ -25,10 +25,11 @@ import pandas as pd
 from pydantic import Field, field_validator
 
 from ..errors import InputError, refuse_unwritable
-from ..experiment.budget import SHOWN_VEHICLE_DAYS, Keys, PlanSize, busiest_day, refusal
-from ..experiment.design import read_project_file
+from ..experiment.budget import SHOWN_VEHICLE_DAYS, Keys, PlanSize, busiest_day, refuse
+from ..experiment.project_file import read_project_file
 from ..experiment.executors import Executor, choose_executor, make_executor
-from ..experiment.lock import LOCK_FILE, acquire, check_unlocked, release
+from ..experiment.lock import acquire, release
+from ..experiment.out_folder import held_record
 from ..experiment.single import package_versions
 from ..experiment.worker import SUMMARY_FILE, RunTask, is_complete
 from ..records import METHODS_FILE, write_atomically, write_json, write_parquet
@@ -321,10 +322,8 @@ def load_optimisation(path: str | Path, allow_large: bool = False, out: Path | N
         + (sel.top + len(policies)) * sel.replications,
         spec.days + spec.warmup_days, busiest_day(world_data),
     )
-    refused = refusal(size, Keys("traffic.vehicles_per_day (in the world file)", "days", "search.popsize"), out,
-                      allow_large)
-    if refused is not None:
-        raise fail(refused[0].split(" ")[0], refused[1])
+    refuse(size, Keys("traffic.vehicles_per_day", "days", "search.popsize", " (in the world file)"), out, allow_large,
+           fail)
 
     return OptimisationPlan(source, spec, world_path, world_data, file_hash(world_path), problem, settings, policies,
                             size)
@@ -394,29 +393,14 @@ HEADER = "optimisation.json"
 def _open_store(out: Path, plan: OptimisationPlan, command: Sequence[str], resume: bool) -> Path:
     """Start a search in OUT or take one up; returns the folder's lock, which the caller releases."""
     header = out / HEADER
-    if out.exists() and not out.is_dir():
-        raise PolicySearchError(f"{out}: is a file; --out needs a folder")
-    if out.is_dir():
-        check_unlocked(out)
-    if header.is_file():
-        if not resume:
-            raise PolicySearchError(
-                f"{out}: already holds a policy search; pass --resume to finish it, or choose another --out "
-                "(nothing was overwritten)"
-            )
-        try:
-            held = json.loads(header.read_text(encoding="utf-8"))
-        except (OSError, ValueError):
-            raise PolicySearchError(f"{header}: damaged (not readable JSON); the search cannot be taken up: choose "
-                                    "another --out (nothing was changed)") from None
-        if not isinstance(held, dict) or held.get("optimisation_sha256") != plan.digest():
+    held = held_record(out, HEADER, "policy search", resume, PolicySearchError)
+    if held is not None:
+        if held.get("optimisation_sha256") != plan.digest():
             raise PolicySearchError(
                 f"{out}: holds a different policy search (the file or its world changed); choose another --out "
                 "(nothing was overwritten)"
             )
         return acquire(out)
-    if out.is_dir() and any(p.name != LOCK_FILE for p in out.iterdir()):
-        raise PolicySearchError(f"{out}: is not empty and holds no policy search; choose another --out (nothing was overwritten)")
     out.mkdir(parents=True, exist_ok=True)
     lock = acquire(out)
     write_json(

@@ -47,8 +47,8 @@ from ..errors import InputError
 from ..observed import RecordNames
 from ..world import WorldFileError, file_hash, parse_world, read_yaml_mapping
 from ..world.paths import PathProblem, apply_unknowns, get_path, holds_numbers, set_path
-from ..experiment.budget import Keys, PlanSize, busiest_day, refusal
-from ..experiment.design import read_project_file
+from ..experiment.budget import Keys, PlanSize, busiest_day, refuse
+from ..experiment.project_file import read_project_file
 from ..world.schema import NumberOnly, Strict
 from .priors import DISTRIBUTIONS, Prior, PriorError, PriorSet
 from .rejection import kept_count
@@ -288,9 +288,8 @@ def _check_size(plan: CalibrationPlan, allow_large: bool, out: Path | None) -> P
         runs, key = plan.setting("draws"), "method.draws"
     spec = plan.spec
     size = PlanSize(runs + spec.predictive_runs, spec.days + spec.warmup_days, busiest_day(plan.world_data))
-    problem = refusal(size, Keys("traffic.vehicles_per_day (in the world file)", "days", key), out, allow_large)
-    if problem is not None:
-        raise CalibrationFileError(plan.source, problem[0].split(" ")[0], problem[1])
+    keys = Keys("traffic.vehicles_per_day", "days", key, " (in the world file)")
+    refuse(size, keys, out, allow_large, lambda where, message: CalibrationFileError(plan.source, where, message))
     return size
 
 

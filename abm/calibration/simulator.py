@@ -40,7 +40,8 @@ import pandas as pd
 
 from ..errors import InputError
 from ..experiment.executors import Executor
-from ..experiment.lock import LOCK_FILE, acquire, check_unlocked, release
+from ..experiment.lock import acquire, release
+from ..experiment.out_folder import held_record
 from ..experiment.single import package_versions
 from ..experiment.worker import SUMMARY_FILE, RunTask, is_complete
 from ..observed import OBSERVED_DIR, conform
@@ -178,22 +179,8 @@ class CalibrationStore:
 
     def open(self, command: Sequence[str], resume: bool) -> None:
         """Start a calibration in OUT, or (``resume``) take up the same calibration found there."""
-        header = self.out / HEADER
-        if self.out.exists() and not self.out.is_dir():
-            raise CalibrationStoreError(f"{self.out}: is a file; --out needs a folder")
-        if self.out.is_dir():
-            check_unlocked(self.out)
-        if header.is_file():
-            if not resume:
-                raise CalibrationStoreError(
-                    f"{self.out}: already holds a calibration; pass --resume to finish it, or choose another --out "
-                    "(nothing was overwritten)"
-                )
-            try:
-                held = json.loads(header.read_text(encoding="utf-8"))
-            except (OSError, ValueError):
-                raise CalibrationStoreError(f"{header}: damaged (not readable JSON); the calibration cannot be taken "
-                                            "up: choose another --out (nothing was changed)") from None
+        held = held_record(self.out, HEADER, "calibration", resume, CalibrationStoreError)
+        if held is not None:
             if held.get("calibration_sha256") == self.plan.digest():
                 self.lock = acquire(self.out)
                 return
@@ -204,10 +191,6 @@ class CalibrationStore:
                 )
             # Only settings changed (method, summaries, records, level...): finished runs of unchanged draws
             # are reused, generations made under the old settings are made again.
-        elif self.out.is_dir() and any(p.name != LOCK_FILE for p in self.out.iterdir()):
-            raise CalibrationStoreError(
-                f"{self.out}: is not empty and holds no calibration; choose another --out (nothing was overwritten)"
-            )
         self.out.mkdir(parents=True, exist_ok=True)
         self.lock = acquire(self.out)
         self._write_header(command)

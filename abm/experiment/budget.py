@@ -19,6 +19,7 @@ from __future__ import annotations
 
 import os
 import shutil
+from collections.abc import Callable
 from dataclasses import dataclass
 from pathlib import Path
 from typing import Any
@@ -102,15 +103,26 @@ class Keys:
     vehicles: str  # e.g. "traffic.vehicles_per_day"
     days: str  # e.g. "days" or "--days"
     runs: str  # e.g. "replications"
+    vehicles_note: str = ""  # e.g. " (in the world file)", when the file refused is not the world's
 
 
-def refusal(size: PlanSize, keys: Keys, out: Path | None, allow_large: bool) -> tuple[str, str] | None:
-    """(key, message) when the plan must not start; None when it may."""
+def refuse(
+    size: PlanSize, keys: Keys, out: Path | None, allow_large: bool, error: Callable[[str, str], Exception]
+) -> None:
+    """Raise ``error(key, message)`` when the plan must not start (see the module's docstring)."""
+    problem = _refusal(size, keys, out, allow_large)
+    if problem is not None:
+        raise error(*problem)
+
+
+def _refusal(size: PlanSize, keys: Keys, out: Path | None, allow_large: bool) -> tuple[str, str] | None:
+    vehicles = keys.vehicles + keys.vehicles_note
     memory = physical_memory()
     if size.worker_memory > memory:
-        key = keys.vehicles if ACTIVE_BYTES * size.busiest_day > RECORD_MEMORY * size.days * size.busiest_day else keys.days
+        active = ACTIVE_BYTES * size.busiest_day > RECORD_MEMORY * size.days * size.busiest_day
+        key, shown = (keys.vehicles, vehicles) if active else (keys.days, keys.days)
         return key, (f"one run would need about {_size(size.worker_memory)} of memory, more than this machine's "
-                     f"{_size(memory)}; lower {key} ({size.describe()})")
+                     f"{_size(memory)}; lower {shown} ({size.describe()})")
     free = _free_disk(out)
     if size.disk > free:
         return keys.runs, (f"the records would need about {_size(size.disk)} of disk, more than the "
@@ -122,7 +134,7 @@ def refusal(size: PlanSize, keys: Keys, out: Path | None, allow_large: bool) -> 
         return keys.runs, f"{size.runs:,} runs is more than {MAX_RUNS:,}; lower {keys.runs}, {hint}"
     if size.worker_memory > MAX_WORKER_MEMORY:
         return keys.vehicles, (f"one run would need about {_size(size.worker_memory)} of memory, more than "
-                               f"{_size(MAX_WORKER_MEMORY)}; lower {keys.vehicles} or {keys.days}, {hint}")
+                               f"{_size(MAX_WORKER_MEMORY)}; lower {vehicles} or {keys.days}, {hint}")
     if size.vehicle_days > MAX_VEHICLE_DAYS:
         return keys.days, (f"about {size.vehicle_days:.2g} simulated vehicle-days is more than "
                            f"{MAX_VEHICLE_DAYS:.0e}; lower {keys.days} or {keys.runs}, {hint}")

@@ -20,7 +20,6 @@ unknowns (:mod:`abm.experiment.posterior`).
 
 from __future__ import annotations
 
-import difflib
 import hashlib
 import itertools
 import json
@@ -28,17 +27,17 @@ import math
 from collections.abc import Callable, Iterator, Sequence
 from dataclasses import dataclass
 from pathlib import Path
-from typing import Any, TypeVar
+from typing import Any
 
 import numpy as np
-from pydantic import BaseModel, ValidationError
+from pydantic import ValidationError
 from scipy.stats import qmc
 
 from ..world import WorldFileError, file_hash, parse_world, read_yaml_mapping
-from ..world.loader import allowed_keys, format_loc
 from ..world.paths import PathProblem, apply_changes, set_path
-from .budget import Keys, PlanSize, busiest_day, refusal
+from .budget import Keys, PlanSize, busiest_day, refuse
 from .posterior import Posterior, PosteriorProblem, read_posterior
+from .project_file import read_project_file, schema_error, shown
 from .schema import SAMPLED_DESIGNS, Bundle, Experiment, Factor
 from .single import SUMMARY_SOURCES
 
@@ -209,8 +208,8 @@ def load_plan(
         try:
             parse_world(apply_changes(world_data, dict(point.changes)), "<design point>")
         except WorldFileError as exc:
-            shown = f"design point {point.index} ({point_shown(point)})"
-            raise ExperimentFileError(source, "factors", f"{shown}: in the world, {exc.path}: {exc.message}") from None
+            where = f"design point {point.index} ({point_shown(point)})"
+            raise ExperimentFileError(source, "factors", f"{where}: in the world, {exc.path}: {exc.message}") from None
     posterior = _plan_posterior(spec, source, world_data, factors, points) if spec.calibration is not None else None
     return Plan(
         source=source,
@@ -246,9 +245,8 @@ def _check_size(
     points = _point_count(spec, factors)
     size = PlanSize(points * spec.replications, spec.days + spec.warmup_days, busiest_day(world))
     runs_key = "samples" if spec.samples is not None and spec.replications * 10 < spec.samples else "replications"
-    problem = refusal(size, Keys("traffic.vehicles_per_day (in the world file)", "days", runs_key), out, allow_large)
-    if problem is not None:
-        raise ExperimentFileError(source, problem[0].split(" ")[0], problem[1])
+    keys = Keys("traffic.vehicles_per_day", "days", runs_key, " (in the world file)")
+    refuse(size, keys, out, allow_large, lambda key, message: ExperimentFileError(source, key, message))
 
 
 def _check_design_keys(spec: Experiment, source: Path) -> None:
@@ -305,7 +303,7 @@ def _plan_factor(spec: Experiment, i: int, source: Path, world: dict[str, Any]) 
     levels = _bundle_levels(factor, key, source) if factor.path is None else _value_levels(factor, key, source)
     for j, level in enumerate(levels):
         where = f"{key}.levels[{j}]"
-        prefix = f"level {_shown(level.label)} of factor {_shown(factor.label)}: "
+        prefix = f"level {shown(level.label)} of factor {shown(factor.label)}: "
         _check_changes(world, level.changes, source, where, at_path if factor.path else lambda p: f"{where}.set.{p}",
                        prefix)
     baseline = _baseline(factor, levels, key, source)
@@ -317,7 +315,7 @@ def _value_levels(factor: Factor, key: str, source: Path) -> list[Level]:
     seen: list[Any] = []
     for j, value in enumerate(factor.levels):
         if any(_same(value, other) for other in seen):
-            raise ExperimentFileError(source, f"{key}.levels[{j}]", f"repeats the level {_shown(value)}")
+            raise ExperimentFileError(source, f"{key}.levels[{j}]", f"repeats the level {shown(value)}")
         seen.append(value)
     return [Level(value, ((factor.path, value),)) for value in factor.levels]
 
@@ -331,7 +329,7 @@ def _bundle_levels(factor: Factor, key: str, source: Path) -> list[Level]:
             raise ExperimentFileError(
                 source,
                 where,
-                f"expected a bundle {{name: ..., set: {{path: value}}}} (or give the factor a path), got {_shown(raw)}",
+                f"expected a bundle {{name: ..., set: {{path: value}}}} (or give the factor a path), got {shown(raw)}",
             )
         try:
             bundle = Bundle.model_validate(raw)
@@ -351,8 +349,8 @@ def _baseline(factor: Factor, levels: Sequence[Level], key: str, source: Path) -
     for j, level in enumerate(levels):
         if _same(level.label, factor.baseline):
             return j
-    shown = ", ".join(_shown(level.label) for level in levels)
-    message = f"{_shown(factor.baseline)} is not one of the levels ({shown})"
+    listed = ", ".join(shown(level.label) for level in levels)
+    message = f"{shown(factor.baseline)} is not one of the levels ({listed})"
     raise ExperimentFileError(source, f"{key}.baseline", message)
 
 
@@ -483,73 +481,6 @@ def _factorial_comparators(factors: Sequence[PlannedFactor], combos: Sequence[tu
 # -- helpers --------------------------------------------------------------------------------
 
 
-Spec = TypeVar("Spec", bound=BaseModel)
-
-
-def read_project_file(
-    path: str | Path, model: type[Spec], error_type: type[WorldFileError]
-) -> tuple[Path, dict[str, Any], Spec]:
-    """Read a project file (experiment, calibration, optimisation) and validate it against ``model``.
-
-    Returns the file's path, its raw mapping and the validated spec; a schema
-    problem raises ``error_type`` in one line naming the key (:func:`schema_error`).
-    """
-    source = Path(path)
-    data = read_yaml_mapping(source)
-    try:
-        return source, data, model.model_validate(data)
-    except ValidationError as exc:
-        raise schema_error(exc, data, source, model, error_type) from None
-
-
-def schema_error(
-    exc: ValidationError, data: Any, source: Path, model: type[BaseModel], error_type: type[WorldFileError]
-) -> WorldFileError:
-    """The first schema problem of a project file as one line naming its key.
-
-    Shared by experiment, calibration and optimisation files; a misspelt key is
-    reported as unknown, with the closest valid key as a hint.
-    """
-    errors = exc.errors()
-    error = errors[0]
-    if error["type"] == "missing":
-        # A misspelt key shows up as "missing" plus an unknown sibling: the unknown key is the real news.
-        parent = tuple(error["loc"][:-1])
-        error = next((e for e in errors if e["type"] == "extra_forbidden" and tuple(e["loc"][:-1]) == parent), error)
-    kind = error["type"]
-    loc = present_location(tuple(error["loc"]), data, keep_last=kind in ("missing", "extra_forbidden"))
-    path = format_loc(loc, data)
-    if kind == "extra_forbidden":
-        key = str(loc[-1])
-        valid = allowed_keys(model, loc[:-1])
-        close = difflib.get_close_matches(key, valid, n=1, cutoff=0.5)
-        hint = f"; did you mean '{close[0]}'?" if close else (f"; valid keys: {', '.join(valid)}" if valid else "")
-        return error_type(source, path, f"unknown key '{key}'{hint}")
-    if kind == "missing":
-        return error_type(source, path, "required key is missing")
-    message = error["msg"].removeprefix("Value error, ")
-    given = error.get("input")
-    if " got " not in message and not isinstance(given, (dict, list)):
-        message = f"{message}, got {_shown(given)}"
-    return error_type(source, path, message)
-
-
-def present_location(loc: tuple[Any, ...], data: Any, keep_last: bool) -> tuple[Any, ...]:
-    """The part of a pydantic location that exists in the data (dropping union-member tags)."""
-    node, kept = data, []
-    for i, item in enumerate(loc):
-        if isinstance(node, dict) and item in node:
-            node = node[item]
-        elif isinstance(node, list) and isinstance(item, int) and 0 <= item < len(node):
-            node = node[item]
-        else:
-            if keep_last and i == len(loc) - 1:
-                kept.append(item)
-            break
-        kept.append(item)
-    return tuple(kept)
-
-
 class _Marker:
     """A value that survives deep copies as itself, to find where a path lands."""
 
@@ -579,13 +510,7 @@ def _same(a: Any, b: Any) -> bool:
 
 def point_shown(point: DesignPoint) -> str:
     """A design point's factor values as they read in a message."""
-    return ", ".join(f"{k}={_shown(v)}" for k, v in point.values.items())
-
-
-def _shown(value: Any) -> str:
-    """A value as it reads in a message."""
-    text = json.dumps(value, default=str) if not isinstance(value, str) else f"'{value}'"
-    return text if len(text) <= 40 else text[:37] + "..."
+    return ", ".join(f"{k}={shown(v)}" for k, v in point.values.items())
 
 
 def _keys_as_text(value: Any) -> Any:

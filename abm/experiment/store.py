@@ -29,7 +29,8 @@ from ..errors import InputError
 from ..records import write_json, write_parquet
 from ..run_files import damage
 from .design import Plan, PlannedFactor, RunSpec
-from .lock import LOCK_FILE, acquire, check_unlocked, release
+from .lock import acquire, release
+from .out_folder import held_record
 from .posterior import DRAW_COLUMN
 from .single import SUMMARY_SOURCES, package_versions
 from .worker import SUMMARY_FILE, is_complete
@@ -93,21 +94,8 @@ class Store:
     def open(self, plan: Plan, command: list[str], resume: bool) -> None:
         """Start a new batch in OUT, or (``resume``) take up the same experiment's batch found there."""
         record = self.out / EXPERIMENT_FILE
-        if self.out.exists() and not self.out.is_dir():
-            raise StoreError(f"{self.out}: is a file; --out needs a folder")
-        if self.out.is_dir():
-            check_unlocked(self.out)
-        if record.is_file():
-            if not resume:
-                raise StoreError(
-                    f"{self.out}: already holds a batch; pass --resume to finish it, or choose another --out "
-                    "(nothing was overwritten)"
-                )
-            try:
-                held = json.loads(record.read_text(encoding="utf-8"))
-            except (OSError, ValueError):
-                raise StoreError(f"{record}: damaged (not readable JSON); the batch cannot be taken up: choose "
-                                 "another --out (nothing was changed)") from None
+        held = held_record(self.out, EXPERIMENT_FILE, "batch", resume, StoreError)
+        if held is not None:
             if held.get("experiment_sha256") != plan.digest():
                 _refuse_changed_posterior(self.out, held, plan)
                 raise StoreError(
@@ -117,10 +105,6 @@ class Store:
             self.lock = acquire(self.out)  # before tidying: a second writer must not tidy the first's runs away
             self._tidy()
             return
-        if self.out.is_dir() and any(p.name != LOCK_FILE for p in self.out.iterdir()):
-            raise StoreError(
-                f"{self.out}: is not empty and holds no batch; choose another --out (nothing was overwritten)"
-            )
         self.created = [p for p in (self.out, self.runs) if not p.exists()]
         self.runs.mkdir(parents=True, exist_ok=True)
         self.lock = acquire(self.out)

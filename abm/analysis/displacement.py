@@ -543,9 +543,9 @@ def _compare(
         return per_day(frame[frame["state"] == "displaced_out"], window)
 
     def daily(frame: pd.DataFrame, window: Window, count: str | None) -> np.ndarray:
-        days = frame["day"] if count is None else frame.loc[frame.index, "day"]
+        """Per day of the window: the sum of ``count`` (persons), or the number of rows when it is None."""
         values = frame[count] if count is not None else pd.Series(1, index=frame.index)
-        per = values.groupby(days).sum()
+        per = values.groupby(frame["day"]).sum()
         return per.reindex(range(window.start_day, window.end_day), fill_value=0).to_numpy(float)
 
     crossed_b, crossed_a = att_b[att_b["outcome"] == "crossed"], att_a[att_a["outcome"] == "crossed"]

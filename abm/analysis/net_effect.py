@@ -25,6 +25,7 @@ from scipy import special  # t quantiles and tails without scipy.stats's import 
 TRUTH, OBSERVED = "truth", "observed"
 BLOCK_DAYS = 7
 CONFIDENCE = 0.95
+FEW_BLOCKS = 4  # fewer means than this leave a t-test little power (common practice, no source)
 
 
 @dataclass(frozen=True)
@@ -58,8 +59,10 @@ class RateChange:
         test = "paired t-test" if self.paired else "Welch t-test"
         unit = "weekly" if self.block_days == BLOCK_DAYS else "daily"
         interval = f"{CONFIDENCE:.0%} interval {self.low:+.2f} to {self.high:+.2f}"
+        few = f"; only {self.blocks} means, a weak test" if self.blocks < FEW_BLOCKS else ""
         return (f"{self.measure.replace('_', ' ')} {self.before:.2f} -> {self.after:.2f}, difference "
-                f"{self.difference:+.2f} ({interval}, {_p_text(self.p_value)}; {test} on {self.blocks} {unit} means)")
+                f"{self.difference:+.2f} ({interval}, {_p_text(self.p_value)}; {test} on {self.blocks} {unit} means"
+                f"{few})")
 
     def to_dict(self) -> dict[str, Any]:
         return {

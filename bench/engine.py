@@ -457,6 +457,7 @@ def year_breakdown(world, days: int, seed: int) -> dict[str, float]:
     import abm.port.day as day_module
     from abm.experiment.single import simulate
     from abm.model import PortModel
+    from abm.port.departures import DepartureBoard
     from abm.records import RecordBook
 
     spent: dict[str, float] = {}
@@ -465,7 +466,7 @@ def year_breakdown(world, days: int, seed: int) -> dict[str, float]:
         (day_module, "draw_for_station", "station draws (durations, uniforms)"),
         (day_module, "check_station", "station passes (compiled: queue, checks, referral)"),
         (day_module.DayEngine, "_board", "boarding"),
-        (day_module.DayEngine, "_depart", "sailings"),
+        (DepartureBoard, "depart", "departures"),
         (RecordBook, "add_day", "records"),
         (day_module.DayEngine, "run_day", "day engine in all"),
         (PortModel, "step", "model step in all"),

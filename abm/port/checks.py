@@ -16,11 +16,8 @@ import numpy as np
 from .layout import DISTS, Layout
 
 
-def sample_service(layout: Layout, method: int, n: int, rng: np.random.Generator) -> np.ndarray:
-    """Draw n check durations (minutes) for a method."""
-    dist = DISTS[layout.method_dist[method]]
-    mean = layout.method_mean[method]
-    cv = layout.method_cv[method]
+def sample_duration(dist: str, mean: float, cv: float, spread: float, n: int, rng: np.random.Generator) -> np.ndarray:
+    """Draw n durations (minutes) from one of :data:`DISTS` with the given mean and shape."""
     if dist == "exponential":
         return mean * rng.standard_exponential(n)
     if dist == "deterministic":
@@ -31,8 +28,13 @@ def sample_service(layout: Layout, method: int, n: int, rng: np.random.Generator
     if dist == "gamma":
         shape = 1.0 / (cv * cv)
         return rng.gamma(shape, mean / shape, n)
-    spread = layout.method_spread[method]  # uniform
-    return mean * (1.0 + spread * (2.0 * rng.random(n) - 1.0))
+    return mean * (1.0 + spread * (2.0 * rng.random(n) - 1.0))  # uniform
+
+
+def sample_service(layout: Layout, method: int, n: int, rng: np.random.Generator) -> np.ndarray:
+    """Draw n check durations (minutes) for a method."""
+    return sample_duration(DISTS[layout.method_dist[method]], layout.method_mean[method], layout.method_cv[method],
+                           layout.method_spread[method], n, rng)
 
 
 @dataclass

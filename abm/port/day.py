@@ -1,4 +1,4 @@
-"""The operating-day engine: a day's vehicles through boarding points, stations and sailings.
+"""The operating-day engine: a day's vehicles through boarding points, stations and departures.
 
 Vehicles are rows of numpy arrays; nothing here is a per-vehicle object and no
 generic event scheduler is used. The route is processed position by position:
@@ -7,7 +7,8 @@ board vehicles at the minute those vehicles pass; the station's queue is then
 run exactly (see :mod:`abm.port.queues`). A vehicle whose check raises an alarm
 is referred to the station's secondary search area (which lies downstream; the
 referred vehicle skips the stations in between) and continues from there.
-After the last station come the boarding points before departure, then sailings.
+After the last station come the boarding points before departure, then the
+departures (:mod:`abm.port.departures`).
 
 Lanes carry their state between days, so a vehicle still queueing at midnight
 is served by the next day's lanes: vehicles carry over, and checks start in
@@ -48,13 +49,11 @@ import numpy as np
 
 from ..errors import InputError
 from .checks import StationDraws, draw_for_station
+from .departures import DepartureBoard, build_timetable
 from .layout import DEPARTURE, MONTH_OF_YEAR_DAY, Layout
 from .boarding import fitting_vehicles, stopping_of_class
-from .queues import board_sailings
 from .station import METHOD_COUNTERS, FifoCarry, MethodTables, StationPass, StationRules, VehicleState, check_station
 from .traffic import MINUTES_PER_DAY, DayTraffic, generate_traffic
-
-SAILING_HORIZON_DAYS = 7  # sailings are looked up this many days ahead of the arrival day
 
 # Outcome codes of an attempt.
 PENDING, INTERDICTED, DETECTED, CROSSED, NO_VEHICLE = 0, 1, 2, 3, 4
@@ -126,14 +125,14 @@ class DayResult:
     check_rows: dict[str, np.ndarray]  # aggregated observed checks (calendar day, hour, station, class, method, counts)
     false_alarms: dict[str, np.ndarray]  # one row per alarm after which nothing was found
     time_in_port: np.ndarray  # minutes, per vehicle
-    missed: np.ndarray  # bool per vehicle: left on a later sailing than booked
+    missed: np.ndarray  # bool per vehicle: left on a later departure than booked
     weather: str  # the day's weather state ("" in a world without weather)
     method_rows: dict[str, np.ndarray]  # per method and cargo type: checks, alarms, and what truth says of them
     queue_wait: dict[int, np.ndarray] = field(default_factory=dict)  # station -> waits of checked vehicles
 
 
 class DayEngine:
-    """Runs operating days one after another, keeping lanes and sailings between days."""
+    """Runs operating days one after another, keeping lanes and departures' room between days."""
 
     def __init__(
         self,
@@ -145,6 +144,7 @@ class DayEngine:
         arrivals_seq, stop_seq = traffic_seq.spawn(2)
         # spawned after the children above, which therefore stay what they were
         weather_seq, cargo_seq = traffic_seq.spawn(2)
+        (departure_seq,) = traffic_seq.spawn(1)  # delays and cancellations, after the children above
         self.layout = layout
         self.traffic_rng = np.random.default_rng(arrivals_seq)
         self.stop_rng = np.random.default_rng(stop_seq)
@@ -158,7 +158,7 @@ class DayEngine:
         self.free = [np.full(int(lanes), -np.inf) for lanes in layout.station_lanes]
         self.worked = [np.zeros(int(lanes)) for lanes in layout.station_lanes]  # minutes since each lane's rest
         self.carry = [FifoCarry.empty() for _ in layout.station_lanes]  # each station's late checks (FIFO)
-        self.sailing_left: dict[int, np.ndarray] = {}
+        self.departures = DepartureBoard(build_timetable(layout.world), np.random.default_rng(departure_seq))
         self._tables: dict[int, MethodTables] = {}
         self._rules: dict[tuple[int, int, int, bool], StationRules] = {}
 
@@ -174,25 +174,11 @@ class DayEngine:
                 self.free[s] = free[: int(lanes)]
                 self.worked[s] = worked[: int(lanes)]
         self.layout = layout
+        self.departures.change_timetable(build_timetable(layout.world))
         self._tables = {}
         self._rules = {}
 
     # -- helpers -------------------------------------------------------------------------
-    def _sailing_window(self, day: int) -> tuple[np.ndarray, np.ndarray, list[tuple[int, int, int]]]:
-        """Absolute sailing times and remaining capacity from ``day`` over the horizon."""
-        lay = self.layout
-        times, left, spans = [], [], []
-        offset = 0
-        for d in range(day, day + SAILING_HORIZON_DAYS):
-            if d not in self.sailing_left:
-                self.sailing_left[d] = lay.sailing_capacity.copy()
-            times.append(d * MINUTES_PER_DAY + lay.sailing_minute)
-            left.append(self.sailing_left[d])
-            spans.append((d, offset, offset + lay.sailing_minute.shape[0]))
-            offset += lay.sailing_minute.shape[0]
-        self.sailing_left.pop(day - 1, None)
-        return np.concatenate(times), np.concatenate(left), spans
-
     def _tables_for(self, weather: int) -> MethodTables:
         """The methods' factors in a weather state (built once per state and layout)."""
         if weather not in self._tables:
@@ -332,7 +318,8 @@ class DayEngine:
             waits[s] = (done.start - done.arrival)[done.checked]
 
         self._board(attempts, result, DEPARTURE, np.arange(n), vehicles.ready, vehicles, traffic)
-        leave, missed = self._depart(day, traffic, vehicles.ready)
+        departed = self.departures.depart(day, traffic.arrival, vehicles.ready, traffic.vehicle_class)
+        leave, missed = departed.leave, departed.missed
         crossed = (result.outcome == PENDING) & (result.vehicle >= 0)
         result.outcome[crossed] = CROSSED
         result.minute[crossed] = leave[result.vehicle[crossed]]
@@ -429,23 +416,6 @@ class DayEngine:
             result.method[a] = methods[i]
             result.minute[a] = when[i]
             result.referred_by[a] = referred_by[i]
-
-    def _depart(self, day: int, traffic: DayTraffic, ready: np.ndarray) -> tuple[np.ndarray, np.ndarray]:
-        """Minute each vehicle leaves the port and whether it missed its booked sailing."""
-        lay = self.layout
-        if lay.sailing_minute.shape[0] == 0:
-            return ready, np.zeros(ready.shape[0], dtype=bool)
-        times, left, spans = self._sailing_window(day)
-        order = np.argsort(ready, kind="stable")
-        chosen = np.empty(ready.shape[0], dtype=np.int64)
-        chosen[order] = board_sailings(ready[order], times, left, lay.cutoff)
-        for d, lo, hi in spans:  # write back the capacity the day's vehicles used
-            self.sailing_left[d] = left[lo:hi]
-        booked = np.searchsorted(times - lay.cutoff, traffic.arrival + lay.planned, side="left")
-        stranded = chosen < 0
-        leave = np.where(stranded, np.nan, times[np.where(stranded, 0, chosen)])
-        missed = stranded | (chosen > booked)
-        return leave, missed
 
 
 def _aggregate_checks(passes: list[StationPass], lay: Layout) -> dict[str, np.ndarray]:

@@ -66,11 +66,6 @@ class Layout:
     point_interdiction: np.ndarray  # (P, B) base chance per band
     point_hazard: np.ndarray  # (P,)
     point_effort: np.ndarray  # (P,)
-    # departures
-    sailing_minute: np.ndarray  # (K,) minute of day, ascending; empty when vehicles leave on clearance
-    sailing_capacity: np.ndarray  # (K,)
-    cutoff: float
-    planned: float
     # conditions of the day
     weather_names: tuple[str, ...]  # (W,)
     weather_cum: np.ndarray  # (12, W) cumulative share of days per month
@@ -159,8 +154,6 @@ def build_layout(world: World) -> Layout:
 
     points = world.boarding_points
     interdiction = np.array([[p.interdiction.get(b, p.interdiction.get(DEFAULT_KEY, 0.0)) for b in bands] for p in points])
-    dep = world.departures
-    sailings = dep.sailings if dep else []
 
     weather_names, weather_cum, weather_start, weather_suspends = _weather_tables(world)
     cargo = world.cargo_names
@@ -227,10 +220,6 @@ def build_layout(world: World) -> Layout:
         point_interdiction=interdiction.reshape(len(points), n_b),
         point_hazard=np.array([p.hazard for p in points]),
         point_effort=np.array([p.effort for p in points]),
-        sailing_minute=np.array([s.minute for s in sailings], dtype=float),
-        sailing_capacity=np.array([s.capacity for s in sailings], dtype=np.int64),
-        cutoff=dep.cutoff_minutes if dep else 0.0,
-        planned=dep.planned_minutes if dep else 0.0,
         weather_names=weather_names,
         weather_cum=weather_cum,
         weather_start_day=weather_start,

@@ -15,7 +15,8 @@ works out, from the world file alone, on the busiest weekday:
   false-alarm chance; detections are too rare to matter) against its lanes;
 - per departure, the vehicles booked on it (those whose arrival plus
   ``planned_minutes`` falls before its cut-off and after the previous one's)
-  against its capacity, and the day's total against the day's capacity.
+  against its places, on every weekday (the table shows the busiest), and the
+  week's vehicles against the week's places.
 
 It is a fluid estimate (means only): it misses the randomness that makes queues
 long below a load of 1, and weather suspensions; the simulation has both.
@@ -30,7 +31,9 @@ import pandas as pd
 from scipy.stats import norm
 
 from ..world.references import hours_of
-from ..world.schema import World
+from ..world.schema import WEEKDAYS, World
+from ..world.words import GENERIC, Words, words_for
+from .departures import build_timetable
 from .layout import RULES, Layout, build_layout
 
 OVERLOAD = 0.95  # offered load at which a station band is reported as overloaded
@@ -54,6 +57,7 @@ class LoadReport:
     daily_arrivals: float
     daily_capacity: float | None  # None: vehicles leave on clearance
     warnings: list[str] = field(default_factory=list)
+    words: Words = GENERIC
 
     @property
     def overloaded(self) -> bool:
@@ -81,8 +85,9 @@ class LoadReport:
         if self.daily_capacity is None:
             out.append("  departures: none (vehicles leave as soon as they are cleared)")
         else:
-            out.append(f"  departures: {self.daily_capacity:,.0f} places a day for {self.daily_arrivals:,.0f} vehicles")
-            out.append(f"  {'departure':<11}{'booked from':<14}{'booked':>8}{'capacity':>10}{'ratio':>7}")
+            out.append(f"  {self.words.services}: {self.daily_capacity:,.0f} places on that day for "
+                       f"{self.daily_arrivals:,.0f} vehicles")
+            out.append(f"  {self.words.service:<11}{'booked from':<14}{'booked':>8}{'capacity':>10}{'ratio':>7}")
             for r in self.departures.itertuples():
                 out.append(f"  {r.departure:<11}{r.window:<14}{r.booked:>8.0f}{r.capacity:>10.0f}{r.ratio:>7.2f}")
         out += self.warnings or ["  no station or departure is overloaded (load below 0.95, capacity above demand)"]
@@ -187,34 +192,60 @@ def _station_rows(world: World, lay: Layout, rate: np.ndarray) -> tuple[list[dic
     return rows, warnings
 
 
-def _departure_rows(world: World, lay: Layout, rate: np.ndarray) -> tuple[list[dict], list[str], float | None]:
-    """Per departure: vehicles booked on it against its capacity; warnings for short departures and days."""
-    if lay.sailing_minute.shape[0] == 0:
+def _departure_rows(world: World, lay: Layout) -> tuple[list[dict], list[str], float | None]:
+    """Per departure of the busiest weekday: vehicles booked on it against its places; warnings for the whole week.
+
+    Vehicles are booked over the week, each weekday at its own traffic, in the
+    window between the previous departure's check-in close and this one's.
+    Places are the vehicles a departure takes (metres at the share-weighted mean
+    vehicle length), times its chance of not being cancelled.
+    """
+    tt = build_timetable(world)
+    if tt.empty:
         return [], [], None
-    per_minute = np.repeat(rate / 60.0, 60)
-    ready = np.roll(per_minute, int(round(lay.planned)) % MINUTES_PER_DAY)  # vehicles ready for check-in, by minute
-    closes = (lay.sailing_minute - lay.cutoff) % MINUTES_PER_DAY
+    words = words_for(world)
+    week_rate = np.concatenate([np.repeat(lay.hourly_rate * f / 60.0, 60) for f in lay.weekday_factor])
+    ready = np.roll(week_rate, int(round(tt.planned)))  # vehicles ready for check-in, by minute of the week
     cumulative = np.concatenate([[0.0], np.cumsum(ready)])
+    week = MINUTES_PER_DAY * 7
+    mean_length = float(lay.class_share @ tt.class_length)
+    services = [(w, minute, close, places)
+                for w in range(7)
+                for minute, close, places in zip(
+                    tt.minute[w], w * MINUTES_PER_DAY + tt.minute[w] - tt.cutoff[w],
+                    np.minimum(tt.capacity[w], tt.metres[w] / mean_length if mean_length else np.inf)
+                    * (1.0 - tt.cancel[w]), strict=True)]
+    services.sort(key=lambda s: s[2])
 
-    def ready_between(start: float, end: float) -> float:  # (start, end] on the daily clock, wrapping
-        a, b = int(np.floor(start)) % MINUTES_PER_DAY, int(np.floor(end)) % MINUTES_PER_DAY
+    def ready_between(start: float, end: float) -> float:  # (start, end] on the weekly clock, wrapping
+        a, b = int(np.floor(start)) % week, int(np.floor(end)) % week
         inside = cumulative[b + 1] - cumulative[a + 1]
-        return inside if b >= a else inside + cumulative[-1]
+        return inside if b > a or (b == a and len(services) > 1) else inside + cumulative[-1]
 
-    rows, warnings = [], []
-    for k, (minute, capacity) in enumerate(zip(lay.sailing_minute, lay.sailing_capacity, strict=True)):
-        previous = closes[k - 1]  # the last departure of the day before, for the first
-        booked = ready_between(previous, closes[k]) if len(closes) > 1 else float(cumulative[-1])
-        rows.append({"departure": _clock(minute), "window": f"{_clock(previous)}-{_clock(closes[k])}",
-                     "booked": booked, "capacity": float(capacity), "ratio": booked / capacity if capacity else np.inf})
-        if booked > capacity:
-            warnings.append(f"warning: departure {_clock(minute)}: about {booked:.0f} vehicles are ready for it "
-                            f"(check-in {_clock(previous)}-{_clock(closes[k])}) against {capacity} places; the rest "
-                            f"miss it: add capacity or a departure in that window")
-    daily = float(lay.sailing_capacity.sum())
-    if cumulative[-1] > daily:
-        warnings.append(f"warning: departures: {daily:,.0f} places a day for about {cumulative[-1]:,.0f} vehicles "
-                        f"on the busiest weekday: vehicles are stranded; add departures or capacity")
+    busiest = int(np.argmax(lay.weekday_factor))
+    rows, short = [], {}
+    for k, (w, minute, close, places) in enumerate(services):
+        previous = services[k - 1][2]
+        booked = ready_between(previous, close)
+        window = f"{_clock(previous)}-{_clock(close)}"
+        if w == busiest:
+            rows.append({"departure": _clock(minute), "window": window, "booked": booked, "capacity": float(places),
+                         "ratio": booked / places if places else np.inf})
+        if booked > places:
+            short.setdefault(_clock(minute), []).append((w, booked, places, window))
+    warnings = []
+    for clock, days in sorted(short.items()):  # one warning per departure time, naming its weekdays unless all
+        worst = max(days, key=lambda d: d[1] - d[2])
+        when = "" if len(days) == 7 else " on " + ", ".join(WEEKDAYS[d[0]].capitalize() for d in days)
+        warnings.append(f"warning: {words.service} {clock}{when}: about {worst[1]:.0f} vehicles are ready for it "
+                        f"(check-in {worst[3]}) against {worst[2]:.0f} places; the rest miss it: add capacity "
+                        f"or a {words.service} in that window")
+    rows.sort(key=lambda r: r["departure"])
+    daily = float(sum(r["capacity"] for r in rows))
+    weekly = float(sum(s[3] for s in services))
+    if cumulative[-1] > weekly:
+        warnings.append(f"warning: {words.services}: {weekly:,.0f} places a week for about {cumulative[-1]:,.0f} "
+                        f"vehicles: vehicles are stranded; add {words.services} or capacity")
     return rows, warnings, daily
 
 
@@ -223,7 +254,7 @@ def load_report(world: World, layout: Layout | None = None) -> LoadReport:
     lay = layout or build_layout(world)
     rate = lay.hourly_rate * float(lay.weekday_factor.max())  # vehicles per hour, busiest weekday
     station_rows, station_warnings = _station_rows(world, lay, rate)
-    departure_rows, departure_warnings, daily = _departure_rows(world, lay, rate)
+    departure_rows, departure_warnings, daily = _departure_rows(world, lay)
     return LoadReport(
         world=world.name,
         stations=pd.DataFrame(station_rows),
@@ -231,4 +262,5 @@ def load_report(world: World, layout: Layout | None = None) -> LoadReport:
         daily_arrivals=float(rate.sum()),
         daily_capacity=daily,
         warnings=station_warnings + departure_warnings,
+        words=words_for(world),
     )

@@ -402,29 +402,3 @@ def station_pass(
         clock_hour = int(np.floor(arrive[i] / 60.0)) % 24
         key[i] = (((cal_day * 24 + clock_hour) * n_stations + station) * n_classes + c) * n_methods + m
     return (rows, arrive, start, end, checked, method, alarm, hit, logged_false, key), (next_arrival, next_start)
-
-
-@numba.njit(cache=True)
-def board_sailings(
-    ready: np.ndarray, sailing_time: np.ndarray, remaining: np.ndarray, cutoff: float
-) -> np.ndarray:
-    """Put vehicles (sorted by check-in time) on the first sailing they can make that has room.
-
-    A vehicle makes a sailing when it checks in at least ``cutoff`` minutes before
-    departure. ``remaining`` is updated in place. Returns the sailing index per
-    vehicle, -1 when no sailing in the horizon has room.
-    """
-    n = ready.shape[0]
-    chosen = np.full(n, -1, dtype=np.int64)
-    k0 = 0
-    for i in range(n):
-        # sailings whose cut-off passed before this vehicle's check-in stay passed for later ones
-        while k0 < sailing_time.shape[0] and sailing_time[k0] - cutoff < ready[i]:
-            k0 += 1
-        k = k0
-        while k < sailing_time.shape[0] and remaining[k] <= 0:
-            k += 1
-        if k < sailing_time.shape[0]:
-            remaining[k] -= 1
-            chosen[i] = k
-    return chosen

@@ -27,6 +27,7 @@ _PATTERN_WORDS = {
     NAME_PATTERN: "expected a name of letters, digits, '_' or '-' (no spaces)",
     CLOCK_PATTERN: "expected a clock time 'HH:MM' from '00:00' to '23:59'",
 }
+CLOCK_KEYS = ("time", "first", "last")  # keys whose values are clock times
 
 
 class WorldFileError(InputError):
@@ -310,7 +311,7 @@ def _describe(error: dict[str, Any], model: type[BaseModel], data: Any = None) -
         message = message[len("Value error, ") :]
     if loc and loc[-1] == "[key]":
         message = message.replace("Input should", "this key should", 1)
-    if kind == "string_type" and isinstance(given, int) and not isinstance(given, bool) and path.endswith(".time"):
+    if kind == "string_type" and isinstance(given, int) and not isinstance(given, bool) and path.rsplit(".", 1)[-1] in CLOCK_KEYS:
         # YAML 1.1 reads an unquoted 12:30 as the sexagesimal number 750.
         hours, minutes = divmod(given, 60)
         return path, (

@@ -47,6 +47,18 @@ def _unique(names: list[str], path: str, what: str) -> None:
         seen.add(name)
 
 
+def _check_lengths(world: World) -> None:
+    """Departures measured in metres need every vehicle class's length."""
+    dep = world.departures
+    if dep is None or not (dep.length_metres is not None
+                           or any(e.length_metres is not None for e in [*dep.services, *dep.timetable])):
+        return
+    for i, c in enumerate(world.vehicle_classes):
+        if c.length_metres is None:
+            raise ReferenceProblem(f"vehicle_classes[{i}].length_metres",
+                                   f"departures carry metres of vehicles, so class '{c.name}' needs its length_metres")
+
+
 def check_references(world: World) -> None:
     """Raise ReferenceProblem for the first cross-section rule the world breaks."""
     _unique(world.class_names, "vehicle_classes", "vehicle class")
@@ -57,6 +69,7 @@ def check_references(world: World) -> None:
     _unique(world.depth_names, "depths", "depth level")
     _check_bands(world)
     _check_weather(world)
+    _check_lengths(world)
     classes, bands = world.class_names, world.band_names
 
     for i, method in enumerate(world.methods):

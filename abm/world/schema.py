@@ -71,6 +71,9 @@ class VehicleClass(Strict):
     cargo: dict[Name, Probability] = Field(
         default_factory=dict, description="share of this class's vehicles carrying each cargo type; empty: unstated"
     )
+    length_metres: Positive | None = Field(
+        None, description="length one vehicle takes on a departure measured in metres (departures.length_metres)"
+    )
 
     @field_validator("cargo")
     @classmethod
@@ -83,7 +86,9 @@ class Traffic(Strict):
 
     vehicles_per_day: NonNegative
     hourly_profile: list[NonNegative] = Field(min_length=24, max_length=24)
-    weekday_factors: list[NonNegative] = Field(default=[1.0] * 7, min_length=7, max_length=7)
+    weekday_factors: list[NonNegative] = Field(
+        default=[1.0] * 7, min_length=7, max_length=7, description="arrival multiplier per weekday, Monday first"
+    )
 
     @field_validator("hourly_profile")
     @classmethod
@@ -218,34 +223,138 @@ class BoardingPoint(Strict):
     effort: NonNegative = Field(0.0, description="cost of reaching this point, in utility units")
 
 
-class Sailing(Strict):
-    """One daily departure."""
+WEEKDAYS = ("mon", "tue", "wed", "thu", "fri", "sat", "sun")  # day 0 of a run is a Monday
+Weekday = Literal["mon", "tue", "wed", "thu", "fri", "sat", "sun"]
+SERVICE_KINDS = ("sailing", "train", "convoy", "slot")
 
-    time: str = Field(pattern=CLOCK_PATTERN, description="HH:MM")
-    capacity: Count
+
+def clock_minute(clock: str) -> int:
+    """Minutes after midnight of an HH:MM clock time."""
+    hours, minutes = clock.split(":")
+    return int(hours) * 60 + int(minutes)
+
+
+class Delay(Strict):
+    """How late a departure leaves when it is late: a chance per departure and a distribution of minutes."""
+
+    chance: Probability = Field(description="chance that a departure leaves late")
+    dist: Literal["exponential", "deterministic", "lognormal", "gamma", "uniform"] = Field(
+        "exponential", description="distribution of the minutes late, given late"
+    )
+    mean_minutes: Positive = Field(description="mean minutes late, given late")
+    cv: NonNegative = Field(0.0, description="coefficient of variation of the minutes late (lognormal, gamma)")
+    spread: NonNegative = Field(0.0, description="half-width as a share of the mean (uniform)")
+
+    @model_validator(mode="after")
+    def _shape_given(self) -> "Delay":
+        if self.dist in ("lognormal", "gamma") and self.cv <= 0:
+            raise ValueError(f"a {self.dist} delay needs cv > 0")
+        if self.dist == "uniform" and not 0 < self.spread <= 1:
+            raise ValueError("a uniform delay needs 0 < spread <= 1")
+        return self
+
+
+class ServiceTerms(Strict):
+    """What one departure (or a timetable's departures) carries; unset terms come from the departures section."""
+
+    days: list[Weekday] = Field(
+        default_factory=lambda: list(WEEKDAYS), min_length=1, description="weekdays it runs (day 0 is a Monday)"
+    )
+    capacity: Count | None = Field(None, description="vehicles it carries (unset: the departures section's)")
+    length_metres: Positive | None = Field(
+        None, description="metres of vehicles it carries, by the classes' length_metres (unset: the section's)"
+    )
+    cutoff_minutes: NonNegative | None = Field(
+        None, description="check-in closes this many minutes before it leaves (unset: the section's)"
+    )
+    delay: Delay | None = Field(None, description="its chance and minutes of delay (unset: the section's)")
+    cancellation: Probability | None = Field(None, description="chance it is cancelled on a day (unset: the section's)")
+
+
+class Service(ServiceTerms):
+    """One departure in the timetable, at a clock time on the weekdays it runs."""
+
+    time: str = Field(pattern=CLOCK_PATTERN, description="departure time, HH:MM")
 
     @property
     def minute(self) -> int:
-        hours, minutes = self.time.split(":")
-        return int(hours) * 60 + int(minutes)
+        return clock_minute(self.time)
+
+
+class Pattern(ServiceTerms):
+    """Departures generated from a first and last time and a headway, on the weekdays given.
+
+    A pattern whose last time is before its first runs past midnight: its
+    departures after midnight run on the next calendar day.
+    """
+
+    first: str = Field(pattern=CLOCK_PATTERN, description="first departure, HH:MM")
+    last: str = Field(pattern=CLOCK_PATTERN, description="last departure at or before this time, HH:MM")
+    headway_minutes: Annotated[float, Field(ge=1.0, le=1440.0), NumberOnly] = Field(
+        description="minutes between departures"
+    )
+
+    def minutes(self) -> list[int]:
+        """Minutes after midnight of the pattern's start day, ascending (past 1440 after midnight)."""
+        first, last = clock_minute(self.first), clock_minute(self.last)
+        if last < first:
+            last += 1440
+        count = int((last - first) // self.headway_minutes) + 1
+        return [int(round(first + i * self.headway_minutes)) for i in range(count)]
 
 
 class Departures(Strict):
-    """Sailings (or departure slots) with a check-in cut-off."""
+    """Scheduled departures (sailings, trains, convoys or slots) that vehicles leave on, with a check-in cut-off.
 
-    sailings: list[Sailing] = Field(min_length=1)
-    cutoff_minutes: NonNegative = 30.0
-    planned_minutes: NonNegative = Field(
-        60.0, description="expected time from arrival to check-in, used to book a sailing"
+    Departures are listed one by one (``services``), generated from patterns
+    (``timetable``), or both. Each carries vehicles up to ``capacity``, metres of
+    vehicles up to ``length_metres`` (using each class's ``length_metres``), or
+    both; may leave late by ``delay``; and may be cancelled, its vehicles then
+    leaving on the next departure with room.
+    """
+
+    service: Literal["sailing", "train", "convoy", "slot"] = Field(
+        "sailing", description="the word for one departure, used in every output"
     )
+    services: list[Service] = Field(default_factory=list, description="departures listed one by one")
+    timetable: list[Pattern] = Field(default_factory=list, description="departures generated by headway")
+    capacity: Count | None = Field(None, description="vehicles per departure, unless a departure sets its own")
+    length_metres: Positive | None = Field(
+        None, description="metres of vehicles per departure, unless a departure sets its own"
+    )
+    cutoff_minutes: NonNegative = Field(30.0, description="check-in closes this many minutes before departure")
+    planned_minutes: NonNegative = Field(
+        60.0, description="expected minutes from arrival to check-in, used to book a departure"
+    )
+    delay: Delay | None = Field(None, description="chance and minutes of delay of every departure; unset: none")
+    cancellation: Probability = Field(0.0, description="chance a departure is cancelled on a day")
 
-    @field_validator("sailings")
-    @classmethod
-    def _sorted_unique(cls, v: list[Sailing]) -> list[Sailing]:
-        minutes = [s.minute for s in v]
-        if minutes != sorted(set(minutes)):
-            raise ValueError("sailings must be in time order with no repeated time")
-        return v
+    @model_validator(mode="after")
+    def _timetable_whole(self) -> "Departures":
+        if not self.services and not self.timetable:
+            raise ValueError("departures need at least one entry in services or timetable")
+        for entry in [*self.services, *self.timetable]:
+            if entry.capacity is None and entry.length_metres is None and self.capacity is None \
+                    and self.length_metres is None:
+                raise ValueError("every departure needs a capacity (vehicles) or length_metres: set one here or on it")
+        seen: set[tuple[int, int]] = set()
+        for weekday, minute, _ in self.week():
+            if (weekday, minute) in seen:
+                h, m = divmod(minute, 60)
+                raise ValueError(f"two departures at {h:02d}:{m:02d} on {WEEKDAYS[weekday]}")
+            seen.add((weekday, minute))
+        return self
+
+    def week(self) -> list[tuple[int, int, ServiceTerms]]:
+        """Every departure of the week as (weekday 0-6, minute of day, its terms), in week order."""
+        out = []
+        for entry in self.services:
+            out += [(WEEKDAYS.index(d), entry.minute, entry) for d in entry.days]
+        for pattern in self.timetable:
+            for d in pattern.days:
+                for minute in pattern.minutes():
+                    out.append(((WEEKDAYS.index(d) + minute // 1440) % 7, minute % 1440, pattern))
+        return sorted(out, key=lambda row: (row[0], row[1]))
 
 
 class Weather(Strict):
@@ -461,6 +570,10 @@ class World(Strict):
 
     name: str = Field(min_length=1, max_length=200)
     note: str = ""
+    site: Literal["port", "terminal", "border", "crossing"] | None = Field(
+        None, description="the word for the place in outputs; unset: port for sailings, terminal for other "
+        "departures, border without departures"
+    )
     time_bands: dict[str, tuple[Hour, Hour]]
     vehicle_classes: list[VehicleClass] = Field(min_length=1)
     traffic: Traffic

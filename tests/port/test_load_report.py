@@ -50,7 +50,7 @@ TERMINAL: dict[str, Any] = {
         {"name": "shed", "role": "secondary", "method": "search", "lanes": 3},
     ],
     "boarding_points": [{"name": "lay_by", "before_station": "gate", "stops": {"lorry": {"share": 0.1}}}],
-    "departures": {"sailings": [{"time": "06:00", "capacity": 300}, {"time": "18:00", "capacity": 300}],
+    "departures": {"services": [{"time": "06:00", "capacity": 300}, {"time": "18:00", "capacity": 300}],
                    "cutoff_minutes": 30, "planned_minutes": 60},
     "roster": {"teams": [{"name": "all_day", "hours": [0, 24], "lanes": {"gate": 2, "yard": 1, "shed": 3}}]},
     "adversary": {"arrivals_per_day": 0, "attempt_chance": 0.0,
@@ -108,7 +108,7 @@ def test_overloaded_station_and_short_departures_are_named() -> None:
     world = terminal(roster={"teams": [{"name": "all_day", "hours": [0, 24], "lanes": {"gate": 1, "yard": 1,
                                                                                          "shed": 3}},
                                        {"name": "day_extra", "hours": [8, 20], "lanes": {"gate": 1}}]},
-                     departures={"sailings": [{"time": "06:00", "capacity": 200}, {"time": "18:00", "capacity": 300}],
+                     departures={"services": [{"time": "06:00", "capacity": 200}, {"time": "18:00", "capacity": 300}],
                                  "cutoff_minutes": 30, "planned_minutes": 60})
     report = load_report(parse_world(world))
     text = "\n".join(report.warnings)
@@ -116,8 +116,8 @@ def test_overloaded_station_and_short_departures_are_named() -> None:
     assert "station 'gate', night (00-08 h): offered load 1.00" in text
     assert "station 'gate', evening (20-24 h)" in text
     assert "station 'gate', day" not in text
-    assert "departure 06:00: about 240 vehicles" in text and "200 places" in text
-    assert "departure 18:00" not in text
+    assert "sailing 06:00: about 240 vehicles" in text and "200 places" in text
+    assert "sailing 18:00" not in text
     assert report.overflow_share == pytest.approx(40 / 480)
     assert all(w.startswith("warning: ") for w in report.warnings)
 
@@ -130,9 +130,9 @@ def test_no_lane_on_duty_while_selecting_is_a_warning() -> None:
 
 
 def test_daily_capacity_short_of_traffic() -> None:
-    world = terminal(departures={"sailings": [{"time": "12:00", "capacity": 400}]})
+    world = terminal(departures={"services": [{"time": "12:00", "capacity": 400}]})
     report = load_report(parse_world(world))
-    assert "warning: departures: 400 places a day for about 480 vehicles" in "\n".join(report.warnings)
+    assert "warning: sailings: 2,800 places a week for about 3,360 vehicles" in "\n".join(report.warnings)
 
 
 def _write(path: Path, data: Any) -> Path:

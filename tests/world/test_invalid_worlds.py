@@ -200,8 +200,8 @@ DICT_CASES = [
     ),
     Case(
         "clock-time-out-of-range",
-        lambda w: w["departures"]["sailings"][0].update(time="25:00"),
-        "departures.sailings[0].time",
+        lambda w: w["departures"]["timetable"][0].update(first="25:00"),
+        "departures.timetable[0].first",
         ("clock time 'HH:MM'", "'25:00'"),
     ),
     # probabilities outside [0, 1]
@@ -245,8 +245,8 @@ DICT_CASES = [
     ),
     Case(
         "negative-capacity",
-        lambda w: w["departures"]["sailings"][3].update(capacity=-260),
-        "departures.sailings[3].capacity",
+        lambda w: w["departures"].update(capacity=-260),
+        "departures.capacity",
         ("greater than or equal to 0", "-260"),
     ),
     Case(
@@ -392,10 +392,28 @@ DICT_CASES = [
         ("hour 6 is in none",),
     ),
     Case(
-        "sailings-out-of-order",
-        lambda w: w["departures"]["sailings"].reverse(),
+        "departure-listed-twice",
+        lambda w: w["departures"].update(services=[{"time": "09:30", "days": ["tue"]}]),
+        "departures",
+        ("two departures at 09:30 on tue",),
+    ),
+    Case(
+        "departure-without-capacity",
+        lambda w: (w["departures"].pop("capacity"), w["departures"]["timetable"][0].update(capacity=None)),
+        "departures",
+        ("needs a capacity (vehicles) or length_metres",),
+    ),
+    Case(
+        "metres-without-class-lengths",
+        lambda w: w["departures"].update(length_metres=3000),
+        "vehicle_classes[0].length_metres",
+        ("needs its length_metres",),
+    ),
+    Case(
+        "former-sailings-key",
+        lambda w: w["departures"].update(sailings=[{"time": "09:30", "capacity": 10}]),
         "departures.sailings",
-        ("time order",),
+        ("services",),
     ),
 ]
 
@@ -512,15 +530,15 @@ TEXT_CASES = [
     # YAML 1.1 reads an unquoted 12:30 as 12*60+30 = 750 (06:30, with its leading zero, stays text).
     TextCase(
         "unquoted-sailing-time",
-        demo_text_with('"12:30"', "12:30"),
-        "departures.sailings[8].time",
-        ("expected a quoted clock time like '12:30'", "got the number 750"),
+        demo_text_with('"23:00"', "23:00"),
+        "departures.timetable[0].last",
+        ("expected a quoted clock time like '23:00'", "got the number 1380"),
     ),
     TextCase(
         "unquoted-sailing-time-no-leading-zero",
-        demo_text_with('"06:30"', "6:30"),
-        "departures.sailings[4].time",
-        ("like '06:30'", "got the number 390"),
+        demo_text_with('first: "00:30"', "first: 9:30"),
+        "departures.timetable[0].first",
+        ("like '09:30'", "got the number 570"),
     ),
     TextCase("not-utf8", b"name: caf\xe9\n", "", ("not UTF-8 text", "0xe9")),
     TextCase("binary", bytes(range(256)) * 4, "", ("not UTF-8 text",)),

@@ -12,8 +12,12 @@ import os
 import sys
 from collections.abc import Callable, Sequence
 from pathlib import Path
+from typing import TYPE_CHECKING
 
 from .errors import InputError, refuse_unwritable
+
+if TYPE_CHECKING:
+    from .world.words import Words
 
 EXIT_OK, EXIT_FAULT, EXIT_INPUT, EXIT_INTERRUPTED = 0, 1, 2, 130
 
@@ -72,15 +76,29 @@ def cmd_check(args: argparse.Namespace) -> int:
 REPO_WORLDS = Path(__file__).resolve().parent.parent / "worlds"
 
 
-def print_summary(summary: dict, title: str) -> None:
-    """A short readable table of a run's headline figures, each labelled with its record set."""
+def print_summary(summary: dict, title: str, words: Words | None = None) -> None:
+    """A short readable table of a run's headline figures, in display labels, each with its record set."""
+    from .experiment.single import METHOD_LABELS, SUMMARY_LABELS
+    from .world.words import GENERIC
+
+    words = words or GENERIC
+
+    def label(key: str) -> str:
+        if key in SUMMARY_LABELS:
+            return words.fill(SUMMARY_LABELS[key])
+        for figure, shown in sorted(METHOD_LABELS.items(), key=lambda kv: -len(kv[0])):  # longest suffix first
+            if key.startswith("method_") and key.endswith("_" + figure):
+                return f"{key[len('method_'):-len(figure) - 1]}: {shown}"
+        return key
+
     print(title)
     sources = summary.get("sources", {})
-    rows = {key: value for key, value in summary.items() if key != "sources"}
+    rows = {label(key): (value, sources.get(key, "")) for key, value in summary.items() if key != "sources"}
     width = max(map(len, rows), default=0) + 2
-    for key, value in rows.items():
-        shown = f"{value:,.3f}" if isinstance(value, float) else (f"{value:,}" if isinstance(value, int) else str(value))
-        print(f"  {key:<{width}}{shown:>14}  {sources.get(key, '')}")
+    for name, (value, source) in rows.items():
+        shown = "n/a" if value is None else (
+            f"{value:,.3f}" if isinstance(value, float) else (f"{value:,}" if isinstance(value, int) else str(value)))
+        print(f"  {name:<{width}}{shown:>14}  {source}")
     print("  (truth = simulated ground truth; observed = what an agency would hold. Model estimates, not counts.)")
 
 
@@ -104,7 +122,9 @@ def _run_world(world_path: Path, days: int, seed: int, out: Path, argv: list[str
         print_warning(warning)
     with progress(days, "days", "simulating") as bar:
         summary = run_to_directory(world, file_hash(world_path), days, seed, out, command=argv, progress=bar.update)
-    print_summary(summary, f"{world.name}: {days} days, seed {seed} -> {out}")
+    from .world.words import words_for
+
+    print_summary(summary, f"{world.name}: {days} days, seed {seed} -> {out}", words_for(world))
     if any(0 < iv.day < days for iv in world.interventions):
         from .analysis.displacement import write_displacement
 
@@ -406,7 +426,7 @@ def build_parser() -> argparse.ArgumentParser:
     brief.add_argument("--format", default="html,md", help="html, md or html,md (default)")
     brief.add_argument(
         "--max-delay-increase", type=_non_negative_float, default=10.0, metavar="PERCENT",
-        help="delay limit: p95 time in port at most this much above the baseline's (default 10)",
+        help="delay limit: p95 time at the crossing at most this much above the baseline's (default 10)",
     )
     brief.add_argument(
         "--max-missed-increase", type=_non_negative_float, default=1.0, metavar="POINTS",

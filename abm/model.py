@@ -4,7 +4,7 @@ Each day: a scheduled intervention takes effect if one is due; new groups
 arrive in the area; command sets today's staffing from the teams; behaviour
 channels deliver what agents learnt since yesterday; waiting groups decide
 whether and how to attempt; the day engine runs vehicles, boarding, checks and
-sailings; groups and command learn the outcomes; the record book takes the
+departures; groups and command learn the outcomes; the record book takes the
 day. Agents decide, the engine moves vehicles.
 
 Random numbers come from one ``SeedSequence`` per run, spawned per purpose

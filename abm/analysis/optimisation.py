@@ -36,6 +36,7 @@ from ..records import METHODS_FILE, write_atomically, write_json, write_parquet
 from ..world import WorldFileError, file_hash, parse_world, read_yaml_mapping
 from ..world.paths import PathProblem, apply_changes, set_path
 from ..world.schema import NumberOnly, Strict
+from ..world.words import words_from_data
 from .policy_search import (
     FIGURE_SOURCES, FIGURES, Allocation, Constraint, PolicySearchError, PolicySearchResult, Problem, SearchSettings,
     Variable, candidate_id, search_policy,
@@ -454,7 +455,7 @@ def _search(
     write_parquet(_plain(result.frontier), out / "frontier.parquet")
     write_atomically(out / "summary.txt", lambda tmp: tmp.write_text(result.summary() + "\n", encoding="utf-8"))
     if figure:
-        fig = result.frontier_figure()
+        fig = result.frontier_figure(words_from_data(plan.world_data))
         write_atomically(out / "frontier.png", lambda tmp: fig.savefig(tmp, dpi=110, format="png"))
     return result
 

@@ -1,4 +1,4 @@
-"""Policy search: which policy does best within the delay and staff the port can bear, by simulation.
+"""Policy search: which policy does best within the delay and staff the crossing can bear, by simulation.
 
 An optimisation file names decision variables (dotted world paths with
 bounds), groups of variables that share out a fixed total (staff lanes, a
@@ -98,6 +98,7 @@ from scipy import optimize, stats
 from ..errors import InputError
 from ..experiment.compare import MIN_REPLICATIONS, bounded_mean_interval, figure_scale, mean_interval
 from ..experiment.single import SUMMARY_SOURCES
+from ..world.words import GENERIC, Words
 
 # Figures a candidate is judged on: the numeric run-summary figures and two derived ones.
 DERIVED = {"check_hours": "observed", "encounters": "observed"}
@@ -358,8 +359,11 @@ class PolicySearchResult:
         ]
         return "\n".join(lines)
 
-    def frontier_figure(self) -> Any:
-        """Detections against delay for every searched candidate, the frontier joined, finalists marked."""
+    def frontier_figure(self, words: Words = GENERIC) -> Any:
+        """Detections against delay for every searched candidate, the frontier joined, finalists marked.
+
+        ``words`` are the crossing's own ("time in the terminal") for the axis.
+        """
         from matplotlib.backends.backend_agg import FigureCanvasAgg
         from matplotlib.figure import Figure
 
@@ -377,7 +381,7 @@ class PolicySearchResult:
         ax.scatter(fresh[DELAY], fresh[BENEFIT], marker="x", color="#333333", label="finalists (fresh seeds)")
         best = fresh[fresh["candidate"] == self.best]
         ax.scatter(best[DELAY], best[BENEFIT], marker="*", s=140, color="#c44e52", label="best")
-        ax.set_xlabel("Time in port, 95th percentile (minutes; observed)")
+        ax.set_xlabel(words.fill("{Time_at_site}, 95th percentile (minutes; observed)"))
         ax.set_ylabel("Detections (persons; observed)")
         ax.set_title(textwrap.fill(f"{self.name}: detections against delay", 70), fontsize=9)
         fig.legend(*ax.get_legend_handles_labels(), fontsize=7, loc="outside lower center", ncol=2, frameon=False)

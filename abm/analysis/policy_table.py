@@ -30,6 +30,7 @@ import pandas as pd
 
 from ..experiment.compare import mean_interval
 from ..experiment.single import WORLD_FILE
+from ..world.words import GENERIC, Words
 
 
 def hazard_weighted_share(
@@ -95,11 +96,11 @@ def attempt_shares(attempts: pd.DataFrame, points: Sequence[str], bands: Sequenc
 
 @dataclass(frozen=True)
 class DelayLimits:
-    """The delay a port can bear, relative to the baseline policy of the same scenario.
+    """The delay a crossing can bear, relative to the baseline policy of the same scenario.
 
-    A policy is within the limits when its mean 95th-percentile time in port is
-    at most ``time_in_port_increase`` (a fraction) above the baseline's and its
-    mean share of vehicles missing their planned sailing at most
+    A policy is within the limits when its mean 95th-percentile time at the
+    crossing is at most ``time_in_port_increase`` (a fraction) above the
+    baseline's and its mean share of vehicles missing their booked departure at most
     ``missed_departure_points`` percentage points above the baseline's.
     """
 
@@ -115,11 +116,11 @@ class DelayLimits:
             return ok_tip
         return ok_tip and missed <= missed_base + self.missed_departure_points / 100 + 1e-12
 
-    def describe(self, baseline: str) -> str:
-        """The limits in words."""
+    def describe(self, baseline: str, words: Words = GENERIC) -> str:
+        """The limits in words, in the crossing's own (``words``)."""
         return (
-            f"95th-percentile time in port no more than {100 * self.time_in_port_increase:g}% above {baseline}'s, "
-            f"and missed departures no more than {self.missed_departure_points:g} percentage point"
+            f"95th-percentile {words.time_at_site} no more than {100 * self.time_in_port_increase:g}% above "
+            f"{baseline}'s, and {words.missed} no more than {self.missed_departure_points:g} percentage point"
             f"{'' if self.missed_departure_points == 1 else 's'} above {baseline}'s"
         )
 

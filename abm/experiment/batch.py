@@ -25,6 +25,7 @@ from .executors import choose_executor, make_executor
 from .store import FAILURES_TABLE, Store, SummaryExtension
 from ..errors import refuse_unwritable
 from ..progress import progress
+from ..world.words import words_from_data
 from .worker import RunTask
 
 
@@ -181,7 +182,8 @@ def batch_command(
                        on_warning=print_warning, allow_large=allow_large)
     done = result.total - result.failed
     print(f"{result.plan.spec.name}: {done} of {result.total} runs complete ({result.ran} run now) -> {result.out}")
-    print(format_comparison(result.comparison, [f.label for f in result.plan.factors]))
+    print(format_comparison(result.comparison, [f.label for f in result.plan.factors],
+                            words=words_from_data(result.plan.world_data)))
     if result.failed:
         print(
             f"undertow batch: {result.failed} of {result.total} runs failed; errors in {Path(out) / FAILURES_TABLE}",

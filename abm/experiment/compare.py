@@ -19,7 +19,8 @@ import numpy as np
 import pandas as pd
 from scipy import special  # Student-t quantiles without scipy.stats, whose import costs each worker about 0.45 s
 
-from .single import SUMMARY_SOURCES
+from ..world.words import GENERIC, Words
+from .single import SUMMARY_LABELS, SUMMARY_SOURCES
 
 COMPARED_FIGURES = ("detections", "crossings", "displaced_out", "time_in_port_p95_min", "missed_departure_share")
 CONFIDENCE = 0.95
@@ -203,9 +204,12 @@ def _number(x: Any, signed: bool = False) -> str:
     return f"{x:{'+' if signed else ''},.{digits}f}"
 
 
-def format_comparison(table: pd.DataFrame, factors: Sequence[str], confidence: float = CONFIDENCE) -> str:
-    """The comparison as a readable text table, one block per design point."""
+def format_comparison(table: pd.DataFrame, factors: Sequence[str], confidence: float = CONFIDENCE,
+                      words: Words = GENERIC) -> str:
+    """The comparison as a readable text table, one block per design point, figures in display labels."""
     pct = f"{confidence:.0%}"
+    label = {f: words.fill(SUMMARY_LABELS.get(f, f)) for f in table["figure"].unique()} if len(table) else {}
+    width = max([len(v) for v in label.values()] + [24]) + 2
     lines = [
         f"Per design point: mean and {pct} interval over replications ({INTERVAL_WORDS['log']}; for shares a",
         f"{INTERVAL_WORDS['logit']}); difference against the compared point, paired by replication (common random",
@@ -224,13 +228,13 @@ def format_comparison(table: pd.DataFrame, factors: Sequence[str], confidence: f
         role = "baseline; " if point in baselines else (f"vs p{int(base):03d}; " if not pd.isna(base) else "")
         lines.append("")
         lines.append(f"p{int(point):03d}  {shown}  ({role}{int(block['runs'].max())} runs)")
-        header = f"  {'figure':<24}{'mean':>11}  {pct + ' interval':<24}"
+        header = f"  {'figure':<{width}}{'mean':>11}  {pct + ' interval':<24}"
         if not pd.isna(base):
             header += f"{'difference':>11}  {pct + ' interval'}"
         lines.append(header.rstrip())
         for _, row in block.iterrows():
             interval = f"[{_number(row['low'])}, {_number(row['high'])}]"
-            text = f"  {row['figure']:<24}{_number(row['mean']):>11}  {interval:<24}"
+            text = f"  {label[row['figure']]:<{width}}{_number(row['mean']):>11}  {interval:<24}"
             if not pd.isna(row["compared_with"]):
                 dint = f"[{_number(row['difference_low'], True)}, {_number(row['difference_high'], True)}]"
                 text += f"{_number(row['difference'], True):>11}  {dint:<24}"

@@ -57,6 +57,32 @@ SUMMARY_SOURCES: dict[str, str] = {
     "missed_departure_share": "observed",
 }
 
+# What people read for each figure; placeholders take the crossing's own words (abm.world.words.Words.fill).
+SUMMARY_LABELS: dict[str, str] = {
+    "days": "Days simulated",
+    "attempts": "Attempts (person-attempts)",
+    "interdictions": "Stopped at boarding points (persons)",
+    "detections": "Found in checks (persons)",
+    "crossings": "Crossed unfound (persons)",
+    "crossings_after_last_check": "... of them boarded after the last check",
+    "persons": "People who tried",
+    "no_vehicle": "Attempts with no vehicle to board",
+    "displaced_out": "Left for routes outside the model",
+    "gave_up": "Gave up",
+    "arrived": "Arrived in the area",
+    "in_system_at_end": "Still trying at the end",
+    "vehicles": "Vehicles",
+    "checks": "Checks",
+    "alarms": "Alarms",
+    "false_alarms": "False alarms (nobody found)",
+    "staff_hours": "Staff-hours",
+    "time_in_port_p50_min": "{Time_at_site}, median (minutes)",
+    "time_in_port_p95_min": "{Time_at_site}, 95th percentile (minutes)",
+    "missed_departure_share": "{Missed} (share of vehicles)",
+}
+METHOD_LABELS = {"checks": "checks", "alarms": "alarms", "false_alarms": "false alarms", "found": "persons found",
+                 "sensitivity": "sensitivity"}
+
 # Per-method figures, as method_<name>_<figure>: counts are vehicles checked, found counts persons.
 METHOD_SUMMARY_SOURCES: dict[str, str] = {
     "checks": "observed",
@@ -141,7 +167,7 @@ def summarise(book: RecordBook, days: int, warmup: int = 0) -> dict[str, Any]:
         "staff_hours": float(daily["staff_hours"].sum()) if len(daily) else 0.0,
         "time_in_port_p50_min": float(np.percentile(finite, 50)) if finite.size else None,
         "time_in_port_p95_min": float(np.percentile(finite, 95)) if finite.size else None,
-        # a crossing without sailings (a land border) has no departures to miss
+        # a crossing without departures (a land border) has no departures to miss
         "missed_departure_share": float(missed.mean()) if missed.size and book.layout.world.departures else None,
     }
     method_sources = _add_method_figures(summary, book, attempts, warmup)

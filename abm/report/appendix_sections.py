@@ -157,8 +157,8 @@ def section_limitations(ctx: Context) -> Section:
              "rumour, or shared reinforcement. Real behaviour may differ from all of them."),
         Item("Hazard scores are illustrative ratings of boarding points (plus depth of hiding, not shown here), "
              "not measured risks."),
-        Item("Delay limits are a choice of this briefing, not a rule of the port; other limits can pick another "
-             "policy."),
+        Item(f"Delay limits are a choice of this briefing, not a rule of {ctx.words.the_site}; other limits can pick "
+             "another policy."),
     ]
     if any(not bool(x) for x in ctx.evidence.check.get("exact", pd.Series(dtype=bool))):
         items.append(Item("Some estimators are compared with a truth that can only be counted approximately (≈ in "
@@ -185,7 +185,7 @@ def section_method(ctx: Context, brief_argv: Sequence[str]) -> Section:
         "an hourly, weekday-scaled Poisson profile; classes; stops at boarding points); stations run exact "
         "first-in-first-out multi-server queues with the world's selection rules and check methods (each with a "
         "detection chance per class and a false-alarm chance); an alarm refers a vehicle to secondary search; "
-        "vehicles then join the first sailing whose cut-off they make. People who try to cross hidden in vehicles "
+        f"vehicles then join the first {ctx.words.service} whose check-in they make and that has room. People who try to cross hidden in vehicles "
         "are agents that choose a boarding point, time band and vehicle class each day by a logit rule over "
         "perceived risk, effort, waiting and hazard, and learn according to the behaviour model; inspection teams "
         "staff stations and patrol boarding points by roster. Two record sets are kept apart: truth (every "

@@ -1,8 +1,8 @@
 """The briefing's bottom line: at most three plain sentences a decision-maker reads first.
 
 Which policy; what it gains (detections and crossings, each with its paired
-interval); what it costs (staff-hours, the 95th percentile of time in port,
-missed departures); and what it does to the people who try (pushed out of the
+interval); what it costs (staff-hours, the 95th percentile of time at the
+crossing, missed departures); and what it does to the people who try (pushed out of the
 crossing, and the hazard of where and how deep they board). It speaks about the
 headline scenario (adaptive behaviour when the batch has it) and the policy the
 headline names, with the same figures as the comparison table.
@@ -68,7 +68,7 @@ def bottom_line(ctx: "Context") -> str:
                 "which are model estimates, not counts.")
     if best is None or ctx.batch.compare_to.get(best) is None:
         return (f"{under}no policy tested finds more people than {ctx.baseline_name} within the delay limits "
-                f"({ctx.limits.describe(ctx.baseline_name)}), so the evidence here does not favour a change. "
+                f"({ctx.limits.describe(ctx.baseline_name, ctx.words)}), so the evidence here does not favour a change. "
                 "Every figure is a model estimate, not a count.")
     policy = ctx.batch.policy_of(best)
     detections, crossings = _change(ctx, best, "detections"), _change(ctx, best, "crossings")
@@ -86,8 +86,8 @@ def bottom_line(ctx: "Context") -> str:
         costs.append(f"It takes {staff[0]} staff-hours")
     status = ctx.status.loc[best] if best in ctx.status.index else None
     if status is not None and is_number(status["time_in_port_change"]):
-        costs.append(f"changes the 95th percentile of time in port by "
-                     f"{number(status['time_in_port_change'], 'relative', True)} and missed departures by "
+        costs.append(f"changes the 95th percentile of {ctx.words.time_at_site} by "
+                     f"{number(status['time_in_port_change'], 'relative', True)} and {ctx.words.missed} by "
                      f"{number(status['missed_change_points'], 'rate', True)} percentage points")
     second = ("; it ".join(costs) if staff else "It " + costs[0]) + "." if costs else ""
     moved, hazard = _change(ctx, best, "displaced_out"), _change(ctx, best, "hazard_weighted_share")

@@ -76,7 +76,7 @@ def section_question(ctx: Context) -> Section:
     if b.policy is not None:
         question = (
             f"Which inspection policy at {b.world_name} finds the most people hidden in vehicles without delaying "
-            "the port beyond what it can bear — and what does each policy do to the people who try: how many get "
+            f"{ctx.words.the_site} beyond what it can bear — and what does each policy do to the people who try: how many get "
             "through, how many are pushed to routes outside the crossing, and toward how dangerous a place to board?"
         )
     else:
@@ -145,8 +145,8 @@ def _best_sentence(ctx: Context, scenario: tuple) -> Item | None:
             top = max(better, key=lambda p: ctx.means.loc[p, "detections"])
             change = ctx.status.loc[top, "time_in_port_change"]
             outside = (f" {ctx.batch.policy_of(top)} detects more ({effect_text(ctx, top, 'detections')}) but lies "
-                       f"outside the delay limits (95th-percentile time in port {number(change, 'relative', True)}, "
-                       f"missed departures {number(ctx.status.loc[top, 'missed_change_points'], 'rate', True)} "
+                       f"outside the delay limits (95th-percentile {ctx.words.time_at_site} "
+                       f"{number(change, 'relative', True)}, {ctx.words.missed} {number(ctx.status.loc[top, 'missed_change_points'], 'rate', True)} "
                        "percentage points).")
         text = (f"{under}no policy within the delay limits detects more than the baseline, {policy}: "
                 f"{value_text(ctx, best, 'detections')} persons over {days} days.{outside}")
@@ -310,7 +310,7 @@ def section_headline(ctx: Context) -> Section:
     blocks: list[Any] = [Bullets(tuple(i for i in items if i is not None))]
     if ctx.batch.policy is not None:
         blocks.append(Paragraph(
-            f"Delay limits: {ctx.limits.describe(ctx.baseline_name)}, in the same scenario (means over replications; "
+            f"Delay limits: {ctx.limits.describe(ctx.baseline_name, ctx.words)}, in the same scenario (means over replications; "
             "set with --max-delay-increase and --max-missed-increase). Intervals are 95%; a paired interval "
             "compares the same replication (seed) under both policies.", lead="How to read this."))
     return Section("headline", "Headline findings", tuple(blocks))
@@ -333,7 +333,7 @@ class Briefing:
 
 
 def _drivers(batch: BatchView, runs: pd.DataFrame) -> tuple[pd.DataFrame | None, str]:
-    """PRCC of crossings, detections and p95 time in port with the range factors; (None, why) when it cannot run."""
+    """PRCC of crossings, detections and p95 time at the crossing with the range factors; (None, why) when it cannot run."""
     from ..analysis.sensitivity import SensitivityInputError, prcc
 
     ranged = [f.label for f in batch.factors if f.is_range]

@@ -9,14 +9,14 @@ from .document import Cell, Paragraph, Section, Table, interval, is_number, numb
 from .evidence import RUNS_TABLE
 from .store_view import shown_value
 from .context import Context, capitalised
-from .tables import MEASURE, MEASURES, ON_TIME, STAKEHOLDERS, is_within, stakeholder_view
+from .tables import MEASURES, ON_TIME, STAKEHOLDERS, is_within, stakeholder_view
 
 
 # -- 3. the comparison table -------------------------------------------------------------------------------
 
 
-def _row_header(figure: str) -> str:
-    m = MEASURE[figure]
+def _row_header(ctx: Context, figure: str) -> str:
+    m = ctx.measure[figure]
     return f"{m.label}\n{m.unit}; {m.source}"
 
 
@@ -31,7 +31,7 @@ def _comparison_table(ctx: Context, scenario: tuple, index: int) -> Table:
     for measure in MEASURES:
         if ctx.cell(ordered[0], measure.key) is None:
             continue
-        cells = [Cell(_row_header(measure.key), {"figure": measure.key}, header=True)]
+        cells = [Cell(_row_header(ctx, measure.key), {"figure": measure.key}, header=True)]
         for p in ordered:
             r = ctx.cell(p, measure.key)
             if r is None:
@@ -94,7 +94,8 @@ def section_comparison(ctx: Context) -> Section:
         f"Each cell: the mean over replications, its 95% interval ({INTERVAL_WORDS['log']}; for shares a "
         f"{INTERVAL_WORDS['logit']}), and (Δ) the paired difference against "
         f"{ctx.baseline_name} with its 95% interval (Student t-interval on the per-replication differences; common "
-        f"random numbers). Counts are over the {b.days} summarised days. Detections, time in port, missed departures and "
+        f"random numbers). Counts are over the {b.days} summarised days. Detections, {ctx.words.time_at_site}, "
+        f"{ctx.words.missed} and "
         "staff-hours are observed records; crossings, displacement out of the system and hazard-weighted boarding "
         "are model truth. Hazard-weighted boarding is the attempt-weighted mean hazard score (0 to 1) of where "
         "people boarded and how deep they hid (the boarding point's hazard plus the depth's, at most 1)."))
@@ -129,11 +130,11 @@ def _point_table(ctx: Context) -> Table:
         cells += [Cell(shown_value(_plain_value(ctx.batch.points.loc[point, label]))) for label in labels]
         for f in figures:
             r = ctx.cell(point, f)
-            cells.append(Cell(f"{number(r['mean'], MEASURE[f].kind)}\n{interval(r['low'], r['high'], MEASURE[f].kind)}",
+            cells.append(Cell(f"{number(r['mean'], ctx.measure[f].kind)}\n{interval(r['low'], r['high'], ctx.measure[f].kind)}",
                               {"figure": f, "point": point, "mean": r["mean"]}))
         rows.append(tuple(cells))
     return Table("points", "Design points: factor values and means over replications",
-                 tuple(["Point", *labels, *(f"{MEASURE[f].label} ({MEASURE[f].unit})" for f in figures)]),
+                 tuple(["Point", *labels, *(f"{ctx.measure[f].label} ({ctx.measure[f].unit})" for f in figures)]),
                  tuple(rows))
 
 
@@ -162,10 +163,10 @@ def section_assumptions(ctx: Context) -> Section:
             blocks.append(Paragraph("The policy detecting most within the delay limits: " + "; ".join(picks) + "."))
         rows = []
         for _, r in ctx.contrast.iterrows():
-            kind = MEASURE[r["figure"]].kind
+            kind = ctx.measure[r["figure"]].kind
             rows.append((
                 Cell(b.policy_label(r["policy"]), {"point": r["point"]}, header=True),
-                Cell(f"{MEASURE[r['figure']].label} ({MEASURE[r['figure']].source})"),
+                Cell(f"{ctx.measure[r['figure']].label} ({ctx.measure[r['figure']].source})"),
                 Cell(number(r["effect_reference"], kind, True),
                      {"figure": r["figure"], "value": r["effect_reference"]}),
                 Cell(number(r["effect"], kind, True), {"figure": r["figure"], "value": r["effect"]}),
@@ -184,8 +185,8 @@ def section_assumptions(ctx: Context) -> Section:
         ))
     if b.policy is not None:
         blocks.append(Paragraph(
-            "Each stakeholder picks the policy best on the figure they answer for: the port operator the shortest "
-            "95th-percentile time in port (then fewest missed departures), enforcement the most detections (then "
+            ctx.words.fill("Each stakeholder picks the policy best on the figure they answer for: the {site} operator the "
+                           "shortest 95th-percentile {time_at_site} (then fewest {missed}), ") + "enforcement the most detections (then "
             "fewest crossings), safeguarding the lowest hazard-weighted boarding (then least displacement out of "
             "the system). Each cost is the paired difference, on the other stakeholder's figure, between this pick "
             "and the other's own pick.", lead="Who prefers what."))
@@ -198,20 +199,20 @@ def _stakeholder_table(ctx: Context, scenario: tuple, index: int) -> Table:
     view = stakeholder_view(ctx.batch, ctx.table, ctx.runs, scenario)
     rows = []
     for _, r in view.iterrows():
-        kind = MEASURE[r["figure"]].kind
-        own = f"{number(r['value'], kind)}\n{MEASURE[r['figure']].label} ({MEASURE[r['figure']].unit})"
-        if r["figure"] == "time_in_port_p95_min":  # the port also reads throughput on time and missed sailings
+        kind = ctx.measure[r["figure"]].kind
+        own = f"{number(r['value'], kind)}\n{ctx.measure[r['figure']].label} ({ctx.measure[r['figure']].unit})"
+        if r["figure"] == "time_in_port_p95_min":  # the operator also reads throughput on time and missed departures
             for extra in (ON_TIME.key, "missed_departure_share"):
                 if extra in ctx.means.columns:
-                    m = MEASURE[extra]
+                    m = ctx.measure[extra]
                     own += f"\n{number(ctx.means.loc[r['point'], extra], m.kind)} {m.label.lower()} ({m.unit})"
+        own_view = next(s for s in STAKEHOLDERS if s.name == r["stakeholder"])
         prefers = str(r["policy"])
         if r["tied_with"]:
-            prefers += (f"\ntied with {r['tied_with']} on {MEASURE[r['figure']].label.lower()}; chosen on "
-                        f"{MEASURE[r['tie_break']].label.lower()}")
+            prefers += (f"\ntied with {r['tied_with']} on {ctx.measure[r['figure']].label.lower()}; chosen on "
+                        f"{ctx.measure[r['tie_break']].label.lower()}")
         cells = [
-            Cell(f"{r['stakeholder']}\n{next(s.wants for s in STAKEHOLDERS if s.name == r['stakeholder'])}",
-                 header=True),
+            Cell(f"{ctx.stakeholder_name(own_view)}\n{ctx.words.fill(own_view.wants)}", header=True),
             Cell(prefers, {"stakeholder": r["stakeholder"], "point": r["point"]}),
             Cell(own),
         ]
@@ -220,7 +221,7 @@ def _stakeholder_table(ctx: Context, scenario: tuple, index: int) -> Table:
             if other.name == r["stakeholder"] or key not in view.columns or not is_number(r.get(key)):
                 cells.append(Cell("—"))
                 continue
-            okind = MEASURE[other.figure].kind
+            okind = ctx.measure[other.figure].kind
             if r[key] == 0 and r[f"pick:{other.name}"] == r["point"]:
                 cells.append(Cell("none (same pick)"))
             else:
@@ -228,7 +229,7 @@ def _stakeholder_table(ctx: Context, scenario: tuple, index: int) -> Table:
                 cells.append(Cell(f"{number(r[key], okind, True)}\n{spread}", {"cost": r[key]}))
         rows.append(tuple(cells))
     columns = ["Stakeholder", "Prefers", "On their own figure"] + [
-        f"Cost to {s.name.lower()} ({MEASURE[s.figure].label.lower()})" for s in STAKEHOLDERS
+        f"Cost to {ctx.stakeholder_name(s).lower()} ({ctx.measure[s.figure].label.lower()})" for s in STAKEHOLDERS
     ]
     caption = (f"Stakeholders: {ctx.scenario_text(scenario)}. Each prefers the policy best on their own figure; "
                "policies indistinguishable from it (paired 95% interval of the difference holds zero) are a tie, "

@@ -11,7 +11,8 @@ from ..analysis.policy_table import DelayLimits
 from .document import excludes_zero, interval, is_number, number, with_interval
 from .evidence import Evidence
 from .store_view import BatchView
-from .tables import MEASURE
+from ..world.words import Words
+from .tables import MEASURE, Measure, Stakeholder, worded
 
 
 BEHAVIOUR_WORDS = {
@@ -49,6 +50,20 @@ class Context:
     scenario_points: dict[tuple, list[int]]
     drivers: pd.DataFrame | None = None  # PRCC per output and range factor (sampled designs)
     drivers_problem: str = ""  # why PRCC could not be computed
+
+    @property
+    def words(self) -> Words:
+        """The crossing's own words ("missed trains", "time in the terminal")."""
+        return self.batch.words
+
+    @property
+    def measure(self) -> dict[str, Measure]:
+        """Every measure by key, labelled in the crossing's words."""
+        return worded(self.words)
+
+    def stakeholder_name(self, s: Stakeholder) -> str:
+        """A stakeholder's display name in the crossing's words ("Terminal operator")."""
+        return self.words.fill(s.label or s.name)
 
     @property
     def baseline_name(self) -> str:

@@ -35,7 +35,7 @@ def _frontier_block(ctx: Context) -> FigureBlock:
         base = ctx.baseline_point(scenario)
         if base is not None:
             limits[name] = ctx.means.loc[base, "time_in_port_p95_min"] * (1 + ctx.limits.time_in_port_increase)
-    return frontier_figure(groups, limits, ctx.batch.days, ctx.batch.replications)
+    return frontier_figure(groups, limits, ctx.batch.days, ctx.batch.replications, ctx.words)
 
 
 def _heatmap_block(ctx: Context) -> FigureBlock | None:

@@ -25,6 +25,7 @@ from matplotlib.patches import Rectangle
 from matplotlib.ticker import NullFormatter
 
 from ..experiment.compare import bounded_mean_interval
+from ..world.words import GENERIC, Words
 from .document import FigureBlock, number
 
 DPI = 110
@@ -96,10 +97,11 @@ def frontier_figure(
     limits: Mapping[str, float],
     days: int,
     replications: int,
+    words: Words = GENERIC,
 ) -> FigureBlock:
-    """Detections against p95 time in port, one marker and line style per scenario, frontier joined.
+    """Detections against p95 time at the crossing, one marker and line style per scenario, frontier joined.
 
-    ``limits`` maps a scenario to the p95 time in port at its delay limit.
+    ``limits`` maps a scenario to the p95 time at its delay limit; ``words`` are the crossing's own.
     """
     with matplotlib.rc_context(STYLE):
         fig = _figure(8, 4.8)
@@ -121,19 +123,19 @@ def frontier_figure(
             if scenario in limits and math.isfinite(limits[scenario]):
                 ax.axvline(limits[scenario], color=colour, linestyle=line, linewidth=0.9, alpha=0.8,
                            label=_t(f"{scenario}: delay limit"))
-        ax.set_xlabel("Time in port, 95th percentile (minutes)")
+        ax.set_xlabel(words.fill("{Time_at_site}, 95th percentile (minutes)"))
         ax.set_ylabel(f"Detections over {days} days (persons)")
         ax.set_title("Detections against delay; each marker a policy (hollow: outside the delay limits)")
         ax.legend(loc="best", frameon=True, framealpha=0.9)
         png = _png(fig, f"Source: observed records. Means over {replications} replications per policy, "
                         "bars 95% intervals. Model estimates, not counts.")
     return FigureBlock(
-        "frontier", "Detections against time in port, with the efficient frontier",
-        f"Source: observed records (detections; 95th-percentile time in port). Each marker is one policy's mean "
+        "frontier", words.fill("Detections against {time_at_site}, with the efficient frontier"),
+        f"Source: observed records (detections; 95th-percentile {words.time_at_site}). Each marker is one policy's mean "
         f"over {replications} replications with 95% intervals; the line joins the policies no other policy beats "
         "on both (the efficient frontier); the vertical line is the delay limit, and hollow markers lie outside "
         "the limits.",
-        png, "Scatter of detections against 95th-percentile time in port per policy, frontier joined",
+        png, f"Scatter of detections against 95th-percentile {words.time_at_site} per policy, frontier joined",
     )
 
 

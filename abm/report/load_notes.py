@@ -30,14 +30,15 @@ def load_blocks(batch: BatchView, baseline_points: list[int]) -> list[Any]:
         blocks.append(Paragraph(
             f"The baseline is overloaded at {len(base_warnings)} place{'s' if len(base_warnings) != 1 else ''} "
             f"(a fluid estimate from the world file on its busiest weekday; offered load of {OVERLOAD} or more, or "
-            "departures booked beyond their places):", lead="Load."))
+            f"{batch.words.services} booked beyond their places):", lead="Load."))
         blocks.append(Bullets(tuple(Item(w) for w in base_warnings)))
         causes = []
         if overflow > 0:
-            causes.append(f"about {overflow:.1%} of vehicles miss their booked departure for want of places alone, "
-                          "whatever the checks, so missed departures here come partly from overload rather than checks")
+            causes.append(f"about {overflow:.1%} of vehicles miss their booked {batch.words.service} for want of places "
+                          f"alone, whatever the checks, so {batch.words.missed} here come partly from overload rather "
+                          "than checks")
         if any(w.startswith("station") for w in base_warnings):
-            causes.append("time in port includes queues that grow through the overloaded bands because lanes are "
+            causes.append(f"{batch.words.time_at_site} includes queues that grow through the overloaded bands because lanes are "
                           "short, beyond the checks' own time")
         if causes:
             text = "; ".join(causes)

@@ -29,6 +29,7 @@ import pandas as pd
 from ..errors import InputError
 from ..experiment.store import EXPERIMENT_FILE, RUNS_DIR, SUMMARY_TABLE
 from ..run_files import damage
+from ..world.words import Words, words_from_data
 
 BEHAVIOUR_PATH = "adversary.behaviour"
 
@@ -96,6 +97,11 @@ class BatchView:
     @property
     def runs(self) -> int:
         return len(self.summary)
+
+    @property
+    def words(self) -> Words:
+        """The crossing's own words for its departures and place, from the baseline's world."""
+        return words_from_data(self.world)
 
     @property
     def start_day(self) -> int:

@@ -13,13 +13,14 @@ from __future__ import annotations
 
 import math
 from collections.abc import Sequence
-from dataclasses import dataclass
+from dataclasses import dataclass, replace
 
 import pandas as pd
 
 from ..analysis.policy_table import DelayLimits, difference_in_differences, efficient_frontier
 from ..experiment.compare import CONFIDENCE, compare_points, paired_difference
 from ..experiment.store import SUMMARY_TABLE
+from ..world.words import Words
 from .evidence import RUNS_TABLE, Evidence
 from .store_view import BatchView
 
@@ -48,16 +49,21 @@ MEASURES: tuple[Measure, ...] = (
     ),
     Measure("displaced_out", "Displaced out of the system", "persons", "truth", "count", -1, SUMMARY_TABLE),
     Measure("hazard_weighted_share", "Hazard-weighted boarding", "index 0–1", "truth", "index", -1, RUNS_TABLE),
-    Measure("time_in_port_p95_min", "Time in port, 95th percentile", "minutes", "observed", "minutes", -1,
+    Measure("time_in_port_p95_min", "{Time_at_site}, 95th percentile", "minutes", "observed", "minutes", -1,
             SUMMARY_TABLE),
-    Measure("missed_departure_share", "Missed departures", "% of vehicles", "observed", "percent", -1, SUMMARY_TABLE),
+    Measure("missed_departure_share", "{Missed}", "% of vehicles", "observed", "percent", -1, SUMMARY_TABLE),
     Measure("staff_hours", "Staff-hours", "hours", "observed", "hours", 0, SUMMARY_TABLE),
 )
-# Derived from summary columns (vehicles x (1 - missed share) / days): the port operator's throughput.
+# Derived from summary columns (vehicles x (1 - missed share) / days): the operator's throughput.
 ON_TIME = Measure(
-    "on_time_per_day", "Vehicles on their planned sailing", "vehicles a day", "observed", "rate", +1, SUMMARY_TABLE
+    "on_time_per_day", "Vehicles on their booked {service}", "vehicles a day", "observed", "rate", +1, SUMMARY_TABLE
 )
-MEASURE = {m.key: m for m in (*MEASURES, ON_TIME)}
+MEASURE = {m.key: m for m in (*MEASURES, ON_TIME)}  # labels hold the crossing's words as placeholders (worded())
+
+
+def worded(words: Words) -> dict[str, Measure]:
+    """Every measure by key, its label in the crossing's own words ("Missed trains")."""
+    return {key: replace(m, label=words.fill(m.label)) for key, m in MEASURE.items()}
 
 
 def run_table(batch: BatchView, evidence: Evidence) -> pd.DataFrame:
@@ -88,7 +94,7 @@ def means(table: pd.DataFrame) -> pd.DataFrame:
 
 
 def delay_status(batch: BatchView, table: pd.DataFrame, limits: DelayLimits) -> pd.DataFrame:
-    """Per point: its and its baseline's mean p95 time in port and missed share, and whether it is within limits.
+    """Per point: its and its baseline's mean p95 time at the crossing and missed share, and whether within limits.
 
     A baseline point is within the limits by definition; a point without a
     baseline (no policy factor) is marked not applicable (``within`` NA).
@@ -149,7 +155,7 @@ def best_within_limits(batch: BatchView, table: pd.DataFrame, status: pd.DataFra
 
 
 def frontier(batch: BatchView, table: pd.DataFrame) -> pd.Series:
-    """True for points on their scenario's efficient frontier (lower p95 time in port, more detections)."""
+    """True for points on their scenario's efficient frontier (lower p95 time at the crossing, more detections)."""
     m = means(table)
     flags = pd.Series(False, index=m.index)
     for points in scenarios(batch).values():
@@ -226,12 +232,13 @@ class Stakeholder:
     name: str
     figure: str
     tie_break: str
-    wants: str  # the figures they look at, in words
+    wants: str  # the figures they look at, in words (placeholders for the crossing's words, see Words.fill)
+    label: str = ""  # display name with placeholders; the name when empty
 
 
 STAKEHOLDERS: tuple[Stakeholder, ...] = (
-    Stakeholder("Port operator", "time_in_port_p95_min", "missed_departure_share",
-                "throughput on time, time in port, missed departures"),
+    Stakeholder("Operator", "time_in_port_p95_min", "missed_departure_share",
+                "throughput on time, {time_at_site}, {missed}", "{Site} operator"),
     Stakeholder("Enforcement", "detections", "crossings", "detections, crossings"),
     Stakeholder("Safeguarding", "hazard_weighted_share", "displaced_out",
                 "hazard-weighted boarding, displacement out of the system"),

@@ -10,7 +10,9 @@ sailings" and "time in port" for a ferry port.
 
 from __future__ import annotations
 
+from collections.abc import Mapping
 from dataclasses import dataclass
+from typing import Any
 
 from .schema import World
 
@@ -50,15 +52,37 @@ class Words:
         """The place with its article: "the port", "the terminal"."""
         return "the " + self.site
 
+    def fill(self, text: str) -> str:
+        """``text`` with its placeholders in these words: {service}, {services}, {missed}, {time_at_site},
+        {site}, {the_site}; a capitalised placeholder ({Missed}) gives a capitalised word.
+
+        >>> Words(service="train", site="terminal").fill("{Missed} and {time_at_site}")
+        'Missed trains and time in the terminal'
+        """
+        values = {"service": self.service, "services": self.services, "missed": self.missed,
+                  "time_at_site": self.time_at_site, "site": self.site, "the_site": self.the_site}
+        values |= {key[0].upper() + key[1:]: value[0].upper() + value[1:] for key, value in values.items()}
+        return text.format(**values)
+
 
 GENERIC = Words(service="departure", site="crossing")  # when no world is at hand
+
+
+def _words(service: str | None, site: str | None) -> Words:
+    """Words for departures of kind ``service`` (None: a crossing without departures) at a ``site``."""
+    default_site = "border" if service is None else "port" if service == "sailing" else "terminal"
+    return Words(service=service or "departure", site=site or default_site)
 
 
 def words_for(world: World | None) -> Words:
     """The display words of ``world`` (generic ones for ``None``)."""
     if world is None:
         return GENERIC
-    dep = world.departures
-    service = dep.service if dep is not None else "departure"
-    site = world.site or ("border" if dep is None else "port" if dep.service == "sailing" else "terminal")
-    return Words(service=service, site=site)
+    return _words(world.departures.service if world.departures is not None else None, world.site)
+
+
+def words_from_data(data: Mapping[str, Any]) -> Words:
+    """The display words of a world given as its data, as a run's ``world.json`` holds it."""
+    departures = data.get("departures")
+    service = departures.get("service", "sailing") if isinstance(departures, Mapping) else None
+    return _words(service, data.get("site"))

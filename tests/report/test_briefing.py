@@ -215,7 +215,7 @@ def test_scenario_section_says_where_the_baseline_is_overloaded(briefed: Briefed
     scenario = md[md.index("The scenario"):md.index("How many are trying")]
     assert "The baseline is overloaded at" in scenario
     assert "station 'yard_dogs', evening (18-24 h): offered load 1.21" in scenario
-    assert "miss their booked departure for want of places alone" in scenario
+    assert "miss their booked sailing for want of places alone" in scenario  # the world's own word
     assert "Image twice as many: station 'gate_imaging', evening" in scenario
 
 

@@ -323,6 +323,21 @@ def cmd_calibrate(args: argparse.Namespace) -> int:
     return EXIT_OK
 
 
+def cmd_new(args: argparse.Namespace) -> int:
+    from .starter import experiment_text, world_text, write_new
+
+    out = Path(args.out)
+    if args.what == "world":
+        write_new(out, world_text(args.kind), f"{args.kind} world")
+        print(f"Wrote {out}: a {args.kind} world to start from; every number in it is invented and illustrative. "
+              f"Next: replace the numbers with your own, then `undertow check {out}`.")
+    else:
+        write_new(out, experiment_text(Path(args.world), out), "experiment")
+        print(f"Wrote {out}: an experiment comparing today's roster with two example changes. "
+              f"Next: edit the policies, then `undertow check {out}` and `undertow batch {out} --out FOLDER`.")
+    return 0
+
+
 def cmd_optimise(args: argparse.Namespace) -> int:
     """Search policies under constraints with common random numbers; print the best and the runner-ups."""
     _start_pool_server(args.executor, args.scheduler)
@@ -461,6 +476,17 @@ def build_parser() -> argparse.ArgumentParser:
     estimate.add_argument("--seed", type=_seed, help="seed for the expansions' bootstrap intervals (default: none)")
     estimate.set_defaults(func=cmd_estimate)
 
+    new = sub.add_parser("new", help="write a commented starting file: a world of a kind, or an experiment")
+    what = new.add_subparsers(dest="what", required=True, parser_class=_Parser)
+    new_world = what.add_parser("world", help="a fictional starting world that check accepts")
+    new_world.add_argument("--kind", choices=["ferry", "rail", "land"], required=True,
+                           help="ferry port (sailings), rail freight terminal (trains) or land border (none)")
+    new_world.add_argument("out", metavar="OUT.yaml", help="file to create (never overwritten)")
+    new_experiment = what.add_parser("experiment", help="an experiment for a world: its roster against two changes")
+    new_experiment.add_argument("world", metavar="WORLD.yaml", help="the world file the experiment runs")
+    new_experiment.add_argument("out", metavar="OUT.yaml", help="file to create (never overwritten)")
+    new.set_defaults(func=cmd_new)
+
     for name, key, func, what in (
         ("calibrate", "calibration", cmd_calibrate, "fit inflow and behaviour to observed records (ABC over the model)"),
         ("optimise", "optimisation", cmd_optimise, "search policies under delay and staff constraints"),
@@ -494,6 +520,9 @@ def main(argv: Sequence[str] | None = None) -> int:
     except KeyboardInterrupt:
         print(f"undertow {args.command}: interrupted; completed output is kept", file=sys.stderr)
         return EXIT_INTERRUPTED
+    except BrokenPipeError:  # the reader stopped early (`| head`): not a fault; silence the flush at exit too
+        os.dup2(os.open(os.devnull, os.O_WRONLY), sys.stdout.fileno())
+        return 0
     except Exception as exc:  # a fault of ours: one line unless debugging
         if os.environ.get("UNDERTOW_DEBUG") == "1":
             raise

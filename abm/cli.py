@@ -256,6 +256,15 @@ def cmd_estimate(args: argparse.Namespace) -> int:
     return EXIT_OK
 
 
+def cmd_export(args: argparse.Namespace) -> int:
+    """Write a run's or a batch's tables as CSV files or one Excel workbook."""
+    from .experiment.batch import print_warning
+    from .experiment.export import export_command
+
+    export_command(args.folder, args.format, args.out, ["undertow", *args.argv], print_warning)
+    return EXIT_OK
+
+
 def _start_pool_server(
     executor: str | None, scheduler: str | None = None, extension_modules: tuple[str, ...] = ()
 ) -> None:
@@ -440,6 +449,18 @@ def build_parser() -> argparse.ArgumentParser:
     )
     estimate.add_argument("--seed", type=_seed, help="seed for the expansions' bootstrap intervals (default: none)")
     estimate.set_defaults(func=cmd_estimate)
+
+    export = sub.add_parser("export", help="write a run's or a batch's tables as CSV files or an Excel workbook")
+    export.add_argument("folder", metavar="DIR", help="run directory (undertow run) or batch folder (undertow batch)")
+    export.add_argument(
+        "--format", choices=["csv", "xlsx"], default="csv",
+        help="csv: a file per table (default); xlsx: one workbook, a sheet per table (needs undertow[xlsx])",
+    )
+    export.add_argument(
+        "--out", metavar="FOLDER",
+        help="folder for the files (default DIR/export); only files an earlier export wrote there are ever replaced",
+    )
+    export.set_defaults(func=cmd_export)
 
     for name, key, func, what in (
         ("calibrate", "calibration", cmd_calibrate, "fit inflow and behaviour to observed records (ABC over the model)"),

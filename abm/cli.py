@@ -450,7 +450,11 @@ def build_parser() -> argparse.ArgumentParser:
     estimate.add_argument("--seed", type=_seed, help="seed for the expansions' bootstrap intervals (default: none)")
     estimate.set_defaults(func=cmd_estimate)
 
-    export = sub.add_parser("export", help="write a run's or a batch's tables as CSV files or an Excel workbook")
+    export = sub.add_parser(
+        "export", help="write a run's or a batch's tables as CSV files or an Excel workbook",
+        description="Write every table of a run directory or batch folder as CSV files or one Excel workbook. "
+        "A batch's per-run tables are stacked over its runs, led by run_id, design_point and replication.",
+    )
     export.add_argument("folder", metavar="DIR", help="run directory (undertow run) or batch folder (undertow batch)")
     export.add_argument(
         "--format", choices=["csv", "xlsx"], default="csv",

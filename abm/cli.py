@@ -257,7 +257,7 @@ def cmd_estimate(args: argparse.Namespace) -> int:
 
 
 def cmd_export(args: argparse.Namespace) -> int:
-    """Write a run's or a batch's tables as CSV files or one Excel workbook."""
+    """Write a run's or a batch's tables as CSV files or one xlsx workbook."""
     from .experiment.batch import print_warning
     from .experiment.export import export_command
 
@@ -451,8 +451,8 @@ def build_parser() -> argparse.ArgumentParser:
     estimate.set_defaults(func=cmd_estimate)
 
     export = sub.add_parser(
-        "export", help="write a run's or a batch's tables as CSV files or an Excel workbook",
-        description="Write every table of a run directory or batch folder as CSV files or one Excel workbook. "
+        "export", help="write a run's or a batch's tables as CSV files or an xlsx workbook",
+        description="Write every table of a run directory or batch folder as CSV files or one xlsx workbook. "
         "A batch's per-run tables are stacked over its runs, led by run_id, design_point and replication.",
     )
     export.add_argument("folder", metavar="DIR", help="run directory (undertow run) or batch folder (undertow batch)")

@@ -1,4 +1,4 @@
-"""``undertow export``: a run's or a batch's tables as CSV files or one Excel workbook.
+"""``undertow export``: a run's or a batch's tables as CSV files or one xlsx workbook.
 
 What is exported
 ----------------
@@ -57,8 +57,8 @@ WRITER = "undertow export"  # marks export.json as this command's own
 MANIFEST = "manifest.json"
 KEY_COLUMNS = ("run_id", "design_point", "replication")
 CONTENTS_SHEET = "contents"
-SHEET_NAME_MAX = 31  # Excel's limit
-SHEET_ROWS_MAX = 1_048_576  # Excel's rows per sheet, the header row included
+SHEET_NAME_MAX = 31  # the xlsx format's limit
+SHEET_ROWS_MAX = 1_048_576  # the xlsx format's rows per sheet, the header row included
 SHEET_COLUMNS_MAX = 16_384
 XLSX_HINT = "pip install 'undertow[xlsx]' (or pip install openpyxl)"
 # A few words per known table, for the workbook's contents sheet and export.json.
@@ -316,7 +316,7 @@ def _readable(path: Path) -> bool:
 
 
 def unique_names(names: Sequence[str], reserved: Sequence[str] = (CONTENTS_SHEET,)) -> list[str]:
-    """Names fit for a file and an Excel sheet: safe characters, at most 31 of them, unique ignoring case.
+    """Names fit for a file and an xlsx sheet: safe characters, at most 31 of them, unique ignoring case.
 
     The same names serve CSV files and sheets, so a table is called alike in both formats.
     """
@@ -409,7 +409,7 @@ def _cells(sheet: Any, frame: pd.DataFrame) -> Iterator[list[Any]]:
     from openpyxl.cell import WriteOnlyCell
     from openpyxl.cell.cell import ILLEGAL_CHARACTERS_RE
 
-    plain = frame.astype(object).where(frame.notna(), None)  # NaN is no value Excel can hold
+    plain = frame.astype(object).where(frame.notna(), None)  # NaN is no value a spreadsheet cell can hold
 
     def cell(value: Any) -> Any:
         if not isinstance(value, str):
@@ -450,7 +450,7 @@ def _too_big_for_a_sheet(tables: Sequence[Table]) -> None:
     for table in tables:
         if table.rows + 1 > SHEET_ROWS_MAX or len(table.columns) > SHEET_COLUMNS_MAX:
             raise ExportError(f"--format xlsx: table {table.name} has {table.rows:,} rows and {len(table.columns):,} "
-                              f"columns, more than an Excel sheet holds ({SHEET_ROWS_MAX - 1:,} rows, "
+                              f"columns, more than an xlsx sheet holds ({SHEET_ROWS_MAX - 1:,} rows, "
                               f"{SHEET_COLUMNS_MAX:,} columns); use --format csv")
 
 

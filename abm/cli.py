@@ -276,6 +276,15 @@ def cmd_estimate(args: argparse.Namespace) -> int:
     return EXIT_OK
 
 
+def cmd_export(args: argparse.Namespace) -> int:
+    """Write a run's or a batch's tables as CSV files or one xlsx workbook."""
+    from .experiment.batch import print_warning
+    from .experiment.export import export_command
+
+    export_command(args.folder, args.format, args.out, ["undertow", *args.argv], print_warning)
+    return EXIT_OK
+
+
 def _start_pool_server(
     executor: str | None, scheduler: str | None = None, extension_modules: tuple[str, ...] = ()
 ) -> None:
@@ -477,15 +486,31 @@ def build_parser() -> argparse.ArgumentParser:
     estimate.set_defaults(func=cmd_estimate)
 
     new = sub.add_parser("new", help="write a commented starting file: a world of a kind, or an experiment")
-    what = new.add_subparsers(dest="what", required=True, parser_class=_Parser)
-    new_world = what.add_parser("world", help="a fictional starting world that check accepts")
+    new_files = new.add_subparsers(dest="what", required=True, parser_class=_Parser)
+    new_world = new_files.add_parser("world", help="a fictional starting world that check accepts")
     new_world.add_argument("--kind", choices=["ferry", "rail", "land"], required=True,
                            help="ferry port (sailings), rail freight terminal (trains) or land border (none)")
     new_world.add_argument("out", metavar="OUT.yaml", help="file to create (never overwritten)")
-    new_experiment = what.add_parser("experiment", help="an experiment for a world: its roster against two changes")
+    new_experiment = new_files.add_parser("experiment", help="an experiment for a world: its roster against two changes")
     new_experiment.add_argument("world", metavar="WORLD.yaml", help="the world file the experiment runs")
     new_experiment.add_argument("out", metavar="OUT.yaml", help="file to create (never overwritten)")
     new.set_defaults(func=cmd_new)
+
+    export = sub.add_parser(
+        "export", help="write a run's or a batch's tables as CSV files or an xlsx workbook",
+        description="Write every table of a run directory or batch folder as CSV files or one xlsx workbook. "
+        "A batch's per-run tables are stacked over its runs, led by run_id, design_point and replication.",
+    )
+    export.add_argument("folder", metavar="DIR", help="run directory (undertow run) or batch folder (undertow batch)")
+    export.add_argument(
+        "--format", choices=["csv", "xlsx"], default="csv",
+        help="csv: a file per table (default); xlsx: one workbook, a sheet per table (needs undertow[xlsx])",
+    )
+    export.add_argument(
+        "--out", metavar="FOLDER",
+        help="folder for the files (default DIR/export); only files an earlier export wrote there are ever replaced",
+    )
+    export.set_defaults(func=cmd_export)
 
     for name, key, func, what in (
         ("calibrate", "calibration", cmd_calibrate, "fit inflow and behaviour to observed records (ABC over the model)"),

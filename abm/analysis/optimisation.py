@@ -35,7 +35,7 @@ from ..experiment.worker import SUMMARY_FILE, RunTask, is_complete
 from ..records import METHODS_FILE, write_atomically, write_json, write_parquet
 from ..world import WorldFileError, file_hash, parse_world, read_yaml_mapping
 from ..world.paths import PathProblem, apply_changes, set_path
-from ..world.schema import NumberOnly, Strict
+from ..world.fields import NumberOnly, Strict
 from .policy_search import (
     FIGURE_SOURCES, FIGURES, Allocation, Constraint, PolicySearchError, PolicySearchResult, Problem, SearchSettings,
     Variable, candidate_id, search_policy,

@@ -49,7 +49,7 @@ from ..world import WorldFileError, file_hash, parse_world, read_yaml_mapping
 from ..world.paths import PathProblem, apply_unknowns, get_path, holds_numbers, set_path
 from ..experiment.budget import Keys, PlanSize, busiest_day, refuse
 from ..experiment.project_file import read_project_file
-from ..world.schema import NumberOnly, Strict
+from ..world.fields import NumberOnly, Strict
 from .priors import DISTRIBUTIONS, Prior, PriorError, PriorSet
 from .rejection import kept_count
 from .self_check import MIN_TRIALS

@@ -42,7 +42,7 @@ from typing import Annotated, Any, Literal
 
 from pydantic import Field
 
-from ..world.schema import Name, NumberOnly, Strict
+from ..world.fields import Name, NumberOnly, Strict
 
 SAMPLED_DESIGNS = ("latin_hypercube", "sobol")
 

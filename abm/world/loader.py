@@ -18,9 +18,10 @@ import yaml
 from pydantic import BaseModel, ValidationError
 
 from ..errors import InputError
+from .fields import CLOCK_PATTERN, NAME_PATTERN
 from .paths import PathProblem, apply_changes
 from .references import ReferenceProblem, check_references
-from .schema import CLOCK_PATTERN, NAME_PATTERN, World
+from .schema import World
 
 # What a pattern means, in words: a regular expression is no help to someone editing YAML.
 _PATTERN_WORDS = {

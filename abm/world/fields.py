@@ -34,6 +34,11 @@ Hour = Annotated[int, Field(ge=0, le=24), NumberOnly]
 NAME_PATTERN = r"^[A-Za-z0-9_\-]+$"
 CLOCK_PATTERN = r"^([01]\d|2[0-3]):[0-5]\d$"
 Name = Annotated[str, Field(min_length=1, max_length=80, pattern=NAME_PATTERN)]
+# What a pattern means, in words (error messages, docs/reference.md): a regular expression is no help in YAML.
+PATTERN_WORDS = {
+    NAME_PATTERN: "a name of letters, digits, '_' or '-' (no spaces)",
+    CLOCK_PATTERN: "a clock time 'HH:MM' from '00:00' to '23:59'",
+}
 
 
 def unit(name: str) -> Any:

@@ -4,7 +4,7 @@ VENV := .venv
 BIN := $(VENV)/bin
 STAMP := $(VENV)/.installed
 
-.PHONY: demo test install bench clean
+.PHONY: demo test install bench reference clean
 
 $(BIN)/python:
 	$(PYTHON) -m venv $(VENV) || python3 -m venv $(VENV)
@@ -24,6 +24,9 @@ test: $(STAMP)
 
 bench: $(STAMP)
 	$(BIN)/python bench/engine.py
+
+reference: $(STAMP)
+	$(BIN)/python -m abm.reference
 
 clean:
 	rm -rf $(VENV) outputs/*/

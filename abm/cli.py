@@ -15,6 +15,7 @@ from pathlib import Path
 from typing import TYPE_CHECKING
 
 from .errors import InputError, refuse_unwritable
+from .reference import FILE_KINDS as _KINDS
 
 if TYPE_CHECKING:
     from .world.words import Words
@@ -29,7 +30,7 @@ class _Parser(argparse.ArgumentParser):
         self.exit(EXIT_INPUT, f"{self.prog}: {message}\n")
 
 
-FILE_KINDS = ("world", "experiment", "calibration", "optimisation")
+FILE_KINDS = tuple(_KINDS)  # world, experiment, calibration, optimisation
 
 
 def _file_kind(path: str) -> str:
@@ -70,6 +71,14 @@ def cmd_check(args: argparse.Namespace) -> int:
             print(f"{path}: ok ({world.name}; {len(world.stations)} stations, "
                   f"{len(world.boarding_points)} boarding points)")
             print("\n".join(load_report(world).lines()))
+    return EXIT_OK
+
+
+def cmd_schema(args: argparse.Namespace) -> int:
+    """Print the JSON Schema of a file kind, for editors that complete and validate YAML."""
+    from .reference import schema_text
+
+    print(schema_text(args.kind))
     return EXIT_OK
 
 
@@ -414,6 +423,10 @@ def build_parser() -> argparse.ArgumentParser:
     check.add_argument("files", nargs="+", help="YAML files of any kind the tool reads (by their kind:)")
     check.add_argument("--allow-large", action="store_true", help=ALLOW_LARGE_HELP)
     check.set_defaults(func=cmd_check)
+
+    schema = sub.add_parser("schema", help="print the JSON Schema of a file kind (keys, units, ranges; for editors)")
+    schema.add_argument("kind", metavar="KIND", choices=FILE_KINDS, help=f"one of {', '.join(FILE_KINDS)}")
+    schema.set_defaults(func=cmd_schema)
 
     batch = sub.add_parser("batch", help="run an experiment's batch of runs and compare its design points")
     batch.add_argument("experiment", help="experiment YAML file")

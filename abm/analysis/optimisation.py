@@ -35,7 +35,7 @@ from ..experiment.worker import SUMMARY_FILE, RunTask, is_complete
 from ..records import METHODS_FILE, write_atomically, write_json, write_parquet
 from ..world import WorldFileError, file_hash, parse_world, read_yaml_mapping
 from ..world.paths import PathProblem, apply_changes, set_path
-from ..world.schema import NumberOnly, Strict
+from ..world.fields import NumberOnly, Strict, unit
 from ..world.words import words_from_data
 from .policy_search import (
     FIGURE_SOURCES, FIGURES, Allocation, Constraint, PolicySearchError, PolicySearchResult, Problem, SearchSettings,
@@ -157,49 +157,77 @@ OpenShare = Annotated[float, Field(gt=0.0, lt=1.0), NumberOnly]
 Positive = Annotated[float, Field(gt=0.0), NumberOnly]
 
 
+Figure = Annotated[str, Field(json_schema_extra={"enum": list(FIGURES)})]  # checked by _check_figure, with hints
+PathValue = Annotated[float, NumberOnly, unit("the path's unit")]
+FigureValue = Annotated[float, NumberOnly, unit("the figure's unit")]
+
+
 class ObjectiveSpec(Strict):
-    figure: str
-    sense: Literal["minimise", "maximise"]
+    """The figure the search improves, averaged over a candidate's replications."""
+
+    figure: Figure = Field(description="a run figure: a numeric figure of the run summary, check_hours or encounters")
+    sense: Literal["minimise", "maximise"] = Field(description="whether less or more of the figure is better")
 
 
 class VariableSpec(Strict):
-    path: str = Field(min_length=1)
-    bounds: tuple[Number, Number]
-    integer: bool = False
+    """A decision variable: a value at a dotted world path, searched within bounds."""
+
+    path: str = Field(min_length=1, description="dotted path into the world, e.g. stations.gate_imaging.lanes")
+    bounds: tuple[PathValue, PathValue] = Field(description="[low, high] the search stays within")
+    integer: bool = Field(False, description="search whole numbers only")
 
 
 class AllocationPath(Strict):
-    path: str = Field(min_length=1)
-    weight: Positive = 1.0
-    max: Annotated[float, Field(ge=0.0), NumberOnly] | None = None
+    """One path of an allocation and how much of the total a unit of its value takes."""
+
+    path: str = Field(min_length=1, description="dotted path into the world")
+    weight: Annotated[Positive, unit("total per unit of the path")] = Field(
+        1.0, description="how much of the total one unit of this path's value spends"
+    )
+    max: Annotated[float, Field(ge=0.0), NumberOnly, unit("the path's unit")] | None = Field(
+        None, description="cap on this path's value; what the cap leaves is unspent; null: no cap"
+    )
 
 
 class AllocationSpec(Strict):
-    name: str = Field(min_length=1, max_length=80)
-    total: Positive
-    integer: bool = False
-    paths: list[AllocationPath] = Field(min_length=2)
+    """Paths that share out a fixed total: the sum of weight x value is the total (at most, when a cap binds)."""
+
+    name: str = Field(min_length=1, max_length=80, description="the group's name in outputs")
+    total: Annotated[Positive, unit("the total's unit")] = Field(description="what the paths share out")
+    integer: bool = Field(False, description="whole-number values, the total spent exactly (unit weights only)")
+    paths: list[AllocationPath] = Field(min_length=2, description="the paths that share the total")
 
 
 class ConstraintSpec(Strict):
-    figure: str
-    max: Number | None = None
-    min: Number | None = None
+    """A limit on a run figure (its mean over a candidate's replications); give exactly one of max and min."""
+
+    figure: Figure = Field(description="a run figure, as for the objective")
+    max: FigureValue | None = Field(None, description="the figure's mean must be at most this")
+    min: FigureValue | None = Field(None, description="the figure's mean must be at least this")
 
 
 class PolicySpec(Strict):
-    name: str = Field(min_length=1, max_length=80)
-    note: str = ""
-    set: dict[str, Any] = Field(default_factory=dict)
+    """A named alternative that joins the final comparison beside the search's best."""
+
+    name: str = Field(min_length=1, max_length=80, description="the policy's name in outputs")
+    note: str = Field("", description="free text: what the policy stands for")
+    set: dict[str, Any] = Field(default_factory=dict, description="dotted path -> value; empty = the world as it is")
 
 
 class SearchSpec(Strict):
-    popsize: AtLeastOne = Field(8, description="candidates per generation for each search dimension: a generation "
-                                "holds popsize x dimensions candidates (scipy's meaning)")
-    maxiter: AtLeastOne = Field(10, description="the most generations the search runs")
-    tol: Annotated[float, Field(ge=0.0), NumberOnly] = 0.01
+    """Differential evolution settings, with scipy's names and meanings."""
+
+    popsize: Annotated[AtLeastOne, unit("candidates per dimension")] = Field(
+        8, description="candidates per generation for each search dimension: a generation holds popsize x "
+        "dimensions candidates (scipy's meaning)"
+    )
+    maxiter: Annotated[AtLeastOne, unit("generations")] = Field(10, description="the most generations the search runs")
+    tol: Annotated[float, Field(ge=0.0), NumberOnly, unit("ratio")] = Field(
+        0.01, description="stop when the sd of the population's objective values falls below this share of their mean"
+    )
     mutation: tuple[Number, Number] = Field((0.5, 1.0), description="differential weight, drawn each generation "
-                                           "between the two values; both in [0, 2] (scipy's range)")
+                                           "between the two values; both in [0, 2] (scipy's range)",
+                                           json_schema_extra={"unit": "multiplier"})
 
     @field_validator("mutation")
     @classmethod
@@ -207,35 +235,52 @@ class SearchSpec(Strict):
         if not 0 <= value[0] <= value[1] <= 2:
             raise ValueError(f"expected 0 <= low <= high <= 2, got {list(value)}")
         return value
-    recombination: Annotated[float, Field(ge=0.0, le=1.0), NumberOnly] = 0.7
-    init: Literal["latinhypercube", "sobol", "halton", "random"] = "latinhypercube"
+    recombination: Annotated[float, Field(ge=0.0, le=1.0), NumberOnly, unit("chance")] = Field(
+        0.7, description="crossover chance of each coordinate of a trial candidate"
+    )
+    init: Literal["latinhypercube", "sobol", "halton", "random"] = Field(
+        "latinhypercube", description="how the first generation is spread over the search space"
+    )
 
 
 class SelectionSpec(Strict):
-    top: AtLeastOne = 3
-    replications: AtLeastTwo = 8
-    alpha: OpenShare = 0.05
-    level: OpenShare = 0.95
+    """The final stage: the best candidates and the named policies run again on fresh seeds and compared."""
+
+    top: Annotated[AtLeastOne, unit("candidates")] = Field(3, description="best feasible candidates of the search kept")
+    replications: Annotated[AtLeastTwo, unit("runs")] = Field(
+        8, description="fresh runs of each finalist, with seeds common to all of them"
+    )
+    alpha: Annotated[OpenShare, unit("probability")] = Field(
+        0.05, description="significance level of the paired comparisons with the best (Bonferroni-adjusted)"
+    )
+    level: Annotated[OpenShare, unit("probability")] = Field(0.95, description="confidence level of every interval")
 
 
 class Optimisation(Strict):
     """A whole optimisation file."""
 
-    kind: Literal["optimisation"] = "optimisation"
-    name: str = Field(min_length=1, max_length=200)
-    note: str = ""
-    world: str = Field(min_length=1)
-    days: AtLeastOne
-    warmup_days: WholeNumber = 0
-    replications: AtLeastOne = 3
-    seed: WholeNumber
-    objective: ObjectiveSpec
-    variables: list[VariableSpec] = Field(default_factory=list)
-    allocations: list[AllocationSpec] = Field(default_factory=list)
-    constraints: list[ConstraintSpec] = Field(default_factory=list)
-    policies: list[PolicySpec] = Field(default_factory=list)
-    search: SearchSpec = Field(default_factory=SearchSpec)
-    selection: SelectionSpec = Field(default_factory=SelectionSpec)
+    kind: Literal["optimisation"] = Field("optimisation", description="marks the file as an optimisation")
+    name: str = Field(min_length=1, max_length=200, description="the search's name, shown in its outputs")
+    note: str = Field("", description="free text: what the search asks")
+    world: str = Field(min_length=1, description="world file, relative to this file")
+    days: Annotated[AtLeastOne, unit("days")] = Field(description="days each run summarises, after the warm-up")
+    warmup_days: Annotated[WholeNumber, unit("days")] = Field(
+        0, description="days simulated first and left out of the figures"
+    )
+    replications: Annotated[AtLeastOne, unit("runs")] = Field(
+        3, description="runs of each candidate in the search, with seeds common to every candidate"
+    )
+    seed: Annotated[WholeNumber, unit("seed")] = Field(description="root seed of the search and its runs")
+    objective: ObjectiveSpec = Field(description="the figure to improve")
+    variables: list[VariableSpec] = Field(default_factory=list, description="values the search may change")
+    allocations: list[AllocationSpec] = Field(default_factory=list, description="groups of paths sharing a total")
+    constraints: list[ConstraintSpec] = Field(default_factory=list, description="limits on other figures")
+    policies: list[PolicySpec] = Field(
+        default_factory=list, description="named alternatives for the final comparison; the world as it stands "
+        "joins as 'current' unless one of them changes nothing"
+    )
+    search: SearchSpec = Field(default_factory=SearchSpec, description="differential evolution settings")
+    selection: SelectionSpec = Field(default_factory=SelectionSpec, description="the final comparison's settings")
 
 
 @dataclass(frozen=True, eq=False)

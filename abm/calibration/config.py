@@ -49,7 +49,7 @@ from ..world import WorldFileError, file_hash, parse_world, read_yaml_mapping
 from ..world.paths import PathProblem, apply_unknowns, get_path, holds_numbers, set_path
 from ..experiment.budget import Keys, PlanSize, busiest_day, refuse
 from ..experiment.project_file import read_project_file
-from ..world.schema import NumberOnly, Strict
+from ..world.fields import NumberOnly, Strict, unit
 from .priors import DISTRIBUTIONS, Prior, PriorError, PriorSet
 from .rejection import kept_count
 from .self_check import MIN_TRIALS
@@ -75,6 +75,7 @@ class CalibrationFileError(WorldFileError):
 
 
 Number = Annotated[float, NumberOnly]
+Value = Annotated[float, NumberOnly, unit("the unknown's unit")]  # a value at the prior's path, or its multiplier
 WholeNumber = Annotated[int, Field(ge=0), NumberOnly]
 AtLeastOne = Annotated[int, Field(ge=1), NumberOnly]
 AtLeastTwo = Annotated[int, Field(ge=2), NumberOnly]
@@ -87,14 +88,18 @@ class PriorSpec(Strict):
 
     path: str = Field(min_length=1, description="dotted path into the world, e.g. adversary.arrivals_per_day")
     name: str | None = Field(None, min_length=1, max_length=80, description="column name; defaults to the path")
-    dist: Literal["uniform", "loguniform", "normal", "gamma"]
-    low: Number | None = None
-    high: Number | None = None
-    mean: Number | None = None
-    sd: Number | None = None
-    shape: Number | None = None
-    rate: Number | None = None
-    bounds: tuple[Number, Number] | None = Field(None, description="[low, high] to truncate the prior to")
+    dist: Literal["uniform", "loguniform", "normal", "gamma"] = Field(
+        description="prior family: uniform and loguniform take low and high; normal mean and sd; gamma shape and rate"
+    )
+    low: Value | None = Field(None, description="uniform, loguniform: lower end")
+    high: Value | None = Field(None, description="uniform, loguniform: upper end")
+    mean: Value | None = Field(None, description="normal: mean")
+    sd: Value | None = Field(None, description="normal: standard deviation")
+    shape: Annotated[float, NumberOnly, unit("dimensionless")] | None = Field(None, description="gamma: shape")
+    rate: Annotated[float, NumberOnly, unit("1 / the unknown's unit")] | None = Field(
+        None, description="gamma: rate (1 / scale)"
+    )
+    bounds: tuple[Value, Value] | None = Field(None, description="[low, high] to truncate the prior to")
     multiply: bool = Field(False, description="multiply every number at the path by the value instead of replacing it")
 
     @property
@@ -106,21 +111,39 @@ class ObservedSpec(Strict):
     """The records to calibrate to."""
 
     path: str = Field(min_length=1, description="run directory or folder of observed tables, relative to this file")
-    first_day: WholeNumber = Field(0, description="day of the records where the calibration window starts")
+    first_day: Annotated[WholeNumber, unit("days")] = Field(
+        0, description="day of the records where the calibration window starts"
+    )
 
 
 class MethodSpec(Strict):
-    """The ABC method and its settings (each method's own keys only)."""
+    """The ABC method and its settings (each method's own keys only; a key left out takes the default named)."""
 
-    name: Literal["smc", "rejection"] = "smc"
-    particles: AtLeastTwo | None = None
-    generations: AtLeastOne | None = None
-    initial_draws: AtLeastTwo | None = None
-    quantile: OpenShare | None = None
-    max_simulations: AtLeastOne | None = None
-    draws: AtLeastTwo | None = None
-    accept: Share | None = None
-    regression: bool | None = None
+    name: Literal["smc", "rejection"] = Field(
+        "smc", description="ABC-SMC (population Monte Carlo), or rejection with a regression adjustment"
+    )
+    particles: Annotated[AtLeastTwo, unit("particles")] | None = Field(
+        None, description="smc: particles of every generation (default 200)"
+    )
+    generations: Annotated[AtLeastOne, unit("generations")] | None = Field(
+        None, description="smc: most generations, the first included (default 4)"
+    )
+    initial_draws: Annotated[AtLeastTwo, unit("runs")] | None = Field(
+        None, description="smc: prior draws of the first generation, at least particles (default 4 x particles)"
+    )
+    quantile: Annotated[OpenShare, unit("share")] | None = Field(
+        None, description="smc: each tolerance is this quantile of the last generation's distances (default 0.5)"
+    )
+    max_simulations: Annotated[AtLeastOne, unit("runs")] | None = Field(
+        None, description="smc: most runs of each later generation (default 20 x particles)"
+    )
+    draws: Annotated[AtLeastTwo, unit("runs")] | None = Field(None, description="rejection: prior draws (default 1000)")
+    accept: Annotated[Share, unit("share")] | None = Field(
+        None, description="rejection: share of draws kept, the nearest (default 0.1)"
+    )
+    regression: bool | None = Field(
+        None, description="rejection: local-linear regression adjustment of the kept draws (default true)"
+    )
 
 
 METHOD_KEYS = {
@@ -140,22 +163,30 @@ METHOD_DEFAULTS: dict[str, Any] = {
 class Calibration(Strict):
     """A whole calibration file."""
 
-    kind: Literal["calibration"] = "calibration"
-    name: str = Field(min_length=1, max_length=200)
-    note: str = ""
+    kind: Literal["calibration"] = Field("calibration", description="marks the file as a calibration")
+    name: str = Field(min_length=1, max_length=200, description="the calibration's name, shown in its outputs")
+    note: str = Field("", description="free text: what is fitted and why")
     world: str = Field(min_length=1, description="world file, relative to this file")
-    observed: ObservedSpec
-    days: AtLeastOne = Field(description="days in the calibration window")
-    warmup_days: WholeNumber = Field(0, description="days each candidate run simulates before the window")
-    seed: WholeNumber
-    priors: list[PriorSpec] = Field(min_length=1)
-    summaries: list[str] = Field(default_factory=lambda: list(DEFAULT_GROUPS), min_length=1)
-    method: MethodSpec = Field(default_factory=MethodSpec)
-    predictive_runs: WholeNumber = Field(20, description="fresh runs at posterior draws for the predictive check")
-    self_check: WholeNumber = Field(
+    observed: ObservedSpec = Field(description="the records to fit to")
+    days: Annotated[AtLeastOne, unit("days")] = Field(description="days in the calibration window")
+    warmup_days: Annotated[WholeNumber, unit("days")] = Field(
+        0, description="days each candidate run simulates before the window"
+    )
+    seed: Annotated[WholeNumber, unit("seed")] = Field(description="root seed of the draws and the candidate runs")
+    priors: list[PriorSpec] = Field(min_length=1, description="one prior per unknown")
+    summaries: list[str] = Field(
+        default_factory=lambda: list(DEFAULT_GROUPS), min_length=1,
+        description="groups of summary statistics compared between candidate runs and the records",
+        json_schema_extra={"items": {"enum": list(SUMMARY_GROUPS), "type": "string"}},
+    )
+    method: MethodSpec = Field(default_factory=MethodSpec, description="the ABC method and its settings")
+    predictive_runs: Annotated[WholeNumber, unit("runs")] = Field(
+        20, description="fresh runs at posterior draws for the predictive check"
+    )
+    self_check: Annotated[WholeNumber, unit("data sets")] = Field(
         100, description="pseudo-observed data sets of the coverage self-check (at least 50; 0 skips it, with a warning)"
     )
-    level: OpenShare = Field(0.9, description="credible level of every interval")
+    level: Annotated[OpenShare, unit("probability")] = Field(0.9, description="credible level of every interval")
 
 
 @dataclass(frozen=True, eq=False)

@@ -42,22 +42,22 @@ from typing import Annotated, Any, Literal
 
 from pydantic import Field
 
-from ..world.schema import Name, NumberOnly, Strict
+from ..world.fields import Name, NumberOnly, Strict, unit
 
 SAMPLED_DESIGNS = ("latin_hypercube", "sobol")
 
 
 WholeNumber = Annotated[int, Field(ge=0), NumberOnly]
 AtLeastOne = Annotated[int, Field(ge=1), NumberOnly]
-Bound = Annotated[int | float, NumberOnly]
+Bound = Annotated[int | float, NumberOnly, unit("the path's unit")]
 
 
 class Bundle(Strict):
     """A named level that changes several dotted paths of the world together (a policy bundle)."""
 
-    name: Name
+    name: Name = Field(description="the level's name in the run table and as a baseline")
     label: str = Field("", max_length=80, description="how briefings name the level (default: its name in words)")
-    note: str = ""
+    note: str = Field("", description="free text: what the bundle stands for")
     set: dict[str, Any] = Field(default_factory=dict, description="dotted path -> value; empty = the world as it is")
 
 
@@ -71,9 +71,11 @@ class Factor(Strict):
 
     name: Name | None = Field(None, description="column name; defaults to the path")
     path: str | None = Field(None, description="dotted path into the world, e.g. stations.gate_imaging.lanes")
-    levels: list[Any] | None = None
+    levels: list[Any] | None = Field(
+        None, description="values at the path; without a path, named bundles (each a mapping with name and set)"
+    )
     range: tuple[Bound, Bound] | None = Field(None, description="[low, high] for sampled designs")
-    baseline: Any = None
+    baseline: Any = Field(None, description="the level other points are compared with (a value or a bundle name)")
 
     @property
     def label(self) -> str:
@@ -84,17 +86,28 @@ class Factor(Strict):
 class Experiment(Strict):
     """A whole experiment file."""
 
-    kind: Literal["experiment"] = "experiment"
-    name: str = Field(min_length=1, max_length=200)
-    note: str = ""
+    kind: Literal["experiment"] = Field("experiment", description="marks the file (a top-level world: also does)")
+    name: str = Field(min_length=1, max_length=200, description="the experiment's name, shown in every output")
+    note: str = Field("", description="free text: what the experiment asks")
     world: str = Field(min_length=1, description="world file, relative to the experiment file")
-    days: AtLeastOne = Field(description="days each run summarises, after the warm-up")
-    warmup_days: WholeNumber = Field(0, description="days simulated first and left out of the summary")
-    replications: AtLeastOne
-    seed: WholeNumber = Field(description="root seed: replication seeds and sampled designs derive from it")
-    design: Literal["full_factorial", "one_at_a_time", "latin_hypercube", "sobol"] = "full_factorial"
-    samples: AtLeastOne | None = Field(None, description="design points of a sampled design")
-    factors: list[Factor] = Field(default_factory=list)
+    days: Annotated[AtLeastOne, unit("days")] = Field(description="days each run summarises, after the warm-up")
+    warmup_days: Annotated[WholeNumber, unit("days")] = Field(
+        0, description="days simulated first and left out of the summary"
+    )
+    replications: Annotated[AtLeastOne, unit("runs")] = Field(
+        description="runs of each design point, each with its own seed (common to every point)"
+    )
+    seed: Annotated[WholeNumber, unit("seed")] = Field(
+        description="root seed: replication seeds and sampled designs derive from it"
+    )
+    design: Literal["full_factorial", "one_at_a_time", "latin_hypercube", "sobol"] = Field(
+        "full_factorial", description="every combination of levels; one factor at a time from the baselines; "
+        "or samples of the factors' ranges"
+    )
+    samples: Annotated[AtLeastOne, unit("design points")] | None = Field(
+        None, description="design points of a sampled design (sobol: a power of two)"
+    )
+    factors: list[Factor] = Field(default_factory=list, description="what the experiment varies")
     calibration: str | None = Field(
         None,
         min_length=1,

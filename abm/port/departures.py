@@ -24,7 +24,8 @@ from dataclasses import dataclass
 import numba
 import numpy as np
 
-from ..world.schema import Departures, World
+from ..world.schema import World
+from ..world.timetable import Departures
 from .checks import sample_duration
 from .layout import DISTS
 from .traffic import MINUTES_PER_DAY

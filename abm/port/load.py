@@ -31,7 +31,8 @@ import pandas as pd
 from scipy.stats import norm
 
 from ..world.references import hours_of
-from ..world.schema import WEEKDAYS, World
+from ..world.schema import World
+from ..world.timetable import WEEKDAYS
 from ..world.words import GENERIC, Words, words_for
 from .departures import build_timetable
 from .layout import RULES, Layout, build_layout

@@ -18,15 +18,11 @@ import yaml
 from pydantic import BaseModel, ValidationError
 
 from ..errors import InputError
+from .fields import PATTERN_WORDS
 from .paths import PathProblem, apply_changes
 from .references import ReferenceProblem, check_references
-from .schema import CLOCK_PATTERN, NAME_PATTERN, World
+from .schema import World
 
-# What a pattern means, in words: a regular expression is no help to someone editing YAML.
-_PATTERN_WORDS = {
-    NAME_PATTERN: "expected a name of letters, digits, '_' or '-' (no spaces)",
-    CLOCK_PATTERN: "expected a clock time 'HH:MM' from '00:00' to '23:59'",
-}
 CLOCK_KEYS = ("time", "first", "last")  # keys whose values are clock times
 
 
@@ -305,8 +301,8 @@ def _describe(error: dict[str, Any], model: type[BaseModel], data: Any = None) -
         return path, "required key is missing"
     message = error["msg"]
     pattern = (error.get("ctx") or {}).get("pattern")
-    if kind == "string_pattern_mismatch" and pattern in _PATTERN_WORDS:
-        message = _PATTERN_WORDS[pattern]
+    if kind == "string_pattern_mismatch" and pattern in PATTERN_WORDS:
+        message = f"expected {PATTERN_WORDS[pattern]}"
     if message.startswith("Value error, "):
         message = message[len("Value error, ") :]
     if loc and loc[-1] == "[key]":

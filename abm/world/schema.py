@@ -11,30 +11,13 @@ from __future__ import annotations
 
 from typing import Annotated, Any, Literal
 
-from pydantic import BaseModel, BeforeValidator, ConfigDict, Field, field_validator, model_validator
+from pydantic import Field, field_validator, model_validator
 
-
-def _number_only(value: Any) -> Any:
-    """Refuse true/false and text where a number belongs (lax mode would read ``true`` as 1)."""
-    if isinstance(value, bool):
-        raise ValueError(f"expected a number, got {str(value).lower()}")
-    if isinstance(value, str):
-        raise ValueError(f"expected a number, got the text {value!r}")
-    return value
-
-
-NumberOnly = BeforeValidator(_number_only)  # shared by every file schema of the project
-# No quantity of a world reaches a billion in its unit (minutes, vehicles, people, utility); a larger number is a
-# typo, and one near the float or integer limits would overflow the engine's arithmetic (common practice, no source).
-LARGEST = 1e9
-Probability = Annotated[float, Field(ge=0.0, le=1.0), NumberOnly]
-NonNegative = Annotated[float, Field(ge=0.0, le=LARGEST), NumberOnly]
-Positive = Annotated[float, Field(gt=0.0, le=LARGEST), NumberOnly]
-Count = Annotated[int, Field(ge=0, le=int(LARGEST)), NumberOnly]
-Hour = Annotated[int, Field(ge=0, le=24), NumberOnly]
-NAME_PATTERN = r"^[A-Za-z0-9_\-]+$"
-CLOCK_PATTERN = r"^([01]\d|2[0-3]):[0-5]\d$"
-Name = Annotated[str, Field(min_length=1, max_length=80, pattern=NAME_PATTERN)]
+from .fields import (
+    Chance, Count, Days, HourOfDay, Lanes, Minutes, Multiplier, Name, NonNegative, NumberOnly, Payoff,
+    Positive, PositiveMinutes, Probability, PseudoCount, Share, Strict, Utility, Weight, unit,
+)
+from .timetable import Departures, Metres
 
 SHARE_TOLERANCE = 1e-6
 DEFAULT_KEY = "default"
@@ -44,14 +27,6 @@ MONTHS = ("jan", "feb", "mar", "apr", "may", "jun", "jul", "aug", "sep", "oct", 
 def covers_no_hour(span: tuple[int, int]) -> bool:
     """True for a [start, end) span with no hour in it: equal ends, or [24, 0] (24 wraps to 0)."""
     return span[0] % 24 == span[1] % 24 and not (span[0] == 0 and span[1] == 24)
-
-
-class Strict(BaseModel):
-    """Base for every section: unknown keys are errors, values are not coerced loosely."""
-
-    # Not strict=True: YAML gives lists where tuples are declared. Infinity and NaN are refused
-    # because no count, time or chance in a world can be infinite.
-    model_config = ConfigDict(extra="forbid", frozen=True, strict=False, allow_inf_nan=False)
 
 
 def _check_shares(values: dict[str, float], what: str) -> dict[str, float]:
@@ -64,14 +39,16 @@ def _check_shares(values: dict[str, float], what: str) -> dict[str, float]:
 class VehicleClass(Strict):
     """A kind of vehicle: its share of traffic and how many people can hide in one."""
 
-    name: Name
-    share: Probability
-    capacity: Count = Field(description="people who can hide in one vehicle")
-    risk_weight: Positive = Field(1.0, description="relative risk score used by targeted selection")
-    cargo: dict[Name, Probability] = Field(
+    name: Name = Field(description="the class's name, the key other sections use for it")
+    share: Share = Field(description="share of all vehicles in this class; the classes' shares sum to 1")
+    capacity: Annotated[Count, unit("people")] = Field(description="people who can hide in one vehicle")
+    risk_weight: Annotated[Positive, unit("relative weight")] = Field(
+        1.0, description="relative risk score used by targeted selection (its logarithm is the score)"
+    )
+    cargo: dict[Name, Share] = Field(
         default_factory=dict, description="share of this class's vehicles carrying each cargo type; empty: unstated"
     )
-    length_metres: Positive | None = Field(
+    length_metres: Metres | None = Field(
         None, description="length one vehicle takes on a departure measured in metres (departures.length_metres)"
     )
 
@@ -84,9 +61,13 @@ class VehicleClass(Strict):
 class Traffic(Strict):
     """Vehicle arrivals: a non-homogeneous Poisson stream by hour and weekday."""
 
-    vehicles_per_day: NonNegative
-    hourly_profile: list[NonNegative] = Field(min_length=24, max_length=24)
-    weekday_factors: list[NonNegative] = Field(
+    vehicles_per_day: Annotated[NonNegative, unit("vehicles per day")] = Field(
+        description="mean vehicles arriving on a day whose weekday factor is 1"
+    )
+    hourly_profile: list[Weight] = Field(
+        min_length=24, max_length=24, description="relative arrivals in each hour 00..23 (only ratios matter)"
+    )
+    weekday_factors: list[Annotated[NonNegative, unit("multiplier")]] = Field(
         default=[1.0] * 7, min_length=7, max_length=7, description="arrival multiplier per weekday, Monday first"
     )
 
@@ -101,14 +82,20 @@ class Traffic(Strict):
 class ServiceTime(Strict):
     """Distribution of a check's duration in minutes."""
 
-    dist: Literal["exponential", "deterministic", "lognormal", "gamma", "uniform"]
-    mean: Positive
-    cv: NonNegative = Field(0.0, description="coefficient of variation (lognormal, gamma)")
-    spread: NonNegative = Field(0.0, description="half-width as a share of the mean (uniform)")
-    class_factor: dict[str, Positive] = Field(
+    dist: Literal["exponential", "deterministic", "lognormal", "gamma", "uniform"] = Field(
+        description="distribution family of one check's duration"
+    )
+    mean: PositiveMinutes = Field(description="mean duration of one check")
+    cv: Annotated[NonNegative, unit("ratio")] = Field(
+        0.0, description="coefficient of variation, sd / mean (lognormal, gamma: must be > 0)"
+    )
+    spread: Annotated[NonNegative, unit("share of the mean")] = Field(
+        0.0, description="half-width of the range as a share of the mean (uniform: 0 < spread <= 1)"
+    )
+    class_factor: dict[str, Annotated[Positive, unit("multiplier")]] = Field(
         default_factory=dict, description="duration multiplier per vehicle class or 'default' (e.g. unloading)"
     )
-    cargo_factor: dict[str, Positive] = Field(
+    cargo_factor: dict[str, Annotated[Positive, unit("multiplier")]] = Field(
         default_factory=dict, description="duration multiplier per cargo type or 'default'"
     )
 
@@ -124,14 +111,14 @@ class ServiceTime(Strict):
 class CargoEffect(Strict):
     """How a cargo type confounds a method (e.g. gases given off or absorbed by produce, timber, paper)."""
 
-    detection_factor: NonNegative = Field(1.0, description="multiplies the detection chance (capped at 1)")
-    false_alarm_factor: NonNegative = Field(1.0, description="multiplies the false-alarm chance (capped at 1)")
+    detection_factor: Multiplier = Field(1.0, description="multiplies the detection chance (capped at 1)")
+    false_alarm_factor: Multiplier = Field(1.0, description="multiplies the false-alarm chance (capped at 1)")
 
 
 class WeatherEffect(Strict):
     """How one weather state changes a method (wind shakes a vehicle a motion sensor listens to)."""
 
-    false_alarm: Probability = Field(description="false-alarm chance in this weather, replacing the method's own")
+    false_alarm: Chance = Field(description="false-alarm chance in this weather, replacing the method's own")
 
 
 class Fatigue(Strict):
@@ -144,41 +131,58 @@ class Fatigue(Strict):
     duty) also counts as a rest.
     """
 
-    decay_minutes: Positive = Field(description="time constant of the exponential decay of sensitivity")
-    work_minutes: Positive = Field(description="work after which a lane must rest")
-    rest_minutes: Positive = Field(description="length of a rest")
+    decay_minutes: PositiveMinutes = Field(description="time constant of the exponential decay of sensitivity")
+    work_minutes: PositiveMinutes = Field(description="work after which a lane must rest")
+    rest_minutes: PositiveMinutes = Field(description="length of a rest")
 
 
 class CheckMethod(Strict):
     """A way of checking a vehicle: imaging, motion sensing, gas probe, dog team, manual search."""
 
-    name: Name
-    service: ServiceTime
-    detection: dict[str, Probability] = Field(
+    name: Name = Field(description="the method's name, which stations and fallbacks use")
+    service: ServiceTime = Field(description="how long one check takes")
+    detection: dict[str, Chance] = Field(
         description="chance that a check finds people hidden in a vehicle, per class or 'default'"
     )
-    false_alarm: Probability = Field(0.0, description="chance of an alarm on a vehicle when nobody is found")
+    false_alarm: Chance = Field(0.0, description="chance of an alarm on a vehicle when nobody is found")
     outdoor: bool = Field(False, description="suspended in the weather states listed in weather.suspend_outdoor")
     weather: dict[Name, WeatherEffect] = Field(default_factory=dict, description="effect per weather state")
     cargo: dict[Name, CargoEffect] = Field(default_factory=dict, description="effect per cargo type")
-    depth_factor: dict[Name, NonNegative] = Field(
+    depth_factor: dict[Name, Multiplier] = Field(
         default_factory=dict, description="detection multiplier per concealment depth level (default 1)"
     )
-    fatigue: Fatigue | None = None
+    fatigue: Fatigue | None = Field(None, description="the team tires and must rest; null: it never tires")
 
 
 class Selection(Strict):
-    """Which arriving vehicles a station checks."""
+    """Which arriving vehicles a primary station checks (a secondary one checks every vehicle referred to it).
 
-    rule: Literal["all", "fraction", "targeted", "queue_aware"] = "all"
-    fraction: Probability = 1.0
-    fraction_by_band: dict[str, Probability] = Field(default_factory=dict)
-    class_factor: dict[str, NonNegative] = Field(default_factory=dict)
-    threshold: float = Field(0.0, description="targeted: check when log(risk_weight) + noise exceeds this")
-    noise_sd: NonNegative = Field(1.0, description="targeted: spread of the risk-score noise")
-    queue_threshold: Count = Field(0, description="queue_aware: queue length at which the station is busy")
-    busy_fraction: Probability = Field(1.0, description="queue_aware: selection share while busy")
-    fallback_method: Name | None = Field(None, description="queue_aware: faster method used while busy")
+    ``fraction`` and ``queue_aware`` select each vehicle with the share of its
+    hour's band times its class factor (at most 1); ``targeted`` checks a vehicle
+    when log(its class's ``risk_weight``) plus normal noise exceeds ``threshold``.
+    """
+
+    rule: Literal["all", "fraction", "targeted", "queue_aware"] = Field(
+        "all", description="all vehicles; a share of them; targeted by risk score; a share that changes while busy"
+    )
+    fraction: Share = Field(1.0, description="fraction, queue_aware: share of vehicles selected")
+    fraction_by_band: dict[str, Share] = Field(default_factory=dict, description="fraction per time band, "
+                                               "replacing `fraction` in that band")
+    class_factor: dict[str, Multiplier] = Field(default_factory=dict, description="multiplies the selected share "
+                                                "per vehicle class (default 1)")
+    threshold: Annotated[float, unit("log risk score")] = Field(
+        0.0, description="targeted: check when log(risk_weight) + noise exceeds this; other rules ignore it"
+    )
+    noise_sd: Annotated[NonNegative, unit("log risk score")] = Field(
+        1.0, description="targeted: standard deviation of the normal risk-score noise"
+    )
+    queue_threshold: Annotated[Count, unit("vehicles")] = Field(
+        0, description="queue_aware: vehicles queueing on arrival from which the station is busy (at least 1)"
+    )
+    busy_fraction: Share = Field(1.0, description="queue_aware: share selected while busy, instead of `fraction`")
+    fallback_method: Name | None = Field(
+        None, description="queue_aware: faster method used while busy; null: the station's own"
+    )
 
     @model_validator(mode="after")
     def _rule_has_its_keys(self) -> "Selection":
@@ -188,14 +192,21 @@ class Selection(Strict):
 
 
 class Station(Strict):
-    """A place on the route where vehicles may be checked."""
+    """A place on the route where vehicles may be checked.
 
-    name: Name
-    role: Literal["primary", "secondary"] = "primary"
-    method: Name
-    lanes: Count = Field(description="physical lanes or bays: the most servers the roster can use")
-    travel_minutes: NonNegative = Field(0.0, description="driving time from the previous point on the route")
-    selection: Selection = Field(default_factory=Selection)
+    At every hour the lanes the teams on duty staff here may not add up to more
+    than ``lanes`` (``check`` names the teams and the hour); lanes that command
+    adds on a given day (a randomised posting, a reactive move) are capped at it.
+    """
+
+    name: Name = Field(description="the station's name, the key other sections use for it")
+    role: Literal["primary", "secondary"] = Field(
+        "primary", description="primary: on every vehicle's route; secondary: searches vehicles referred after an alarm"
+    )
+    method: Name = Field(description="check method used here, a name in `methods`")
+    lanes: Lanes = Field(description="physical lanes or bays: the most servers the roster can use")
+    travel_minutes: Minutes = Field(0.0, description="driving time from the previous point on the route")
+    selection: Selection = Field(default_factory=Selection, description="which vehicles the station checks")
     refer_to: Name | None = Field(None, description="secondary station that searches vehicles after an alarm")
     suspended_method: Name | None = Field(
         None, description="method used while the station's outdoor method is suspended; none: vehicles pass unchecked"
@@ -205,156 +216,29 @@ class Station(Strict):
 class Stop(Strict):
     """How a vehicle class uses a boarding point."""
 
-    share: Probability
-    dwell_minutes: NonNegative = 0.0
+    share: Chance = Field(description="chance that a vehicle of this class stops at the point")
+    dwell_minutes: Minutes = Field(
+        0.0, description="how long a stopping vehicle stands there; read but not yet used: it changes no result"
+    )
 
 
 class BoardingPoint(Strict):
     """A place where a person can get onto a vehicle."""
 
-    name: Name
-    before_station: Name = Field(description="first station downstream, or 'departure' after every station")
-    lead_minutes: NonNegative = Field(0.0, description="minutes before the vehicle reaches that station")
-    stops: dict[str, Stop]
-    interdiction: dict[str, Probability] = Field(
-        default_factory=dict, description="chance an attempt is stopped here, per time band or 'default'"
-    )
-    hazard: Probability = Field(0.0, description="how dangerous boarding here is for the person (0-1)")
-    effort: NonNegative = Field(0.0, description="cost of reaching this point, in utility units")
-
-
-WEEKDAYS = ("mon", "tue", "wed", "thu", "fri", "sat", "sun")  # day 0 of a run is a Monday
-Weekday = Literal["mon", "tue", "wed", "thu", "fri", "sat", "sun"]
-SERVICE_KINDS = ("sailing", "train", "convoy", "slot")
-
-
-def clock_minute(clock: str) -> int:
-    """Minutes after midnight of an HH:MM clock time."""
-    hours, minutes = clock.split(":")
-    return int(hours) * 60 + int(minutes)
-
-
-class Delay(Strict):
-    """How late a departure leaves when it is late: a chance per departure and a distribution of minutes."""
-
-    chance: Probability = Field(description="chance that a departure leaves late")
-    dist: Literal["exponential", "deterministic", "lognormal", "gamma", "uniform"] = Field(
-        "exponential", description="distribution of the minutes late, given late"
-    )
-    mean_minutes: Positive = Field(description="mean minutes late, given late")
-    cv: NonNegative = Field(0.0, description="coefficient of variation of the minutes late (lognormal, gamma)")
-    spread: NonNegative = Field(0.0, description="half-width as a share of the mean (uniform)")
-
-    @model_validator(mode="after")
-    def _shape_given(self) -> "Delay":
-        if self.dist in ("lognormal", "gamma") and self.cv <= 0:
-            raise ValueError(f"a {self.dist} delay needs cv > 0")
-        if self.dist == "uniform" and not 0 < self.spread <= 1:
-            raise ValueError("a uniform delay needs 0 < spread <= 1")
-        return self
-
-
-class ServiceTerms(Strict):
-    """What one departure (or a timetable's departures) carries; unset terms come from the departures section."""
-
-    days: list[Weekday] = Field(
-        default_factory=lambda: list(WEEKDAYS), min_length=1, description="weekdays it runs (day 0 is a Monday)"
-    )
-    capacity: Count | None = Field(None, description="vehicles it carries (unset: the departures section's)")
-    length_metres: Positive | None = Field(
-        None, description="metres of vehicles it carries, by the classes' length_metres (unset: the section's)"
-    )
-    cutoff_minutes: NonNegative | None = Field(
-        None, description="check-in closes this many minutes before it leaves (unset: the section's)"
-    )
-    delay: Delay | None = Field(None, description="its chance and minutes of delay (unset: the section's)")
-    cancellation: Probability | None = Field(None, description="chance it is cancelled on a day (unset: the section's)")
-
-
-class Service(ServiceTerms):
-    """One departure in the timetable, at a clock time on the weekdays it runs."""
-
-    time: str = Field(pattern=CLOCK_PATTERN, description="departure time, HH:MM")
-
-    @property
-    def minute(self) -> int:
-        return clock_minute(self.time)
-
-
-class Pattern(ServiceTerms):
-    """Departures generated from a first and last time and a headway, on the weekdays given.
-
-    A pattern whose last time is before its first runs past midnight: its
-    departures after midnight run on the next calendar day.
-    """
-
-    first: str = Field(pattern=CLOCK_PATTERN, description="first departure, HH:MM")
-    last: str = Field(pattern=CLOCK_PATTERN, description="last departure at or before this time, HH:MM")
-    headway_minutes: Annotated[float, Field(ge=1.0, le=1440.0), NumberOnly] = Field(
-        description="minutes between departures"
-    )
-
-    def minutes(self) -> list[int]:
-        """Minutes after midnight of the pattern's start day, ascending (past 1440 after midnight)."""
-        first, last = clock_minute(self.first), clock_minute(self.last)
-        if last < first:
-            last += 1440
-        count = int((last - first) // self.headway_minutes) + 1
-        return [int(round(first + i * self.headway_minutes)) for i in range(count)]
-
-
-class Departures(Strict):
-    """Scheduled departures (sailings, trains, convoys or slots) that vehicles leave on, with a check-in cut-off.
-
-    Departures are listed one by one (``services``), generated from patterns
-    (``timetable``), or both. Each carries vehicles up to ``capacity``, metres of
-    vehicles up to ``length_metres`` (using each class's ``length_metres``), or
-    both; may leave late by ``delay``; and may be cancelled, its vehicles then
-    leaving on the next departure with room.
-    """
-
-    service: Literal["sailing", "train", "convoy", "slot"] = Field(
-        "sailing", description="the word for one departure, used in every output"
-    )
-    services: list[Service] = Field(default_factory=list, description="departures listed one by one")
-    timetable: list[Pattern] = Field(default_factory=list, description="departures generated by headway")
-    capacity: Count | None = Field(None, description="vehicles per departure, unless a departure sets its own")
-    length_metres: Positive | None = Field(
-        None, description="metres of vehicles per departure, unless a departure sets its own"
-    )
-    cutoff_minutes: NonNegative = Field(30.0, description="check-in closes this many minutes before departure")
-    planned_minutes: NonNegative = Field(
-        60.0, description="expected minutes from arrival to check-in, used to book a departure"
-    )
-    delay: Delay | None = Field(None, description="chance and minutes of delay of every departure; unset: none")
-    cancellation: Probability = Field(0.0, description="chance a departure is cancelled on a day")
-
-    @model_validator(mode="after")
-    def _timetable_whole(self) -> "Departures":
-        if not self.services and not self.timetable:
-            raise ValueError("departures need at least one entry in services or timetable")
-        for entry in [*self.services, *self.timetable]:
-            if entry.capacity is None and entry.length_metres is None and self.capacity is None \
-                    and self.length_metres is None:
-                raise ValueError("every departure needs a capacity (vehicles) or length_metres: set one here or on it")
-        seen: set[tuple[int, int]] = set()
-        for weekday, minute, _ in self.week():
-            if (weekday, minute) in seen:
-                h, m = divmod(minute, 60)
-                raise ValueError(f"two departures at {h:02d}:{m:02d} on {WEEKDAYS[weekday]}")
-            seen.add((weekday, minute))
-        return self
-
-    def week(self) -> list[tuple[int, int, ServiceTerms]]:
-        """Every departure of the week as (weekday 0-6, minute of day, its terms), in week order."""
-        out = []
-        for entry in self.services:
-            out += [(WEEKDAYS.index(d), entry.minute, entry) for d in entry.days]
-        for pattern in self.timetable:
-            for d in pattern.days:
-                for minute in pattern.minutes():
-                    out.append(((WEEKDAYS.index(d) + minute // 1440) % 7, minute % 1440, pattern))
-        return sorted(out, key=lambda row: (row[0], row[1]))
+    name: Name = Field(description="the point's name, the key other sections use for it")
+    before_station: Name = Field(description="first primary station downstream, or 'departure' after every station")
+    lead_minutes: Minutes = Field(0.0, description=(
+        "how long before the vehicle reaches `before_station` it passes the point; people board only vehicles "
+        "passing while they wait, so this shifts which hour's traffic (and time band) an attempt meets"))
+    stops: dict[str, Stop] = Field(description="how each vehicle class stops here; a class not listed never stops")
+    interdiction: dict[str, Chance] = Field(default_factory=dict, description=(
+        "chance an attempt here is stopped before boarding (the operator's own security, fences, patrols outside "
+        "the roster), per time band or 'default'; teams' patrols add to it. Observed as an encounter, not a detection"))
+    hazard: Annotated[Probability, unit("hazard score")] = Field(0.0, description=(
+        "how dangerous boarding here is for the person; adaptive people weigh it by hazard_aversion, and every "
+        "briefing reports the hazard of where attempts move"))
+    effort: Utility = Field(0.0, description=(
+        "cost of reaching this point, subtracted from its utility under adaptive behaviour (static ignores it)"))
 
 
 class Weather(Strict):
@@ -363,9 +247,11 @@ class Weather(Strict):
     Day 0 is the first day of ``start_month``; the calendar has 365 days (no leap years).
     """
 
-    states: list[Name] = Field(min_length=1)
-    start_month: Annotated[int, Field(ge=1, le=12), NumberOnly] = 1
-    months: dict[str, dict[str, Probability]] = Field(
+    states: list[Name] = Field(min_length=1, description="names of the weather states")
+    start_month: Annotated[int, Field(ge=1, le=12), NumberOnly, unit("month")] = Field(
+        1, description="calendar month of day 0 (1 = January)"
+    )
+    months: dict[str, dict[str, Share]] = Field(
         description="share of days in each state, per month (jan..dec) or 'default'"
     )
     suspend_outdoor: list[Name] = Field(default_factory=list, description="states in which outdoor methods stop")
@@ -381,8 +267,8 @@ class Weather(Strict):
 class DepthLevel(Strict):
     """How deep in the load people hide; deeper is harder to find and more dangerous."""
 
-    name: Name
-    hazard: NonNegative = Field(
+    name: Name = Field(description="the level's name, which depth_factor and depth_shares use")
+    hazard: Annotated[NonNegative, unit("hazard score")] = Field(
         0.0, description="hazard added to the boarding point's for hiding this deep (their sum counts at most 1)"
     )
 
@@ -390,10 +276,12 @@ class DepthLevel(Strict):
 class Posting(Strict):
     """One alternative assignment of a flexible team; randomised command draws one a day."""
 
-    weight: NonNegative
-    hours: tuple[Hour, Hour]
-    lanes: dict[str, Count] = Field(default_factory=dict)
-    patrols: dict[str, Probability] = Field(default_factory=dict)
+    weight: Weight = Field(description="relative chance that command draws this posting on a day")
+    hours: tuple[HourOfDay, HourOfDay] = Field(description="[start, end) hour; end < start wraps past midnight")
+    lanes: dict[str, Lanes] = Field(default_factory=dict, description="lanes staffed at each station while on duty")
+    patrols: dict[str, Chance] = Field(
+        default_factory=dict, description="interdiction chance added at a boarding point while on duty"
+    )
 
     @model_validator(mode="after")
     def _shift_not_empty(self) -> "Posting":
@@ -405,10 +293,10 @@ class Posting(Strict):
 class Team(Strict):
     """An inspection team on a daily shift: lanes it staffs and points it patrols."""
 
-    name: Name
-    hours: tuple[Hour, Hour] = Field(description="[start, end) hour; end < start wraps past midnight")
-    lanes: dict[str, Count] = Field(default_factory=dict)
-    patrols: dict[str, Probability] = Field(
+    name: Name = Field(description="the team's name")
+    hours: tuple[HourOfDay, HourOfDay] = Field(description="[start, end) hour; end < start wraps past midnight")
+    lanes: dict[str, Lanes] = Field(default_factory=dict, description="lanes staffed at each station while on duty")
+    patrols: dict[str, Chance] = Field(
         default_factory=dict, description="interdiction chance added at a boarding point while on duty"
     )
     flexible: bool = Field(False, description="command may move this team's capacity")
@@ -424,16 +312,18 @@ class Team(Strict):
 class Reactive(Strict):
     """Reactive command: move flexible capacity toward where detections were recent."""
 
-    share: Probability = Field(0.3, description="share of flexible lane-hours and patrol moved each day")
-    smoothing: Probability = Field(0.2, description="weight of the newest day in the smoothed detection score")
+    share: Share = Field(0.3, description="share of flexible lane-hours and patrol moved each day")
+    smoothing: Share = Field(0.2, description="weight of the newest day in the smoothed detection score")
 
 
 class Roster(Strict):
     """The inspection teams and how command allocates them."""
 
-    teams: list[Team] = Field(min_length=1)
-    command: Literal["fixed", "reactive", "randomised"] = "fixed"
-    reactive: Reactive = Field(default_factory=Reactive)
+    teams: list[Team] = Field(min_length=1, description="inspection teams, each on a daily shift")
+    command: Literal["fixed", "reactive", "randomised"] = Field("fixed", description=(
+        "fixed: as rostered; reactive: flexible capacity moves toward recent detections; randomised: each flexible "
+        "team draws one of its postings a day"))
+    reactive: Reactive = Field(default_factory=Reactive, description="settings of reactive command")
 
     @model_validator(mode="after")
     def _command_has_what_it_moves(self) -> "Roster":
@@ -448,10 +338,10 @@ class Roster(Strict):
 class StaticChoice(Strict):
     """Fixed option probabilities, factorised as point x band x class (x depth) shares."""
 
-    point_shares: dict[str, Probability]
-    band_shares: dict[str, Probability]
-    class_shares: dict[str, Probability]
-    depth_shares: dict[str, Probability] = Field(
+    point_shares: dict[str, Share] = Field(description="share of attempts at each boarding point")
+    band_shares: dict[str, Share] = Field(description="share of attempts in each time band")
+    class_shares: dict[str, Share] = Field(description="share of attempts aiming at each vehicle class")
+    depth_shares: dict[str, Share] = Field(
         default_factory=dict, description="share of attempts hiding at each depth level; empty: all at the first"
     )
 
@@ -470,60 +360,78 @@ class Learning(Strict):
     exploration share.
     """
 
-    rationality: NonNegative = Field(2.0, description="lambda of the logit rule; 0 = uniform choice")
-    exploration: Probability = Field(0.05, description="share of choices made uniformly at random")
-    detection_cost: NonNegative = Field(5.0, description="utility lost when caught")
-    hazard_aversion: NonNegative = 1.0
-    band_waiting: dict[str, NonNegative] = Field(default_factory=dict, description="waiting cost per time band")
-    prior_caught: Positive = Field(1.0, description="Beta prior pseudo-count of being caught")
-    prior_crossed: Positive = Field(1.0, description="Beta prior pseudo-count of crossing")
-    forgetting: Annotated[float, Field(gt=0.0, le=1.0)] = Field(
+    rationality: Annotated[NonNegative, unit("per utility unit")] = Field(
+        2.0, description="lambda of the logit rule; 0 = uniform choice"
+    )
+    exploration: Share = Field(0.05, description="share of choices made uniformly at random")
+    detection_cost: Utility = Field(5.0, description="utility lost when caught")
+    hazard_aversion: Utility = Field(1.0, description="utility lost at hazard 1 (times the option's hazard)")
+    band_waiting: dict[str, Utility] = Field(default_factory=dict, description="waiting cost per time band")
+    prior_caught: PseudoCount = Field(1.0, description="Beta prior pseudo-count of being caught")
+    prior_crossed: PseudoCount = Field(1.0, description="Beta prior pseudo-count of crossing")
+    forgetting: Annotated[float, Field(gt=0.0, le=1.0), unit("factor per day")] = Field(
         0.98, description="daily decay of evidence; 1 = plain conjugate updating"
     )
-    own_weight: NonNegative = 1.0
-    peer_weight: NonNegative = 0.5
-    peer_delay_days: Count = 1
-    network_degree: Count = Field(4, description="peers each new group links to")
-    rumour_weight: NonNegative = Field(0.5, description="weight of one rumoured outcome against one's own")
-    rumour_delay_days: Count = 7
-    rumour_noise: NonNegative = Field(0.2, description="log-normal spread of the rumoured counts")
-    presence_weight: NonNegative = Field(0.0, description="weight of seen patrol presence as evidence of risk")
-    presence_noise: NonNegative = 0.1
+    own_weight: Annotated[NonNegative, unit("pseudo-count")] = Field(1.0, description="evidence of one's own outcome")
+    peer_weight: Annotated[NonNegative, unit("pseudo-count")] = Field(0.5, description="evidence of a peer's outcome")
+    peer_delay_days: Days = Field(1, description="days until a group's outcome reaches its peers (at least 1)")
+    network_degree: Annotated[Count, unit("groups")] = Field(4, description="peers each new group links to")
+    rumour_weight: Weight = Field(0.5, description="weight of one rumoured outcome against one's own")
+    rumour_delay_days: Days = Field(7, description="days until a day's outcomes circulate as rumour")
+    rumour_noise: Annotated[NonNegative, unit("sd of log")] = Field(
+        0.2, description="log-normal spread of the rumoured counts"
+    )
+    presence_weight: Multiplier = Field(0.0, description="weight of seen patrol presence as evidence of risk: "
+                                        "this times the patrol's interdiction chance adds to perceived risk")
+    presence_noise: Annotated[NonNegative, unit("chance")] = Field(
+        0.1, description="sd of the normal noise on the patrol chance a group sees"
+    )
 
 
 class Reinforcement(Strict):
     """Roth-Erev reinforcement learning (Erev & Roth 1998): propensities grow with payoffs."""
 
-    recency: Probability = Field(0.1, description="forgetting of past propensity each attempt")
-    experimentation: Probability = Field(0.2, description="share of payoff spread to other options")
-    initial_propensity: Positive = 1.0
-    payoff_crossed: NonNegative = 1.0
-    payoff_caught: NonNegative = 0.0
-    payoff_no_vehicle: NonNegative = 0.0
+    recency: Share = Field(0.1, description="share of every propensity forgotten at each attempt")
+    experimentation: Share = Field(0.2, description="share of payoff spread to other options")
+    initial_propensity: Annotated[Positive, unit("payoff units")] = Field(
+        1.0, description="every valid option's propensity at the start"
+    )
+    payoff_crossed: Payoff = Field(1.0, description="payoff of crossing")
+    payoff_caught: Payoff = Field(0.0, description="payoff of being detected or interdicted")
+    payoff_no_vehicle: Payoff = Field(0.0, description="payoff of finding no vehicle to board")
 
 
 class Deterrence(Strict):
     """Give-up and move-elsewhere chances that grow with each earlier encounter."""
 
-    give_up_step: Probability = 0.0
-    move_elsewhere_step: Probability = 0.0
+    give_up_step: Chance = Field(0.0, description="added to give_up for each encounter after the first")
+    move_elsewhere_step: Chance = Field(0.0, description="added to move_elsewhere for each encounter after the first")
 
 
 class Adversary(Strict):
     """The population of would-be crossers."""
 
-    arrivals_per_day: NonNegative = Field(description="new groups arriving in the area each day")
-    group_size: dict[int, Probability] = Field(default_factory=lambda: {1: 1.0})
-    attempt_chance: Probability = Field(description="daily chance a waiting group attempts")
-    return_delay_days: Count = 1
-    give_up: Probability = Field(0.0, description="chance of giving up after an encounter")
-    move_elsewhere: Probability = Field(0.0, description="chance of leaving for a route outside the model")
-    identification: Probability = Field(0.0, description="chance a person is identified at an encounter")
-    behaviour: Literal["static", "adaptive", "reinforcement"] = "static"
-    static: StaticChoice
-    adaptive: Learning = Field(default_factory=Learning)
-    reinforcement: Reinforcement = Field(default_factory=Reinforcement)
-    deterrence: Deterrence = Field(default_factory=Deterrence)
+    arrivals_per_day: Annotated[NonNegative, unit("groups per day")] = Field(
+        description="new groups arriving in the area each day"
+    )
+    group_size: dict[int, Share] = Field(
+        default_factory=lambda: {1: 1.0}, description="share of groups of each size (people, at least 1)"
+    )
+    attempt_chance: Chance = Field(description="daily chance a waiting group attempts")
+    return_delay_days: Days = Field(1, description="days after an encounter before a group tries again (at least 1)")
+    give_up: Chance = Field(0.0, description="chance of giving up after an encounter")
+    move_elsewhere: Chance = Field(0.0, description="chance of leaving for a route outside the model")
+    identification: Chance = Field(0.0, description=(
+        "chance that each person not yet identified is identified at an encounter (detection or interdiction) and "
+        "keeps a stable pseudonym in the observed records; capture-recapture estimators count repeat encounters "
+        "of identified people, so with 0 they have nothing to count"))
+    behaviour: Literal["static", "adaptive", "reinforcement"] = Field(
+        "static", description="how groups choose an option: fixed shares, learnt risk, or reinforcement"
+    )
+    static: StaticChoice = Field(description="option shares of static behaviour (given whatever the behaviour)")
+    adaptive: Learning = Field(default_factory=Learning, description="settings of adaptive behaviour")
+    reinforcement: Reinforcement = Field(default_factory=Reinforcement, description="settings of reinforcement")
+    deterrence: Deterrence = Field(default_factory=Deterrence, description="exit chances that grow per encounter")
 
     @field_validator("group_size")
     @classmethod
@@ -544,48 +452,55 @@ class Adversary(Strict):
 class Intervention(Strict):
     """A policy change from a given day: values set at dotted paths of the world."""
 
-    day: Count
-    name: str = Field(min_length=1, max_length=120)
+    day: Days = Field(description="day of the run from which the change holds (0 = the first, warm-up included)")
+    name: str = Field(min_length=1, max_length=120, description="what outputs call the change")
     set: dict[str, Any] = Field(min_length=1, description="dotted path -> new value, e.g. stations.gate_imaging.lanes")
 
 
 class AreaSelector(Strict):
     """Options matching every given field (an omitted field matches all)."""
 
-    point: Name | None = None
-    band: Name | None = None
-    vehicle_class: Name | None = None
+    point: Name | None = Field(None, description="boarding point; null: every point")
+    band: Name | None = Field(None, description="time band; null: every band")
+    vehicle_class: Name | None = Field(None, description="vehicle class; null: every class")
 
 
 class DisplacementAreas(Strict):
     """Response, buffer and control areas of options for the weighted displacement quotient."""
 
-    response: list[AreaSelector] = Field(min_length=1)
-    buffer: list[AreaSelector] = Field(default_factory=list)
-    control: list[AreaSelector] = Field(min_length=1)
+    response: list[AreaSelector] = Field(min_length=1, description="options the intervention targets")
+    buffer: list[AreaSelector] = Field(default_factory=list, description="options attempts may be displaced to")
+    control: list[AreaSelector] = Field(min_length=1, description="comparable options neither should touch")
 
 
 class World(Strict):
     """A whole crossing."""
 
-    name: str = Field(min_length=1, max_length=200)
-    note: str = ""
+    name: str = Field(min_length=1, max_length=200, description="the crossing's name, shown in every output")
+    note: str = Field("", description="free text: what the world is for, where its numbers come from")
     site: Literal["port", "terminal", "border", "crossing"] | None = Field(
         None, description="the word for the place in outputs; unset: port for sailings, terminal for other "
         "departures, border without departures"
     )
-    time_bands: dict[str, tuple[Hour, Hour]]
-    vehicle_classes: list[VehicleClass] = Field(min_length=1)
-    traffic: Traffic
-    methods: list[CheckMethod] = Field(min_length=1)
-    stations: list[Station] = Field(min_length=1)
-    boarding_points: list[BoardingPoint] = Field(min_length=1)
-    departures: Departures | None = None
-    roster: Roster
-    adversary: Adversary
-    interventions: list[Intervention] = Field(default_factory=list)
-    displacement: DisplacementAreas | None = None
-    weather: Weather | None = None
+    time_bands: dict[str, tuple[HourOfDay, HourOfDay]] = Field(description=(
+        "named parts of the day, each [start, end) hour (end < start wraps past midnight); every hour in one band"))
+    vehicle_classes: list[VehicleClass] = Field(min_length=1, description="kinds of vehicle; shares sum to 1")
+    traffic: Traffic = Field(description="how many vehicles arrive, and when")
+    methods: list[CheckMethod] = Field(min_length=1, description="ways of checking a vehicle")
+    stations: list[Station] = Field(min_length=1, description="places vehicles may be checked, in route order")
+    boarding_points: list[BoardingPoint] = Field(min_length=1, description="places people can get onto vehicles")
+    departures: Departures | None = Field(None, description=(
+        "scheduled departures (sailings, trains, convoys or slots) that vehicles leave on; null: vehicles leave "
+        "when cleared (a land border)"))
+    roster: Roster = Field(description="inspection teams and how command allocates them")
+    adversary: Adversary = Field(description="the would-be crossers and how they choose")
+    interventions: list[Intervention] = Field(
+        default_factory=list, description="policy changes from given days, in day order, at most one a day"
+    )
+    displacement: DisplacementAreas | None = Field(
+        None, description="areas for the weighted displacement quotient; null: it is not computed"
+    )
+    weather: Weather | None = Field(None, description="daily weather; null: none, outdoor methods never stop")
     depths: list[DepthLevel] = Field(
         default_factory=lambda: [DepthLevel(name="normal")],
         min_length=1,

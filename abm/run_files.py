@@ -25,7 +25,8 @@ class DamagedRun(InputError):
     """A run directory whose files do not match its record."""
 
 
-def _sha256(path: Path) -> str:
+def sha256_of(path: Path) -> str:
+    """The SHA-256 of a file, read in blocks."""
     digest = hashlib.sha256()
     with path.open("rb") as handle:
         for block in iter(lambda: handle.read(1 << 20), b""):
@@ -36,7 +37,7 @@ def _sha256(path: Path) -> str:
 def record_files(run_dir: Path) -> None:
     """Write ``files.json`` for every file now in ``run_dir`` (call it last, before the directory is published)."""
     files = sorted(p for p in run_dir.rglob("*") if p.is_file() and p.name != FILES_RECORD)
-    record = {p.relative_to(run_dir).as_posix(): {"bytes": p.stat().st_size, "sha256": _sha256(p)} for p in files}
+    record = {p.relative_to(run_dir).as_posix(): {"bytes": p.stat().st_size, "sha256": sha256_of(p)} for p in files}
     (run_dir / FILES_RECORD).write_text(json.dumps(record, indent=1, sort_keys=True) + "\n", encoding="utf-8")
 
 
@@ -64,7 +65,7 @@ def damage(run_dir: Path, only: Iterable[str] | None = None, digests: bool = Tru
             return f"{file}: missing from a complete run"
         if file.stat().st_size != expected.get("bytes"):
             return f"{file}: {file.stat().st_size} bytes where the run wrote {expected.get('bytes')} (cut short or changed)"
-        if digests and _sha256(file) != expected.get("sha256"):
+        if digests and sha256_of(file) != expected.get("sha256"):
             return f"{file}: its content changed since the run wrote it (SHA-256 differs)"
     return None
 

@@ -30,7 +30,6 @@ since; anything else in the way is refused before anything is written.
 
 from __future__ import annotations
 
-import hashlib
 import json
 import re
 from collections.abc import Callable, Iterator, Sequence
@@ -44,7 +43,7 @@ import pyarrow.parquet as pq
 
 from ..errors import InputError, refuse_unwritable
 from ..records import write_atomically, write_json
-from ..run_files import FILES_RECORD, require_whole
+from ..run_files import FILES_RECORD, require_whole, sha256_of
 from .lock import check_unlocked
 from .single import SUMMARY_SOURCES
 from .store import EXPERIMENT_FILE, RUNS_DIR, SUMMARY_TABLE
@@ -334,14 +333,6 @@ def unique_names(names: Sequence[str], reserved: Sequence[str] = (CONTENTS_SHEET
 
 
 # -- the output folder -------------------------------------------------------------------------
-def _sha256(path: Path) -> str:
-    digest = hashlib.sha256()
-    with path.open("rb") as handle:
-        for block in iter(lambda: handle.read(1 << 20), b""):
-            digest.update(block)
-    return digest.hexdigest()
-
-
 def _owned(out: Path) -> dict[str, dict[str, Any]]:
     """Files an earlier export wrote in ``out`` (name -> {"sha256", "format"}); refuses a foreign export.json."""
     path = out / EXPORT_RECORD
@@ -374,7 +365,7 @@ def check_out(out: Path, planned: Sequence[str]) -> dict[str, dict[str, Any]]:
             raise ExportError(f"--out {out}: {name} exists and was not written by undertow export; move it or choose "
                               "another --out (nothing was written)")
         digest = owned[name].get("sha256")
-        if digest is not None and (not path.is_file() or _sha256(path) != digest):
+        if digest is not None and (not path.is_file() or sha256_of(path) != digest):
             raise ExportError(f"--out {out}: {name} changed since undertow export wrote it; move it or choose another "
                               "--out (nothing was written)")
     return owned
@@ -492,7 +483,7 @@ def export(
     write_json(record, target / EXPORT_RECORD)
     _write(tables, fmt, target, planned, folder, show_progress)
     for name in planned:
-        files[name] = {"sha256": _sha256(target / name), "format": fmt}
+        files[name] = {"sha256": sha256_of(target / name), "format": fmt}
     _drop_stale(target, files, owned, planned, fmt)
     record["tables"] = [_describe(table, planned[i] if fmt == "csv" else planned[0], fmt)
                         for i, table in enumerate(tables)]
@@ -524,7 +515,7 @@ def _drop_stale(target: Path, files: dict[str, dict[str, Any]], owned: dict[str,
         if name in planned or entry.get("format") != fmt:
             continue
         path = target / name
-        if path.is_file() and entry.get("sha256") in (None, _sha256(path)):
+        if path.is_file() and entry.get("sha256") in (None, sha256_of(path)):
             path.unlink()
         files.pop(name, None)
 

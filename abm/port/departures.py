@@ -92,7 +92,7 @@ def _rows(dep: Departures) -> list[tuple]:
             terms.cutoff_minutes if terms.cutoff_minutes is not None else dep.cutoff_minutes,
             terms.cancellation if terms.cancellation is not None else dep.cancellation,
             delay.chance if delay else 0.0, DISTS.index(delay.dist) if delay else 0,
-            delay.mean_minutes if delay else 1.0, delay.cv if delay else 0.0, delay.spread if delay else 0.0,
+            delay.mean if delay else 1.0, delay.cv if delay else 0.0, delay.spread if delay else 0.0,
         ))
     return rows
 

@@ -8,9 +8,9 @@ docs/reference.md, which :mod:`abm.reference` generates from the schemas.
 
 from __future__ import annotations
 
-from typing import Annotated, Any
+from typing import Annotated, Any, Literal
 
-from pydantic import BaseModel, BeforeValidator, ConfigDict, Field
+from pydantic import BaseModel, BeforeValidator, ConfigDict, Field, model_validator
 
 
 def _number_only(value: Any) -> Any:
@@ -66,3 +66,26 @@ class Strict(BaseModel):
     # Not strict=True: YAML gives lists where tuples are declared. Infinity and NaN are refused
     # because no count, time or chance in a world can be infinite.
     model_config = ConfigDict(extra="forbid", frozen=True, strict=False, allow_inf_nan=False)
+
+
+class Duration(Strict):
+    """A distribution of minutes: its family, mean and shape (a check's duration, a departure's delay)."""
+
+    dist: Literal["exponential", "deterministic", "lognormal", "gamma", "uniform"] = Field(
+        description="distribution family of the minutes"
+    )
+    mean: PositiveMinutes = Field(description="mean minutes")
+    cv: Annotated[NonNegative, unit("ratio")] = Field(
+        0.0, description="coefficient of variation, sd / mean (lognormal, gamma: must be > 0)"
+    )
+    spread: Annotated[NonNegative, unit("share of the mean")] = Field(
+        0.0, description="half-width of the range as a share of the mean (uniform: 0 < spread <= 1)"
+    )
+
+    @model_validator(mode="after")
+    def _shape_given(self) -> "Duration":
+        if self.dist in ("lognormal", "gamma") and self.cv <= 0:
+            raise ValueError(f"a {self.dist} distribution of minutes needs cv > 0")
+        if self.dist == "uniform" and not 0 < self.spread <= 1:
+            raise ValueError("a uniform distribution of minutes needs 0 < spread <= 1")
+        return self

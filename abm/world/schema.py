@@ -14,7 +14,7 @@ from typing import Annotated, Any, Literal
 from pydantic import Field, field_validator, model_validator
 
 from .fields import (
-    Chance, Count, Days, HourOfDay, Lanes, Minutes, Multiplier, Name, NonNegative, NumberOnly, Payoff,
+    Chance, Count, Days, Duration, HourOfDay, Lanes, Minutes, Multiplier, Name, NonNegative, NumberOnly, Payoff,
     Positive, PositiveMinutes, Probability, PseudoCount, Share, Strict, Utility, Weight, unit,
 )
 from .timetable import Departures, Metres
@@ -79,33 +79,15 @@ class Traffic(Strict):
         return v
 
 
-class ServiceTime(Strict):
+class ServiceTime(Duration):
     """Distribution of a check's duration in minutes."""
 
-    dist: Literal["exponential", "deterministic", "lognormal", "gamma", "uniform"] = Field(
-        description="distribution family of one check's duration"
-    )
-    mean: PositiveMinutes = Field(description="mean duration of one check")
-    cv: Annotated[NonNegative, unit("ratio")] = Field(
-        0.0, description="coefficient of variation, sd / mean (lognormal, gamma: must be > 0)"
-    )
-    spread: Annotated[NonNegative, unit("share of the mean")] = Field(
-        0.0, description="half-width of the range as a share of the mean (uniform: 0 < spread <= 1)"
-    )
     class_factor: dict[str, Annotated[Positive, unit("multiplier")]] = Field(
         default_factory=dict, description="duration multiplier per vehicle class or 'default' (e.g. unloading)"
     )
     cargo_factor: dict[str, Annotated[Positive, unit("multiplier")]] = Field(
         default_factory=dict, description="duration multiplier per cargo type or 'default'"
     )
-
-    @model_validator(mode="after")
-    def _shape_given(self) -> "ServiceTime":
-        if self.dist in ("lognormal", "gamma") and self.cv <= 0:
-            raise ValueError(f"a {self.dist} service time needs cv > 0")
-        if self.dist == "uniform" and not 0 < self.spread <= 1:
-            raise ValueError("a uniform service time needs 0 < spread <= 1")
-        return self
 
 
 class CargoEffect(Strict):

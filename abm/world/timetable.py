@@ -11,9 +11,7 @@ from typing import Annotated, Literal
 
 from pydantic import Field, model_validator
 
-from .fields import (
-    CLOCK_PATTERN, Chance, Count, Minutes, NonNegative, NumberOnly, Positive, PositiveMinutes, Strict, unit,
-)
+from .fields import CLOCK_PATTERN, Chance, Count, Duration, Minutes, NumberOnly, Positive, Strict, unit
 
 Vehicles = Annotated[Count, unit("vehicles")]
 Metres = Annotated[Positive, unit("metres")]
@@ -29,28 +27,10 @@ def clock_minute(clock: str) -> int:
     return int(hours) * 60 + int(minutes)
 
 
-class Delay(Strict):
-    """How late a departure leaves when it is late: a chance per departure and a distribution of minutes."""
+class Delay(Duration):
+    """How late a departure leaves when it is late: a chance per departure, and the minutes late as a distribution."""
 
     chance: Chance = Field(description="chance that a departure leaves late")
-    dist: Literal["exponential", "deterministic", "lognormal", "gamma", "uniform"] = Field(
-        "exponential", description="distribution of the minutes late, given late"
-    )
-    mean_minutes: PositiveMinutes = Field(description="mean minutes late, given late")
-    cv: Annotated[NonNegative, unit("coefficient of variation")] = Field(
-        0.0, description="spread of the minutes late relative to their mean (lognormal, gamma)"
-    )
-    spread: Annotated[NonNegative, unit("share of the mean")] = Field(
-        0.0, description="half-width of the minutes late (uniform)"
-    )
-
-    @model_validator(mode="after")
-    def _shape_given(self) -> "Delay":
-        if self.dist in ("lognormal", "gamma") and self.cv <= 0:
-            raise ValueError(f"a {self.dist} delay needs cv > 0")
-        if self.dist == "uniform" and not 0 < self.spread <= 1:
-            raise ValueError("a uniform delay needs 0 < spread <= 1")
-        return self
 
 
 class ServiceTerms(Strict):

@@ -117,7 +117,7 @@ def test_metres_are_never_overfilled_in_a_run() -> None:
 def test_delays_change_only_when_vehicles_leave_and_reproduce_with_the_seed() -> None:
     base = with_departures(capacity=600, services=[{"time": "06:00"}, {"time": "18:00"}])
     late = with_departures(capacity=600, services=[{"time": "06:00"}, {"time": "18:00"}],
-                           delay={"chance": 0.3, "dist": "exponential", "mean_minutes": 40})
+                           delay={"chance": 0.3, "dist": "exponential", "mean": 40})
     model_base, days_base = run_days(base, 28)
     model_late, days_late = run_days(late, 28)
     _, days_again = run_days(late, 28)
@@ -162,7 +162,7 @@ def test_delay_draws_do_not_disturb_other_numbers() -> None:
     # A cancellation chance of zero still draws (the world sets a delay): arrivals and checks are those of the base.
     base, _ = run_days(with_departures(capacity=600, services=[{"time": "06:00"}]), 7, seed=11)
     drawn, _ = run_days(with_departures(capacity=600, services=[{"time": "06:00"}],
-                                        delay={"chance": 0.0, "mean_minutes": 10}), 7, seed=11)
+                                        delay={"chance": 0.0, "dist": "exponential", "mean": 10}), 7, seed=11)
     for name, table in base.records.observed_tables().items():
         pd.testing.assert_frame_equal(table, drawn.records.observed_tables()[name], obj=name)
 
@@ -170,7 +170,7 @@ def test_delay_draws_do_not_disturb_other_numbers() -> None:
 @pytest.mark.parametrize("bad, message", [
     ({"services": [], "timetable": []}, "at least one entry"),
     ({"timetable": [{"first": "06:00", "last": "08:00", "headway_minutes": 0.5}]}, "greater than or equal to 1"),
-    ({"delay": {"chance": 0.2, "dist": "gamma", "mean_minutes": 5}}, "needs cv > 0"),
+    ({"delay": {"chance": 0.2, "dist": "gamma", "mean": 5}}, "needs cv > 0"),
 ])
 def test_bad_departures_are_refused(bad: dict[str, Any], message: str) -> None:
     data = with_departures(capacity=10, services=[{"time": "12:00"}])

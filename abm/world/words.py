@@ -60,5 +60,5 @@ def words_for(world: World | None) -> Words:
         return GENERIC
     dep = world.departures
     service = getattr(dep, "service", "sailing") if dep is not None else "departure"  # main: dep.service
-    site = getattr(world, "site", None) or ("border" if dep is None else "port" if dep.service == "sailing" else "terminal")
+    site = getattr(world, "site", None) or ("border" if dep is None else "port" if service == "sailing" else "terminal")
     return Words(service=service, site=site)

@@ -52,6 +52,7 @@ from .layout import DEPARTURE, MONTH_OF_YEAR_DAY, Layout
 from .boarding import fitting_vehicles, stopping_of_class
 from .queues import board_sailings
 from .station import METHOD_COUNTERS, FifoCarry, MethodTables, StationPass, StationRules, VehicleState, check_station
+from .tallies import StationHours, departure_counts, station_hours
 from .traffic import MINUTES_PER_DAY, DayTraffic, generate_traffic
 
 SAILING_HORIZON_DAYS = 7  # sailings are looked up this many days ahead of the arrival day
@@ -130,6 +131,8 @@ class DayResult:
     weather: str  # the day's weather state ("" in a world without weather)
     method_rows: dict[str, np.ndarray]  # per method and cargo type: checks, alarms, and what truth says of them
     queue_wait: dict[int, np.ndarray] = field(default_factory=dict)  # station -> waits of checked vehicles
+    station_hours: list[StationHours] = field(default_factory=list)  # per station: waits, queue, lanes by hour
+    departures: dict[str, np.ndarray] | None = None  # per departure in the window: booked, left, missed
 
 
 class DayEngine:
@@ -161,6 +164,7 @@ class DayEngine:
         self.sailing_left: dict[int, np.ndarray] = {}
         self._tables: dict[int, MethodTables] = {}
         self._rules: dict[tuple[int, int, int, bool], StationRules] = {}
+        self.departure_counts: dict[str, np.ndarray] | None = None  # the last day's, set by _depart
 
     def change_layout(self, layout: Layout) -> None:
         """Take a changed policy (same stations and points); lanes keep their state, new lanes start free."""
@@ -294,6 +298,7 @@ class DayEngine:
         passes: list[StationPass] = []
         false_parts: list[tuple[np.ndarray, ...]] = []
         waits: dict[int, np.ndarray] = {}
+        hours: list[StationHours] = []
 
         for s in range(lay.station_method.shape[0]):
             secondary = bool(lay.station_secondary[s])
@@ -330,8 +335,10 @@ class DayEngine:
                 false_parts.append((done.end[empty], station_of, method_of, cls[rows_empty], cargo[rows_empty]))
             passes.append(done)
             waits[s] = (done.start - done.arrival)[done.checked]
+            hours.append(station_hours(s, done, staffed, day))  # tallies only: no draws
 
         self._board(attempts, result, DEPARTURE, np.arange(n), vehicles.ready, vehicles, traffic)
+        self.departure_counts = None
         leave, missed = self._depart(day, traffic, vehicles.ready)
         crossed = (result.outcome == PENDING) & (result.vehicle >= 0)
         result.outcome[crossed] = CROSSED
@@ -347,6 +354,8 @@ class DayEngine:
             weather=lay.weather_names[weather],
             method_rows=_method_rows(counters, lay),
             queue_wait=waits,
+            station_hours=hours,
+            departures=self.departure_counts,
         )
 
     def _interdict(self, day: int, attempts: Attempts, staffing: Staffing, result: AttemptResult) -> None:
@@ -445,6 +454,7 @@ class DayEngine:
         stranded = chosen < 0
         leave = np.where(stranded, np.nan, times[np.where(stranded, 0, chosen)])
         missed = stranded | (chosen > booked)
+        self.departure_counts = departure_counts(times, booked, chosen, left)  # for the records; no draws
         return leave, missed
 
 

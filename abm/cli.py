@@ -84,7 +84,10 @@ def print_summary(summary: dict, title: str) -> None:
     print("  (truth = simulated ground truth; observed = what an agency would hold. Model estimates, not counts.)")
 
 
-def _run_world(world_path: Path, days: int, seed: int, out: Path, argv: list[str], allow_large: bool = False) -> int:
+def _run_world(
+    world_path: Path, days: int, seed: int, out: Path, argv: list[str], allow_large: bool = False, warmup: int = 0
+) -> int:
+    """Simulate ``warmup`` + ``days`` days into ``out``; the summary covers the ``days`` after the warm-up."""
     from .experiment.batch import print_warning
     from .experiment.budget import SHOWN_VEHICLE_DAYS, Keys, PlanSize, busiest_day, refuse
     from .experiment.single import refuse_existing, run_to_directory
@@ -95,17 +98,21 @@ def _run_world(world_path: Path, days: int, seed: int, out: Path, argv: list[str
     world = load_world(world_path)
     refuse_existing(out)  # before the warnings, so a refused --out stays a one-line error
     refuse_unwritable(out)
-    size = PlanSize(1, days, busiest_day(world.model_dump(mode="json")))
-    refuse(size, Keys("traffic.vehicles_per_day", "--days", "--days"), out, allow_large,
+    size = PlanSize(1, warmup + days, busiest_day(world.model_dump(mode="json")))
+    days_key = "--days" if not warmup else "--days and --warmup"
+    refuse(size, Keys("traffic.vehicles_per_day", days_key, days_key), out, allow_large,
            lambda key, message: InputError(f"{key if key.startswith('--') else f'{world_path}: {key}'}: {message}"))
     if size.vehicle_days > SHOWN_VEHICLE_DAYS:
         print_warning(size.describe())
     for warning in load_report(world).warnings:
         print_warning(warning)
-    with progress(days, "days", "simulating") as bar:
-        summary = run_to_directory(world, file_hash(world_path), days, seed, out, command=argv, progress=bar.update)
-    print_summary(summary, f"{world.name}: {days} days, seed {seed} -> {out}")
-    if any(0 < iv.day < days for iv in world.interventions):
+    with progress(warmup + days, "days", "simulating") as bar:
+        summary = run_to_directory(world, file_hash(world_path), days, seed, out, command=argv, progress=bar.update,
+                                   warmup=warmup)
+    after = f" after a {warmup}-day warm-up (days {warmup}-{warmup + days - 1})" if warmup else ""
+    print_summary(summary, f"{world.name}: {days} days{after}, seed {seed} -> {out}")
+    # the comparison's before window starts after the warm-up, as the summary does
+    if any(warmup < iv.day < warmup + days for iv in world.interventions):
         from .analysis.displacement import write_displacement
 
         result = write_displacement(out)
@@ -123,7 +130,7 @@ def cmd_run(args: argparse.Namespace) -> int:
         article = "an" if kind[0] in "aeio" else "a"
         raise InputError(f"{world}: is {article} {kind} file; run it with undertow {command} {world} --out DIR")
     out = Path(args.out) if args.out else Path("outputs") / f"{world.parent.name or world.stem}-seed{args.seed}"
-    return _run_world(world, args.days, args.seed, out, ["undertow", *args.argv], args.allow_large)
+    return _run_world(world, args.days, args.seed, out, ["undertow", *args.argv], args.allow_large, args.warmup)
 
 
 DEMO_EXPERIMENT = REPO_WORLDS / "kestrel_quay" / "demo_experiment.yaml"
@@ -335,6 +342,7 @@ def _whole_number(minimum: int, what: str = "number") -> Callable[[str], int]:
 _positive_int = _whole_number(1)
 _seed = _whole_number(0, "seed")
 _non_negative_int = _whole_number(0)
+_warmup_days = _whole_number(0, "count of days")
 
 
 def _scheduler_address(text: str) -> str:
@@ -387,6 +395,11 @@ def build_parser() -> argparse.ArgumentParser:
     run.add_argument("world", help="world YAML file")
     run.add_argument("--days", type=_positive_int, default=365, help="operating days (default 365)")
     run.add_argument("--seed", type=_seed, default=0, help="root seed (default 0)")
+    run.add_argument(
+        "--warmup", type=_warmup_days, default=0, metavar="DAYS",
+        help="days simulated first and left out of the summary, as a batch's warmup_days (the records keep them; "
+             "default 0)",
+    )
     run.add_argument("--out", help="run directory to create (default outputs/WORLD-seedS)")
     run.add_argument("--allow-large", action="store_true", help=ALLOW_LARGE_HELP)
     run.set_defaults(func=cmd_run)

@@ -12,8 +12,12 @@ import os
 import sys
 from collections.abc import Callable, Sequence
 from pathlib import Path
+from typing import TYPE_CHECKING
 
 from .errors import InputError, refuse_unwritable
+
+if TYPE_CHECKING:
+    from .report.document import Document
 
 EXIT_OK, EXIT_FAULT, EXIT_INPUT, EXIT_INTERRUPTED = 0, 1, 2, 130
 
@@ -229,18 +233,50 @@ def _clear_previous_demo(out: Path) -> None:
     shutil.rmtree(out)
 
 
-def cmd_brief(args: argparse.Namespace) -> int:
-    """Write a batch folder's briefing: OUT/briefing.html (self-contained) and OUT/briefing.md with figures."""
-    from .analysis.policy_table import DelayLimits
-    from .report.briefing import brief, parse_formats
+BATCH_ONLY_OPTIONS = (("baseline", "--baseline"), ("max_delay_increase", "--max-delay-increase"),
+                      ("max_missed_increase", "--max-missed-increase"))
 
+
+def cmd_brief(args: argparse.Namespace) -> int:
+    """Write a briefing: a batch folder's (OUT/briefing.html and .md) or one run directory's report
+    (RUN_DIR/run_report.html and .md), each with its figures."""
+    from .experiment.store import EXPERIMENT_FILE
+    from .report.briefing import parse_formats
+    from .report.run_view import is_run_directory
+
+    out = Path(args.out)
     formats = parse_formats(args.format)
-    limits = DelayLimits(args.max_delay_increase / 100, args.max_missed_increase)
-    briefing, paths = brief(args.out, args.baseline, formats, limits, ["undertow", *args.argv], _brief_stage)
-    print(f"Bottom line (model estimates, not counts). {briefing.document.bottom_line}\n")
+    if not out.is_dir():
+        raise InputError(f"{out}: no such folder; give a run directory or a batch folder")
+    if (out / EXPERIMENT_FILE).is_file():
+        document, paths = _brief_batch(args, formats)
+    elif is_run_directory(out):
+        given = [option for name, option in BATCH_ONLY_OPTIONS if getattr(args, name) is not None]
+        if given:
+            raise InputError(f"{given[0]}: compares policies in a batch folder; {out} is one run directory")
+        from .report.run_report import brief_run
+
+        built, paths = brief_run(out, formats, ["undertow", *args.argv], _brief_stage)
+        document = built.document
+    else:
+        raise InputError(f"{out}: neither a run directory (no manifest.json with files.json, as undertow run writes) "
+                         f"nor a batch folder (no {EXPERIMENT_FILE}, as undertow batch and demo write)")
+    print(f"Bottom line (model estimates, not counts). {document.bottom_line}\n")
     for path in paths.values():
         print(path)
     return EXIT_OK
+
+
+def _brief_batch(args: argparse.Namespace, formats: tuple[str, ...]) -> tuple[Document, dict[str, Path]]:
+    """A batch folder's briefing, with the delay limits' defaults where none was given."""
+    from .analysis.policy_table import DelayLimits
+    from .report.briefing import brief
+
+    delay = 10.0 if args.max_delay_increase is None else args.max_delay_increase
+    missed = 1.0 if args.max_missed_increase is None else args.max_missed_increase
+    briefing, paths = brief(args.out, args.baseline, formats, DelayLimits(delay / 100, missed),
+                            ["undertow", *args.argv], _brief_stage)
+    return briefing.document, paths
 
 
 def _brief_stage(stage: str) -> None:
@@ -413,16 +449,17 @@ def build_parser() -> argparse.ArgumentParser:
     demo.add_argument("--workers", type=_positive_int, help="worker processes (default: one per CPU)")
     demo.set_defaults(func=cmd_demo)
 
-    brief = sub.add_parser("brief", help="write a briefing (HTML and Markdown) from a batch folder")
-    brief.add_argument("out", metavar="OUT", help="batch folder written by undertow batch or undertow demo")
+    brief = sub.add_parser("brief", help="write a briefing (HTML and Markdown) from a batch folder or one run")
+    brief.add_argument("out", metavar="OUT", help="batch folder written by undertow batch or undertow demo, or a "
+                       "run directory written by undertow run (a short report on that run)")
     brief.add_argument("--baseline", metavar="LEVEL", help="policy level to compare with (default: the experiment's)")
     brief.add_argument("--format", default="html,md", help="html, md or html,md (default)")
     brief.add_argument(
-        "--max-delay-increase", type=_non_negative_float, default=10.0, metavar="PERCENT",
+        "--max-delay-increase", type=_non_negative_float, metavar="PERCENT",
         help="delay limit: p95 time in port at most this much above the baseline's (default 10)",
     )
     brief.add_argument(
-        "--max-missed-increase", type=_non_negative_float, default=1.0, metavar="POINTS",
+        "--max-missed-increase", type=_non_negative_float, metavar="POINTS",
         help="delay limit: missed departures at most this many percentage points above the baseline's (default 1)",
     )
     brief.set_defaults(func=cmd_brief)

@@ -197,7 +197,8 @@ def departures_figure(by_time: pd.DataFrame, words: Words, window: str) -> Figur
                 label="left on it")
         top.set_ylabel("Vehicles a day (mean)")
         top.set_title(_t(f"Vehicles booked on each {words.service}, and those that left on it"))
-        top.legend(loc="lower right", frameon=True, framealpha=0.9)
+        top.set_ylim(0, 1.3 * max(float(by_time[["booked_per_day", "left_per_day"]].max().max()), 1.0))  # legend room
+        top.legend(loc="upper center", ncol=2, frameon=True, framealpha=0.9)
         # on its own scale: a few a day beside hundreds would not show
         bottom.bar(x, by_time["missed_per_day"], width=0.6, color=SERIES_COLOURS[0], hatch="//", edgecolor="white")
         bottom.set_ylabel("Vehicles a day (mean)")

@@ -300,8 +300,8 @@ def _resting_note(view: RunView) -> str:
         fatigue = methods[s.method].fatigue
         work, rest = (getattr(fatigue, "work_minutes", None), getattr(fatigue, "rest_minutes", None))
         if work and rest:
-            notes.append(f"{label(s.name)}'s teams rest {shown(rest)} minutes after {shown(work)} worked, so it is "
-                         f"busy at most about {percent(work / (work + rest))} of the time on duty")
+            notes.append(f"the teams at {label(s.name)} rest {shown(rest)} minutes after {shown(work)} worked, so "
+                         f"they are busy at most about {percent(work / (work + rest))} of their time on duty")
     return (" " + "; ".join(notes)[:1].upper() + "; ".join(notes)[1:] + ".") if notes else ""
 
 

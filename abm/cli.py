@@ -20,6 +20,9 @@ from .reference import FILE_KINDS as _KINDS
 if TYPE_CHECKING:
     from .world.words import Words
 
+if TYPE_CHECKING:
+    from .report.document import Document
+
 EXIT_OK, EXIT_FAULT, EXIT_INPUT, EXIT_INTERRUPTED = 0, 1, 2, 130
 
 
@@ -111,7 +114,10 @@ def print_summary(summary: dict, title: str, words: Words | None = None) -> None
     print("  (truth = simulated ground truth; observed = what an agency would hold. Model estimates, not counts.)")
 
 
-def _run_world(world_path: Path, days: int, seed: int, out: Path, argv: list[str], allow_large: bool = False) -> int:
+def _run_world(
+    world_path: Path, days: int, seed: int, out: Path, argv: list[str], allow_large: bool = False, warmup: int = 0
+) -> int:
+    """Simulate ``warmup`` + ``days`` days into ``out``; the summary covers the ``days`` after the warm-up."""
     from .experiment.batch import print_warning
     from .experiment.budget import SHOWN_VEHICLE_DAYS, Keys, PlanSize, busiest_day, refuse
     from .experiment.single import refuse_existing, run_to_directory
@@ -122,19 +128,23 @@ def _run_world(world_path: Path, days: int, seed: int, out: Path, argv: list[str
     world = load_world(world_path)
     refuse_existing(out)  # before the warnings, so a refused --out stays a one-line error
     refuse_unwritable(out)
-    size = PlanSize(1, days, busiest_day(world.model_dump(mode="json")))
-    refuse(size, Keys("traffic.vehicles_per_day", "--days", "--days"), out, allow_large,
+    size = PlanSize(1, warmup + days, busiest_day(world.model_dump(mode="json")))
+    days_key = "--days" if not warmup else "--days and --warmup"
+    refuse(size, Keys("traffic.vehicles_per_day", days_key, days_key), out, allow_large,
            lambda key, message: InputError(f"{key if key.startswith('--') else f'{world_path}: {key}'}: {message}"))
     if size.vehicle_days > SHOWN_VEHICLE_DAYS:
         print_warning(size.describe())
     for warning in load_report(world).warnings:
         print_warning(warning)
-    with progress(days, "days", "simulating") as bar:
-        summary = run_to_directory(world, file_hash(world_path), days, seed, out, command=argv, progress=bar.update)
+    with progress(warmup + days, "days", "simulating") as bar:
+        summary = run_to_directory(world, file_hash(world_path), days, seed, out, command=argv, progress=bar.update,
+                                   warmup=warmup)
+    after = f" after a {warmup}-day warm-up (days {warmup}-{warmup + days - 1})" if warmup else ""
     from .world.words import words_for
 
-    print_summary(summary, f"{world.name}: {days} days, seed {seed} -> {out}", words_for(world))
-    if any(0 < iv.day < days for iv in world.interventions):
+    print_summary(summary, f"{world.name}: {days} days{after}, seed {seed} -> {out}", words_for(world))
+    # the comparison's before window starts after the warm-up, as the summary does
+    if any(warmup < iv.day < warmup + days for iv in world.interventions):
         from .analysis.displacement import write_displacement
 
         result = write_displacement(out)
@@ -152,7 +162,7 @@ def cmd_run(args: argparse.Namespace) -> int:
         article = "an" if kind[0] in "aeio" else "a"
         raise InputError(f"{world}: is {article} {kind} file; run it with undertow {command} {world} --out DIR")
     out = Path(args.out) if args.out else Path("outputs") / f"{world.parent.name or world.stem}-seed{args.seed}"
-    return _run_world(world, args.days, args.seed, out, ["undertow", *args.argv], args.allow_large)
+    return _run_world(world, args.days, args.seed, out, ["undertow", *args.argv], args.allow_large, args.warmup)
 
 
 DEMO_EXPERIMENT = REPO_WORLDS / "kestrel_quay" / "demo_experiment.yaml"
@@ -251,18 +261,50 @@ def _clear_previous_demo(out: Path) -> None:
     shutil.rmtree(out)
 
 
-def cmd_brief(args: argparse.Namespace) -> int:
-    """Write a batch folder's briefing: OUT/briefing.html (self-contained) and OUT/briefing.md with figures."""
-    from .analysis.policy_table import DelayLimits
-    from .report.briefing import brief, parse_formats
+BATCH_ONLY_OPTIONS = (("baseline", "--baseline"), ("max_delay_increase", "--max-delay-increase"),
+                      ("max_missed_increase", "--max-missed-increase"))
 
+
+def cmd_brief(args: argparse.Namespace) -> int:
+    """Write a briefing: a batch folder's (OUT/briefing.html and .md) or one run directory's report
+    (RUN_DIR/run_report.html and .md), each with its figures."""
+    from .experiment.store import EXPERIMENT_FILE
+    from .report.briefing import parse_formats
+    from .report.run_view import is_run_directory
+
+    out = Path(args.out)
     formats = parse_formats(args.format)
-    limits = DelayLimits(args.max_delay_increase / 100, args.max_missed_increase)
-    briefing, paths = brief(args.out, args.baseline, formats, limits, ["undertow", *args.argv], _brief_stage)
-    print(f"Bottom line (model estimates, not counts). {briefing.document.bottom_line}\n")
+    if not out.is_dir():
+        raise InputError(f"{out}: no such folder; give a run directory or a batch folder")
+    if (out / EXPERIMENT_FILE).is_file():
+        document, paths = _brief_batch(args, formats)
+    elif is_run_directory(out):
+        given = [option for name, option in BATCH_ONLY_OPTIONS if getattr(args, name) is not None]
+        if given:
+            raise InputError(f"{given[0]}: compares policies in a batch folder; {out} is one run directory")
+        from .report.run_report import brief_run
+
+        built, paths = brief_run(out, formats, ["undertow", *args.argv], _brief_stage)
+        document = built.document
+    else:
+        raise InputError(f"{out}: neither a run directory (no manifest.json with files.json, as undertow run writes) "
+                         f"nor a batch folder (no {EXPERIMENT_FILE}, as undertow batch and demo write)")
+    print(f"Bottom line (model estimates, not counts). {document.bottom_line}\n")
     for path in paths.values():
         print(path)
     return EXIT_OK
+
+
+def _brief_batch(args: argparse.Namespace, formats: tuple[str, ...]) -> tuple[Document, dict[str, Path]]:
+    """A batch folder's briefing, with the delay limits' defaults where none was given."""
+    from .analysis.policy_table import DelayLimits
+    from .report.briefing import brief
+
+    delay = 10.0 if args.max_delay_increase is None else args.max_delay_increase
+    missed = 1.0 if args.max_missed_increase is None else args.max_missed_increase
+    briefing, paths = brief(args.out, args.baseline, formats, DelayLimits(delay / 100, missed),
+                            ["undertow", *args.argv], _brief_stage)
+    return briefing.document, paths
 
 
 def _brief_stage(stage: str) -> None:
@@ -388,6 +430,7 @@ def _whole_number(minimum: int, what: str = "number") -> Callable[[str], int]:
 _positive_int = _whole_number(1)
 _seed = _whole_number(0, "seed")
 _non_negative_int = _whole_number(0)
+_warmup_days = _whole_number(0, "count of days")
 
 
 def _scheduler_address(text: str) -> str:
@@ -444,6 +487,11 @@ def build_parser() -> argparse.ArgumentParser:
     run.add_argument("world", help="world YAML file")
     run.add_argument("--days", type=_positive_int, default=365, help="operating days (default 365)")
     run.add_argument("--seed", type=_seed, default=0, help="root seed (default 0)")
+    run.add_argument(
+        "--warmup", type=_warmup_days, default=0, metavar="DAYS",
+        help="days simulated first and left out of the summary, as a batch's warmup_days (the records keep them; "
+             "default 0)",
+    )
     run.add_argument("--out", help="run directory to create (default outputs/WORLD-seedS)")
     run.add_argument("--allow-large", action="store_true", help=ALLOW_LARGE_HELP)
     run.set_defaults(func=cmd_run)
@@ -457,16 +505,17 @@ def build_parser() -> argparse.ArgumentParser:
     demo.add_argument("--workers", type=_positive_int, help="worker processes (default: one per CPU)")
     demo.set_defaults(func=cmd_demo)
 
-    brief = sub.add_parser("brief", help="write a briefing (HTML and Markdown) from a batch folder")
-    brief.add_argument("out", metavar="OUT", help="batch folder written by undertow batch or undertow demo")
+    brief = sub.add_parser("brief", help="write a briefing (HTML and Markdown) from a batch folder or one run")
+    brief.add_argument("out", metavar="OUT", help="batch folder written by undertow batch or undertow demo, or a "
+                       "run directory written by undertow run (a short report on that run)")
     brief.add_argument("--baseline", metavar="LEVEL", help="policy level to compare with (default: the experiment's)")
     brief.add_argument("--format", default="html,md", help="html, md or html,md (default)")
     brief.add_argument(
-        "--max-delay-increase", type=_non_negative_float, default=10.0, metavar="PERCENT",
+        "--max-delay-increase", type=_non_negative_float, metavar="PERCENT",
         help="delay limit: p95 time at the crossing at most this much above the baseline's (default 10)",
     )
     brief.add_argument(
-        "--max-missed-increase", type=_non_negative_float, default=1.0, metavar="POINTS",
+        "--max-missed-increase", type=_non_negative_float, metavar="POINTS",
         help="delay limit: missed departures at most this many percentage points above the baseline's (default 1)",
     )
     brief.set_defaults(func=cmd_brief)

@@ -5,6 +5,9 @@ exit from the system. ``observed/`` follows :mod:`abm.observed` and holds only
 what an agency could know. ``daily.parquet`` carries daily KPIs and
 ``methods.parquet`` checks per operating day, method and cargo type with the
 day's weather; in both, columns that come from truth are prefixed ``truth_``.
+``queues.parquet`` holds each station's waits, queue length and lane use per
+calendar day and hour, and ``departures.parquet`` each departure's vehicles
+booked, left and missed (both observed: an operator's own logs would hold them).
 All people counts are persons (a group of three attempting once is three
 person-attempts); method counts are vehicles checked.
 
@@ -30,6 +33,7 @@ import pyarrow.parquet as pq
 from .observed import OBSERVED_COLUMNS, OBSERVED_DIR, conform
 from .port.day import OUTCOME_NAMES, DayResult
 from .port.layout import Layout
+from .port.tallies import StationHours
 from .port.traffic import MINUTES_PER_DAY
 
 TRUTH_DIR = "truth"
@@ -74,6 +78,67 @@ METHOD_COLUMNS: dict[str, str] = {
 }
 
 
+QUEUES_FILE = "queues.parquet"
+# One row per calendar day, hour and station (observed). Waits are of vehicles checked that reached the
+# station in the hour (minutes from reaching it to the check's start); queue_mean is the hour's time-average
+# number of vehicles waiting, measured from those same times (not Little's law); utilisation is lane-minutes
+# checking over lane-minutes on duty in the hour (NaN with none on duty, e.g. checks running past the last day).
+QUEUE_COLUMNS: dict[str, str] = {
+    "day": "int64",
+    "hour": "int64",
+    "station": "string",
+    "vehicles": "int64",
+    "checks": "int64",
+    "wait_mean_min": "float64",
+    "wait_p95_min": "float64",
+    "wait_max_min": "float64",
+    "queue_mean": "float64",
+    "busy_lane_minutes": "float64",
+    "staffed_lane_minutes": "float64",
+    "utilisation": "float64",
+}
+
+QUEUE_HOURS_FILE = "queue_hours.parquet"
+# The same per station and hour of the day, pooled over the days a run's summary covers (its warm-up left
+# out): percentiles over every checked vehicle of those days, queue_mean the mean over days of the hour's
+# time-average queue, utilisation the pooled ratio.
+QUEUE_HOUR_COLUMNS: dict[str, str] = {
+    "station": "string",
+    "hour": "int64",
+    "first_day": "int64",
+    "last_day": "int64",
+    "vehicles": "int64",
+    "checks": "int64",
+    "wait_mean_min": "float64",
+    "wait_p50_min": "float64",
+    "wait_p95_min": "float64",
+    "wait_max_min": "float64",
+    "queue_mean": "float64",
+    "busy_lane_minutes": "float64",
+    "staffed_lane_minutes": "float64",
+    "utilisation": "float64",
+}
+
+DEPARTURES_FILE = "departures.parquet"
+# One row per departure (day, timetabled time) up to the run's last day (observed): vehicles booked on it (the
+# first departure whose cut-off they could make as planned), vehicles that left on it, vehicles booked on it that
+# left later or not at all (missed), places and metres still free when it left (NaN where not counted), minutes
+# it left late, whether it was cancelled, and whether it left full. Empty without departures.
+DEPARTURE_COLUMNS: dict[str, str] = {
+    "day": "int64",
+    "time": "string",
+    "minute": "float64",
+    "booked": "int64",
+    "left": "int64",
+    "missed": "int64",
+    "places_left": "float64",
+    "metres_left": "float64",
+    "late_minutes": "float64",
+    "cancelled": "bool",
+    "full": "bool",
+}
+
+
 def _calendar(minute: np.ndarray) -> tuple[np.ndarray, np.ndarray]:
     """Absolute minutes to (calendar day, minute of that day)."""
     day = np.floor(minute / MINUTES_PER_DAY)
@@ -96,6 +161,9 @@ class RecordBook:
     _time_in_port: list[np.ndarray] = field(default_factory=list)
     _missed: list[np.ndarray] = field(default_factory=list)
     _waits: dict[int, list[np.ndarray]] = field(default_factory=dict)
+    _wait_hours: dict[int, list[np.ndarray]] = field(default_factory=dict)  # absolute hour of each wait
+    _station_hours: list[StationHours] = field(default_factory=list)
+    _departures: list[dict[str, np.ndarray]] = field(default_factory=list)
     _next_attempt: int = 0
 
     def arrival(self, agent_id: int, day: int, persons: int) -> None:
@@ -170,6 +238,11 @@ class RecordBook:
         self._missed.append(result.missed)
         for s, w in result.queue_wait.items():
             self._waits.setdefault(s, []).append(w.astype(np.float32))
+        for tally in result.station_hours:
+            self._station_hours.append(tally)
+            self._wait_hours.setdefault(tally.station, []).append(tally.wait_hour.astype(np.int32))
+        if result.departures is not None:
+            self._departures.append(result.departures)
         tip = result.time_in_port[np.isfinite(result.time_in_port)]
         p50, p95 = (float(q) for q in np.percentile(tip, [50, 95])) if tip.size else (float("nan"), float("nan"))
 
@@ -287,6 +360,120 @@ class RecordBook:
         names = self.layout.world.station_names
         return {names[s]: np.concatenate(w) for s, w in self._waits.items()}
 
+    def queue_table(self) -> pd.DataFrame:
+        """Waits, queue length and lane use per calendar day, hour and station (every day; see QUEUE_COLUMNS)."""
+        if not self._station_hours:
+            return _empty(QUEUE_COLUMNS)
+        cells = _hour_cells(self._station_hours)
+        t = cells.join(_wait_stats(self._wait_frame(), ["abs_hour", "station"], (0.95,))).reset_index()
+        table = pd.DataFrame({
+            "day": t["abs_hour"] // 24,
+            "hour": t["abs_hour"] % 24,
+            "station": np.array(self.layout.world.station_names, dtype=object)[t["station"]],
+            "vehicles": t["vehicles"],
+            "checks": t["checks"],
+            "wait_mean_min": t["mean"],
+            "wait_p95_min": t["p95"],
+            "wait_max_min": t["max"],
+            "queue_mean": t["waiting_minutes"] / 60.0,
+            "busy_lane_minutes": t["busy_minutes"],
+            "staffed_lane_minutes": t["staffed_minutes"],
+            "utilisation": t["busy_minutes"] / t["staffed_minutes"].where(t["staffed_minutes"] > 0),
+        })
+        return table.astype(QUEUE_COLUMNS)
+
+    def queue_hours_table(self, first_day: int, last_day: int) -> pd.DataFrame:
+        """QUEUE_HOUR_COLUMNS: per station and hour of the day, pooled over days ``first_day``..``last_day``."""
+        if not self._station_hours:
+            return _empty(QUEUE_HOUR_COLUMNS)
+        cells = _hour_cells(self._station_hours).reset_index()
+        cells = cells[(cells["abs_hour"] // 24).between(first_day, last_day)]
+        sums = cells.assign(hour=cells["abs_hour"] % 24).groupby(["station", "hour"], sort=True).sum()
+        waits = self._wait_frame()
+        waits = waits[(waits["abs_hour"] // 24).between(first_day, last_day)]
+        t = sums.join(_wait_stats(waits.assign(hour=waits["abs_hour"] % 24), ["station", "hour"], (0.5, 0.95)))
+        t = t.reset_index()
+        days = last_day - first_day + 1
+        table = pd.DataFrame({
+            "station": np.array(self.layout.world.station_names, dtype=object)[t["station"]],
+            "hour": t["hour"],
+            "first_day": first_day,
+            "last_day": last_day,
+            "vehicles": t["vehicles"],
+            "checks": t["checks"],
+            "wait_mean_min": t["mean"],
+            "wait_p50_min": t["p50"],
+            "wait_p95_min": t["p95"],
+            "wait_max_min": t["max"],
+            "queue_mean": t["waiting_minutes"] / (60.0 * days),
+            "busy_lane_minutes": t["busy_minutes"],
+            "staffed_lane_minutes": t["staffed_minutes"],
+            "utilisation": t["busy_minutes"] / t["staffed_minutes"].where(t["staffed_minutes"] > 0),
+        })
+        return table.astype(QUEUE_HOUR_COLUMNS)
+
+    def _wait_frame(self) -> pd.DataFrame:
+        """Every checked vehicle's wait (minutes) with its station and the absolute hour it reached it."""
+        stations = sorted(self._waits)
+        waits = [np.concatenate(self._waits[s]) for s in stations]
+        hours = [np.concatenate(self._wait_hours[s]) if s in self._wait_hours else np.zeros(0, np.int32)
+                 for s in stations]
+        if any(w.shape != h.shape for w, h in zip(waits, hours)):
+            raise ValueError("queue waits and their hours are out of step (a day recorded without its station hours)")
+        return pd.DataFrame({
+            "station": np.concatenate([np.full(w.shape[0], s, dtype=np.int64) for s, w in zip(stations, waits)]),
+            "abs_hour": np.concatenate(hours).astype(np.int64),
+            "wait": np.concatenate(waits).astype(np.float64),
+        })
+
+    def departures_table(self) -> pd.DataFrame:
+        """Each departure up to the run's last day: vehicles booked, left and missed (DEPARTURE_COLUMNS)."""
+        if not self._departures or not self._daily:
+            return _empty(DEPARTURE_COLUMNS)
+        keys = ("minute", "booked", "left", "missed", "places_left", "metres_left", "late_minutes", "cancelled", "full")
+        frame = pd.DataFrame({k: np.concatenate([d[k] for d in self._departures]) for k in keys})
+        # a departure appears in the look-ahead of several days; places only fall, so the least is the last
+        t = frame.groupby("minute", sort=True).agg(
+            booked=("booked", "sum"), left=("left", "sum"), missed=("missed", "sum"), places_left=("places_left", "min"),
+            metres_left=("metres_left", "min"), late_minutes=("late_minutes", "first"), cancelled=("cancelled", "first"),
+            full=("full", "max"),
+        ).reset_index()
+        day = np.floor(t["minute"] / MINUTES_PER_DAY).astype(np.int64)
+        t = t[day <= self._daily[-1]["day"]]  # later ones still take bookings: not whole
+        day = day[t.index]
+        clock = t["minute"] - day * MINUTES_PER_DAY
+        t.insert(0, "time", [f"{int(m // 60):02d}:{int(round(m % 60)):02d}" for m in clock])
+        t.insert(0, "day", day)
+        return t[list(DEPARTURE_COLUMNS)].reset_index(drop=True).astype(DEPARTURE_COLUMNS)
+
+
+def _empty(columns: dict[str, str]) -> pd.DataFrame:
+    """A table with no rows and the given columns."""
+    return pd.DataFrame({col: pd.Series(dtype=dtype) for col, dtype in columns.items()})
+
+
+def _hour_cells(tallies: list[StationHours]) -> pd.DataFrame:
+    """Station tallies summed per (absolute hour, station): a check past midnight meets the next day's rows."""
+    frame = pd.DataFrame({
+        "abs_hour": np.concatenate([t.hour for t in tallies]),
+        "station": np.concatenate([np.full(t.hour.shape[0], t.station, dtype=np.int64) for t in tallies]),
+        "vehicles": np.concatenate([t.vehicles for t in tallies]),
+        "checks": np.concatenate([t.checks for t in tallies]),
+        "waiting_minutes": np.concatenate([t.waiting_minutes for t in tallies]),
+        "busy_minutes": np.concatenate([t.busy_minutes for t in tallies]),
+        "staffed_minutes": np.concatenate([t.staffed_minutes for t in tallies]),
+    })
+    return frame.groupby(["abs_hour", "station"], sort=True).sum()
+
+
+def _wait_stats(waits: pd.DataFrame, keys: list[str], quantiles: tuple[float, ...]) -> pd.DataFrame:
+    """Mean, maximum and percentiles (linear interpolation, as numpy's) of ``wait`` per group of ``keys``."""
+    grouped = waits.groupby(keys, sort=True)["wait"]
+    stats = grouped.agg(["mean", "max"])
+    for q in quantiles:
+        stats[f"p{round(q * 100)}"] = grouped.quantile(q)
+    return stats
+
 
 # -- writing ----------------------------------------------------------------------------
 def _private_tmp(path: Path) -> Path:
@@ -323,13 +510,15 @@ def write_json(data: Any, path: Path) -> None:
 
 
 def write_records(book: RecordBook, out: Path) -> None:
-    """Write truth/, observed/, daily.parquet and methods.parquet under ``out``."""
+    """Write truth/, observed/, daily.parquet, methods.parquet, queues.parquet and departures.parquet under ``out``."""
     for name, frame in book.truth_tables().items():
         write_parquet(frame, out / TRUTH_DIR / f"{name}.parquet")
     for name, frame in book.observed_tables().items():
         write_parquet(frame, out / OBSERVED_DIR / f"{name}.parquet")
     write_parquet(book.daily_table(), out / "daily.parquet")
     write_parquet(book.methods_table(), out / METHODS_FILE)
+    write_parquet(book.queue_table(), out / QUEUES_FILE)
+    write_parquet(book.departures_table(), out / DEPARTURES_FILE)
 
 
 def read_truth(run_dir: str | Path) -> dict[str, pd.DataFrame]:

@@ -16,6 +16,9 @@ import pytest
 import yaml
 
 from abm.cli import main
+from abm.experiment.single import SUMMARY_LABELS
+from abm.world import load_world
+from abm.world.words import words_for
 
 ROOT = Path(__file__).resolve().parents[1]
 DEMO = ROOT / "worlds" / "kestrel_quay" / "world.yaml"
@@ -140,10 +143,13 @@ def test_run_prints_the_summary_table(first_run):
     lines = text.splitlines()
     assert "5 days, seed 1" in lines[0] and str(first_run["out"]) in lines[0]
     summary = json.loads((first_run["out"] / "summary.json").read_text(encoding="utf-8"))
-    for key in SUMMARY_KEYS:
-        row = next((line for line in lines if line.split() and line.split()[0] == key), None)
-        assert row is not None, f"table has no row for {key}"
+    words = words_for(load_world(ROOT / "worlds/kestrel_quay/world.yaml"))
+    for key in SUMMARY_KEYS:  # each figure by its display label, in the world's words, with its record set
+        label = words.fill(SUMMARY_LABELS[key])
+        row = next((line for line in lines if line.strip().startswith(label + "  ")), None)
+        assert row is not None, f"table has no row for {key} ({label})"
         assert row.split()[-1] == summary["sources"][key]
+    assert "Time in port, 95th percentile (minutes)" in text and "Missed sailings (share of vehicles)" in text
     assert f"{summary['vehicles']:,}" in text
     assert "Traceback" not in first_run["stderr"]
 

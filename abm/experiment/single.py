@@ -7,6 +7,10 @@ Layout of a run directory::
     truth/*.parquet   simulated truth (attempts, arrivals, exits)
     observed/*.parquet  what an agency holds (see abm.observed)
     daily.parquet     daily KPIs (truth_ columns from truth)
+    methods.parquet   checks per day, method and cargo type
+    queues.parquet    each station's waits, queue length and lane use per day and hour
+    queue_hours.parquet  the same per station and hour of the day over the summarised days
+    departures.parquet   each departure's vehicles booked, left and missed
     summary.json      the run's headline figures, each labelled truth or observed
 
 The directory is written under a temporary name and renamed when complete, so a
@@ -28,7 +32,7 @@ import pandas as pd
 
 from ..errors import InputError
 from ..model import PortModel
-from ..records import RecordBook, write_json, write_records
+from ..records import QUEUE_HOURS_FILE, RecordBook, write_json, write_parquet, write_records
 from ..run_files import record_files
 from ..world.schema import World
 
@@ -238,6 +242,8 @@ def run_to_directory(
     staging = out.with_name(f".{out.name}.{uuid.uuid4().hex[:12]}.partial")
     try:
         write_records(model.records, staging)
+        # pooled over the days the summary covers, so its percentiles leave the warm-up out as the summary does
+        write_parquet(model.records.queue_hours_table(warmup, warmup + days - 1), staging / QUEUE_HOURS_FILE)
         summary = summarise(model.records, days, warmup)
         write_json(summary, staging / "summary.json")
         write_json(world.model_dump(mode="json"), staging / WORLD_FILE)

@@ -53,6 +53,7 @@ from .departures import DepartureBoard, build_timetable
 from .layout import DEPARTURE, MONTH_OF_YEAR_DAY, Layout
 from .boarding import fitting_vehicles, stopping_of_class
 from .station import METHOD_COUNTERS, FifoCarry, MethodTables, StationPass, StationRules, VehicleState, check_station
+from .tallies import StationHours, station_hours
 from .traffic import MINUTES_PER_DAY, DayTraffic, generate_traffic
 
 # Outcome codes of an attempt.
@@ -129,6 +130,8 @@ class DayResult:
     weather: str  # the day's weather state ("" in a world without weather)
     method_rows: dict[str, np.ndarray]  # per method and cargo type: checks, alarms, and what truth says of them
     queue_wait: dict[int, np.ndarray] = field(default_factory=dict)  # station -> waits of checked vehicles
+    station_hours: list[StationHours] = field(default_factory=list)  # per station: waits, queue, lanes by hour
+    departures: dict[str, np.ndarray] | None = None  # per departure in the window: booked, left, missed
 
 
 class DayEngine:
@@ -280,6 +283,7 @@ class DayEngine:
         passes: list[StationPass] = []
         false_parts: list[tuple[np.ndarray, ...]] = []
         waits: dict[int, np.ndarray] = {}
+        hours: list[StationHours] = []
 
         for s in range(lay.station_method.shape[0]):
             secondary = bool(lay.station_secondary[s])
@@ -316,6 +320,7 @@ class DayEngine:
                 false_parts.append((done.end[empty], station_of, method_of, cls[rows_empty], cargo[rows_empty]))
             passes.append(done)
             waits[s] = (done.start - done.arrival)[done.checked]
+            hours.append(station_hours(s, done, staffed, day))  # tallies only: no draws
 
         self._board(attempts, result, DEPARTURE, np.arange(n), vehicles.ready, vehicles, traffic)
         departed = self.departures.depart(day, traffic.arrival, vehicles.ready, traffic.vehicle_class)
@@ -334,6 +339,8 @@ class DayEngine:
             weather=lay.weather_names[weather],
             method_rows=_method_rows(counters, lay),
             queue_wait=waits,
+            station_hours=hours,
+            departures=departed.counts,
         )
 
     def _interdict(self, day: int, attempts: Attempts, staffing: Staffing, result: AttemptResult) -> None:

@@ -28,6 +28,7 @@ from ..world.schema import World
 from ..world.timetable import Departures
 from .checks import sample_duration
 from .layout import DISTS
+from .tallies import departure_counts
 from .traffic import MINUTES_PER_DAY
 
 HORIZON_DAYS = 7  # departures are looked up this many days ahead of the arrival day
@@ -101,6 +102,7 @@ def _rows(dep: Departures) -> list[tuple]:
 class DayDepartures:
     """One calendar day's departures: when they close and leave, and the room left on them."""
 
+    scheduled: np.ndarray  # absolute minute it is timetabled to leave
     close: np.ndarray  # absolute minute check-in closes
     leave: np.ndarray  # absolute minute it leaves (timetabled time plus any delay)
     places: np.ndarray  # vehicles it can still take
@@ -114,6 +116,7 @@ class Departed:
 
     leave: np.ndarray  # absolute minute; NaN for a vehicle no departure in the horizon had room for
     missed: np.ndarray  # bool: left later than booked, or stranded
+    counts: dict[str, np.ndarray] | None = None  # per departure in view (departure_counts); None without departures
 
 
 class DepartureBoard:
@@ -141,7 +144,7 @@ class DepartureBoard:
                 cancelled = u_cancel < tt.cancel[w]
                 late = np.where(u_late < tt.delay_chance[w], unit, 0.0)
             self.days[day] = DayDepartures(
-                close=minute - tt.cutoff[w], leave=minute + late,
+                scheduled=minute, close=minute - tt.cutoff[w], leave=minute + late,
                 places=np.where(cancelled, 0.0, tt.capacity[w]), metres=np.where(cancelled, 0.0, tt.metres[w]),
                 cancelled=cancelled,
             )
@@ -170,7 +173,13 @@ class DepartureBoard:
         stranded = chosen < 0
         leave_at = np.concatenate([d.leave for d in window])
         leave = np.where(stranded, np.nan, leave_at[np.where(stranded, 0, chosen)])
-        return Departed(leave=leave, missed=stranded | (chosen > booked))
+        scheduled = np.concatenate([d.scheduled for d in window])
+        shortest = float(self.timetable.class_length.min()) if self.timetable.class_length.size else 0.0
+        counts = departure_counts(
+            scheduled, booked, chosen, places, metres, leave_at - scheduled,
+            np.concatenate([d.cancelled for d in window]), (places < 1.0) | (metres < max(shortest, 1e-9)),
+        )  # for the records; no draws
+        return Departed(leave=leave, missed=stranded | (chosen > booked), counts=counts)
 
 
 @numba.njit(cache=True)

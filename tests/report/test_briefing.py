@@ -15,9 +15,7 @@ from __future__ import annotations
 import base64
 import json
 import math
-import os
 import re
-import shutil
 import subprocess
 from dataclasses import dataclass
 from html.parser import HTMLParser
@@ -38,6 +36,10 @@ from abm.experiment.batch import run_batch
 from abm.experiment.design import load_plan
 from abm.report.store_view import load_batch
 
+from .browser import PROBE, require_chromium
+from .browser import chromium_args as _chromium_args
+from .browser import probe as _probe
+
 ROOT = Path(__file__).resolve().parents[2]
 DEMO_WORLD = ROOT / "worlds" / "kestrel_quay" / "world.yaml"
 DEMO_EXPERIMENT = ROOT / "worlds" / "kestrel_quay" / "demo_experiment.yaml"
@@ -46,7 +48,6 @@ MARKUP_NOTE = "image <em>twice</em> as many [see](javascript:alert(1)) ![x](http
 SECTIONS = {"question", "answer", "headline", "comparison", "assumptions", "figures", "estimators", "limitations", "method"}
 FIGURES = {"frontier", "displacement", "daily", "estimators"}
 PNG_SIGNATURE = b"\x89PNG\r\n\x1a\n"
-CHROMIUM = "/usr/bin/chromium"
 
 
 @dataclass(frozen=True)
@@ -415,46 +416,8 @@ def test_demo_experiment_supports_a_briefing() -> None:
 
 # -- a real browser ----------------------------------------------------------------------------------------------
 
-# Written into a copy of the page, before its Content-Security-Policy, so it may run: on load it records
-# whether each image decoded, any error events, and any resource the page fetched.
-PROBE = """<script>
-window.__probeErrors = [];
-window.addEventListener("error", function (e) { window.__probeErrors.push(String(e.message || e.type)); }, true);
-window.addEventListener("load", function () {
-  var images = Array.prototype.slice.call(document.images);
-  var out = document.createElement("pre");
-  out.id = "probe-result";
-  out.textContent = JSON.stringify({
-    images: images.length,
-    undecoded: images.filter(function (i) { return !(i.complete && i.naturalWidth > 0); })
-                     .map(function (i) { return i.alt; }),
-    errors: window.__probeErrors,
-    fetched: performance.getEntriesByType("resource").map(function (r) { return r.name; })
-  });
-  document.body.appendChild(out);
-});
-</script>"""
-
-
-def _chromium_args(profile: Path) -> list[str]:
-    return [CHROMIUM, "--headless", "--no-sandbox", "--disable-gpu", "--disable-quic", "--no-first-run",
-            "--disable-background-networking", "--disable-component-update", "--disable-sync",
-            f"--user-data-dir={profile}"]
-
-
-def _probe(page: Path, profile: Path) -> dict[str, Any]:
-    done = subprocess.run([*_chromium_args(profile), "--virtual-time-budget=10000", "--dump-dom", page.as_uri()],
-                          capture_output=True, text=True, timeout=120, check=True)
-    found = re.search(r'<pre id="probe-result">(.*?)</pre>', done.stdout, flags=re.S)
-    assert found, "the probe script wrote nothing into the page"
-    return json.loads(found.group(1).replace("&quot;", '"').replace("&amp;", "&"))
-
-
 def test_a_headless_browser_shows_every_image(briefed: Briefed, tmp_path: Path) -> None:
-    if not Path(CHROMIUM).is_file() or shutil.which("chromium") is None:
-        if os.environ.get("CI") == "true":
-            pytest.fail("chromium is not installed; .ci/run installs it with apt-get")
-        pytest.skip("headless Chromium (Debian package chromium) is not installed; apt-get install chromium")
+    require_chromium()
     probed = tmp_path / "probed.html"
     probed.write_text(briefed.html.replace("<head>", "<head>\n" + PROBE, 1), encoding="utf-8")
     result = _probe(probed, tmp_path / "profile-probe")

@@ -69,6 +69,9 @@ ABOUT = {
     "estimator_check": "each estimator against the truth it targets, per run",
     "daily": "daily figures; truth_ columns are simulated truth",
     "methods": "checks per day, method and cargo; truth_ columns are simulated truth",
+    "queues": "waits, queue lengths and lane use per day, hour and station (observed)",
+    "queue_hours": "waits, queue lengths and lane use per station and hour of day, after the warm-up (observed)",
+    "departures": "each departure: vehicles booked, left and missed, room left, delay, cancellation (observed)",
 }
 
 

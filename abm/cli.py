@@ -18,10 +18,8 @@ from .errors import InputError, refuse_unwritable
 from .reference import FILE_KINDS as _KINDS
 
 if TYPE_CHECKING:
-    from .world.words import Words
-
-if TYPE_CHECKING:
     from .report.document import Document
+    from .world.words import Words
 
 EXIT_OK, EXIT_FAULT, EXIT_INPUT, EXIT_INTERRUPTED = 0, 1, 2, 130
 
@@ -124,6 +122,7 @@ def _run_world(
     from .port.load import load_report
     from .progress import progress
     from .world import file_hash, load_world
+    from .world.words import words_for
 
     world = load_world(world_path)
     refuse_existing(out)  # before the warnings, so a refused --out stays a one-line error
@@ -140,8 +139,6 @@ def _run_world(
         summary = run_to_directory(world, file_hash(world_path), days, seed, out, command=argv, progress=bar.update,
                                    warmup=warmup)
     after = f" after a {warmup}-day warm-up (days {warmup}-{warmup + days - 1})" if warmup else ""
-    from .world.words import words_for
-
     print_summary(summary, f"{world.name}: {days} days{after}, seed {seed} -> {out}", words_for(world))
     # the comparison's before window starts after the warm-up, as the summary does
     if any(warmup < iv.day < warmup + days for iv in world.interventions):
@@ -384,6 +381,7 @@ def cmd_calibrate(args: argparse.Namespace) -> int:
 
 
 def cmd_new(args: argparse.Namespace) -> int:
+    """Write a starting world of a kind of crossing, or an experiment for a world; never over a file."""
     from .starter import experiment_text, world_text, write_new
 
     out = Path(args.out)
@@ -395,7 +393,7 @@ def cmd_new(args: argparse.Namespace) -> int:
         write_new(out, experiment_text(Path(args.world), out), "experiment")
         print(f"Wrote {out}: an experiment comparing today's roster with two example changes. "
               f"Next: edit the policies, then `undertow check {out}` and `undertow batch {out} --out FOLDER`.")
-    return 0
+    return EXIT_OK
 
 
 def cmd_optimise(args: argparse.Namespace) -> int:

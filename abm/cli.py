@@ -83,9 +83,6 @@ def cmd_schema(args: argparse.Namespace) -> int:
     return EXIT_OK
 
 
-REPO_WORLDS = Path(__file__).resolve().parent.parent / "worlds"
-
-
 def print_summary(summary: dict, title: str, words: Words | None = None) -> None:
     """A short readable table of a run's headline figures, in display labels, each with its record set."""
     from .experiment.single import METHOD_LABELS, SUMMARY_LABELS
@@ -162,8 +159,8 @@ def cmd_run(args: argparse.Namespace) -> int:
     return _run_world(world, args.days, args.seed, out, ["undertow", *args.argv], args.allow_large, args.warmup)
 
 
-DEMO_EXPERIMENT = REPO_WORLDS / "kestrel_quay" / "demo_experiment.yaml"
-DEMO_CALIBRATION = REPO_WORLDS / "kestrel_quay" / "calibration.yaml"
+DEMO_EXPERIMENT = "kestrel_quay/demo_experiment.yaml"  # in the shipped worlds (abm.starter.shipped_worlds)
+DEMO_CALIBRATION = "kestrel_quay/calibration.yaml"
 DEMO_RECORD = "demo.json"  # marks a folder as a demo's, so a later demo may replace it
 # Where the summary extension of batches and the demo (cached_estimates) lives, for the pool's server to preload.
 BATCH_EXTENSION_MODULES = ("abm.analysis.estimator_check",)
@@ -178,6 +175,14 @@ def _interrupted(command: str, out: str | Path) -> int:
 def cmd_demo(args: argparse.Namespace) -> int:
     """The whole job on the demo world: calibrate to the agency extract, compare policies under it, brief."""
     _start_pool_server("processes", None, BATCH_EXTENSION_MODULES)
+    from .starter import shipped_worlds
+
+    with shipped_worlds() as worlds:
+        return _demo(args, worlds / DEMO_EXPERIMENT, worlds / DEMO_CALIBRATION)
+
+
+def _demo(args: argparse.Namespace, experiment: Path, calibration_file: Path) -> int:
+    """The demo's three stages, from the shipped experiment and calibration files."""
     from .analysis.estimator_check import cached_estimates
     from .calibration.config import load_calibration
     from .calibration.run import run_calibration
@@ -186,13 +191,10 @@ def cmd_demo(args: argparse.Namespace) -> int:
     from .records import write_json
     from .report.briefing import brief
 
-    for needed in (DEMO_EXPERIMENT, DEMO_CALIBRATION):
-        if not needed.exists():
-            raise InputError(f"{needed}: the demo's files are not here; run from a checkout of the project")
     out = Path(args.out)
     refuse_unwritable(out)
     calibration_out, batch_out = out / "calibration", out / "batch"
-    plan = load_calibration(DEMO_CALIBRATION)
+    plan = load_calibration(calibration_file)
     resume = args.resume and _is_earlier_demo_of(out, plan.digest())
     if not resume:
         _clear_previous_demo(out)
@@ -209,7 +211,7 @@ def cmd_demo(args: argparse.Namespace) -> int:
         print(f"undertow demo: 2/3 comparing policies with the unknowns drawn from that posterior -> {batch_out}",
               flush=True)
         # cached_estimates adds the store's est_ columns, as undertow batch does
-        result = run_batch(DEMO_EXPERIMENT, batch_out, "processes", args.workers, None, resume, command,
+        result = run_batch(experiment, batch_out, "processes", args.workers, None, resume, command,
                            extensions=(cached_estimates,), calibration=calibration_out, on_warning=print_warning)
     except KeyboardInterrupt:
         return _interrupted("demo", out)
@@ -382,10 +384,14 @@ def cmd_calibrate(args: argparse.Namespace) -> int:
 
 def cmd_new(args: argparse.Namespace) -> int:
     """Write a starting world of a kind of crossing, or an experiment for a world; never over a file."""
-    from .starter import experiment_text, world_text, write_new
+    from .starter import copy_example, experiment_text, world_text, write_new
 
     out = Path(args.out)
-    if args.what == "world":
+    if args.what == "example":
+        files = copy_example(args.name, out)
+        print(f"Copied the example world {args.name} to {out} ({len(files)} files; fictional, numbers invented and "
+              f"illustrative). Next: `undertow check {out / 'world.yaml'}`.")
+    elif args.what == "world":
         write_new(out, world_text(args.kind), f"{args.kind} world")
         print(f"Wrote {out}: a {args.kind} world to start from; every number in it is invented and illustrative. "
               f"Next: replace the numbers with your own, then `undertow check {out}`.")
@@ -455,9 +461,32 @@ ALLOW_LARGE_HELP = ("start a plan above the size ceilings (e.g. for a cluster); 
                     "worker's memory or the disk")
 
 
+def version_text() -> str:
+    """This package's version and those that make records reproducible (the same versions give the same bytes)."""
+    from importlib import metadata
+
+    def of(name: str) -> str:
+        try:
+            return metadata.version(name)
+        except metadata.PackageNotFoundError:
+            return "not installed"
+
+    return (f"undertow {of('undertow')} (python {sys.version.split()[0]}; records depend on numpy {of('numpy')}, "
+            f"numba {of('numba')}, mesa {of('mesa')}, pyarrow {of('pyarrow')})")
+
+
+class _Version(argparse.Action):
+    """``--version``: one unwrapped line, computed only when asked."""
+
+    def __call__(self, parser: argparse.ArgumentParser, *_: object) -> None:
+        print(version_text())
+        parser.exit(EXIT_OK)
+
+
 def build_parser() -> argparse.ArgumentParser:
     """The argument parser with every sub-command."""
     parser = _Parser(prog="undertow", description=__doc__.splitlines()[0])
+    parser.add_argument("--version", action=_Version, nargs=0, help="print the versions and exit")
     sub = parser.add_subparsers(dest="command", required=True, parser_class=_Parser)
 
     check = sub.add_parser("check", help="validate world, experiment, calibration and optimisation files")
@@ -545,7 +574,7 @@ def build_parser() -> argparse.ArgumentParser:
     estimate.add_argument("--seed", type=_seed, help="seed for the expansions' bootstrap intervals (default: none)")
     estimate.set_defaults(func=cmd_estimate)
 
-    new = sub.add_parser("new", help="write a commented starting file: a world of a kind, or an experiment")
+    new = sub.add_parser("new", help="write a starting file: a world of a kind, an experiment, or a shipped example")
     new_files = new.add_subparsers(dest="what", required=True, parser_class=_Parser)
     new_world = new_files.add_parser("world", help="a fictional starting world that check accepts")
     new_world.add_argument("--kind", choices=["ferry", "rail", "land"], required=True,
@@ -554,6 +583,11 @@ def build_parser() -> argparse.ArgumentParser:
     new_experiment = new_files.add_parser("experiment", help="an experiment for a world: its roster against two changes")
     new_experiment.add_argument("world", metavar="WORLD.yaml", help="the world file the experiment runs")
     new_experiment.add_argument("out", metavar="OUT.yaml", help="file to create (never overwritten)")
+    new_example = new_files.add_parser("example", help="a copy of a shipped example world's folder to edit")
+    new_example.add_argument("name", choices=["kestrel_quay", "stonechat_rail", "corran_ridge"],
+                             help="kestrel_quay (ferry, the demo, with its agency extract), stonechat_rail (rail), "
+                                  "corran_ridge (land border)")
+    new_example.add_argument("out", metavar="FOLDER", help="folder to create (never overwritten)")
     new.set_defaults(func=cmd_new)
 
     export = sub.add_parser(

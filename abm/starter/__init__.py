@@ -1,15 +1,22 @@
 """Starter files: commented, valid, fictional worlds and experiments to begin from (``undertow new``).
 
-The worlds are YAML files shipped beside this module, one per kind of crossing
-(a ferry port, a rail freight terminal, a land border); each passes ``check``
-and its load report shows no overload. An experiment is written for a given
-world: today's roster against two changes built from that world's own stations
-and teams, so its paths always exist.
+The starter worlds are YAML files shipped beside this module, one per kind of
+crossing (a ferry port, a rail freight terminal, a land border); each passes
+``check`` and its load report shows no overload. An experiment is written for
+a given world: today's roster against two changes built from that world's own
+stations and teams, so its paths always exist. The shipped example worlds
+(``abm/worlds``: the demo's Kestrel Quay with its agency extract, Stonechat Rail,
+Corran Ridge) are package data too, read through :mod:`importlib.resources`, so
+an installed wheel has them: :func:`copy_example` puts one where a user can
+edit it, and the demo reads its own from there.
 """
 
 from __future__ import annotations
 
 import os
+import shutil
+from collections.abc import Iterator
+from contextlib import contextmanager
 from importlib import resources
 from pathlib import Path
 
@@ -19,6 +26,24 @@ from ..world import load_world
 from ..world.schema import World
 
 KINDS = ("ferry", "rail", "land")
+EXAMPLES = ("kestrel_quay", "stonechat_rail", "corran_ridge")  # the shipped example worlds, one of each kind
+
+
+@contextmanager
+def shipped_worlds() -> Iterator[Path]:
+    """The folder of shipped example worlds (``abm/worlds``), as a real path while the context lasts."""
+    with resources.as_file(resources.files("abm") / "worlds") as folder:
+        yield Path(folder)
+
+
+def copy_example(name: str, out: Path) -> list[Path]:
+    """Copy a shipped example world's folder (world, experiments, any extract) to a new folder ``out``."""
+    if out.exists() or out.is_symlink():
+        raise InputError(f"{out}: already exists; choose a new folder for the example (nothing was overwritten)")
+    refuse_unwritable(out, "OUT")
+    with shipped_worlds() as worlds:
+        shutil.copytree(worlds / name, out, ignore=shutil.ignore_patterns("__pycache__"))
+    return sorted(p for p in out.rglob("*") if p.is_file())
 
 
 def world_text(kind: str) -> str:

@@ -40,40 +40,13 @@ import pandas as pd
 
 from .errors import InputError
 from .run_files import damage
+from .tables import dtypes
 
 OBSERVED_DIR = "observed"
 
+# Column types come from the data contract (abm.tables), where every column is described.
 OBSERVED_COLUMNS: dict[str, dict[str, str]] = {
-    "stations": {"station": "string", "position": "int64", "role": "string", "method": "string"},
-    "checks": {
-        "day": "int64",
-        "hour": "int64",
-        "station": "string",
-        "vehicle_class": "string",
-        "method": "string",
-        "vehicles": "int64",
-        "checks": "int64",
-        "alarms": "int64",
-    },
-    "encounters": {
-        "encounter_id": "int64",
-        "day": "int64",
-        "minute": "float64",
-        "kind": "string",
-        "place": "string",
-        "place_kind": "string",
-        "vehicle_class": "string",
-        "method": "string",
-        "person_ref": "string",
-        "referred_by": "string",
-    },
-    "false_alarms": {
-        "day": "int64",
-        "minute": "float64",
-        "station": "string",
-        "method": "string",
-        "vehicle_class": "string",
-    },
+    name: dtypes(f"{OBSERVED_DIR}/{name}") for name in ("stations", "checks", "encounters", "false_alarms")
 }
 
 

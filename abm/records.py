@@ -35,108 +35,25 @@ from .port.day import OUTCOME_NAMES, DayResult
 from .port.layout import Layout
 from .port.tallies import StationHours
 from .port.traffic import MINUTES_PER_DAY
+from .tables import described, dtypes
 
 TRUTH_DIR = "truth"
 
+# Column types come from the data contract (abm.tables), where every column is described.
 TRUTH_COLUMNS: dict[str, dict[str, str]] = {
-    "attempts": {
-        "attempt_id": "int64",
-        "day": "int64",
-        "agent_id": "int64",
-        "persons": "int64",
-        "point": "string",
-        "band": "string",
-        "vehicle_class": "string",
-        "depth": "string",
-        "outcome": "string",
-        "station": "string",
-        "method": "string",
-        "minute": "float64",
-    },
-    "arrivals": {"agent_id": "int64", "day": "int64", "persons": "int64"},
-    "exits": {"agent_id": "int64", "day": "int64", "state": "string", "persons": "int64", "encounters": "int64"},
+    name: dtypes(f"{TRUTH_DIR}/{name}") for name in ("attempts", "arrivals", "exits")
 }
-
 METHODS_FILE = "methods.parquet"
-# One row per operating day, method and cargo type. Observed: the day's weather, checks, alarms, alarms
-# logged false (nothing found after them) and minutes spent checking. Truth: checks of occupied vehicles,
-# checks that found people, alarms on vehicles with and without people aboard. Weather and cargo are ""
-# where a world does not state them.
-METHOD_COLUMNS: dict[str, str] = {
-    "day": "int64",
-    "weather": "string",
-    "method": "string",
-    "cargo": "string",
-    "checks": "int64",
-    "alarms": "int64",
-    "false_alarms": "int64",
-    "check_minutes": "float64",
-    "truth_occupied_checks": "int64",
-    "truth_found": "int64",
-    "truth_true_alarms": "int64",
-    "truth_false_alarms": "int64",
-}
-
+METHOD_COLUMNS: dict[str, str] = dtypes("methods")
 
 QUEUES_FILE = "queues.parquet"
-# One row per calendar day, hour and station (observed). Waits are of vehicles checked that reached the
-# station in the hour (minutes from reaching it to the check's start); queue_mean is the hour's time-average
-# number of vehicles waiting, measured from those same times (not Little's law); utilisation is lane-minutes
-# checking over lane-minutes on duty in the hour (NaN with none on duty, e.g. checks running past the last day).
-QUEUE_COLUMNS: dict[str, str] = {
-    "day": "int64",
-    "hour": "int64",
-    "station": "string",
-    "vehicles": "int64",
-    "checks": "int64",
-    "wait_mean_min": "float64",
-    "wait_p95_min": "float64",
-    "wait_max_min": "float64",
-    "queue_mean": "float64",
-    "busy_lane_minutes": "float64",
-    "staffed_lane_minutes": "float64",
-    "utilisation": "float64",
-}
+QUEUE_COLUMNS: dict[str, str] = dtypes("queues")
 
 QUEUE_HOURS_FILE = "queue_hours.parquet"
-# The same per station and hour of the day, pooled over the days a run's summary covers (its warm-up left
-# out): percentiles over every checked vehicle of those days, queue_mean the mean over days of the hour's
-# time-average queue, utilisation the pooled ratio.
-QUEUE_HOUR_COLUMNS: dict[str, str] = {
-    "station": "string",
-    "hour": "int64",
-    "first_day": "int64",
-    "last_day": "int64",
-    "vehicles": "int64",
-    "checks": "int64",
-    "wait_mean_min": "float64",
-    "wait_p50_min": "float64",
-    "wait_p95_min": "float64",
-    "wait_max_min": "float64",
-    "queue_mean": "float64",
-    "busy_lane_minutes": "float64",
-    "staffed_lane_minutes": "float64",
-    "utilisation": "float64",
-}
+QUEUE_HOUR_COLUMNS: dict[str, str] = dtypes("queue_hours")
 
 DEPARTURES_FILE = "departures.parquet"
-# One row per departure (day, timetabled time) up to the run's last day (observed): vehicles booked on it (the
-# first departure whose cut-off they could make as planned), vehicles that left on it, vehicles booked on it that
-# left later or not at all (missed), places and metres still free when it left (NaN where not counted), minutes
-# it left late, whether it was cancelled, and whether it left full. Empty without departures.
-DEPARTURE_COLUMNS: dict[str, str] = {
-    "day": "int64",
-    "time": "string",
-    "minute": "float64",
-    "booked": "int64",
-    "left": "int64",
-    "missed": "int64",
-    "places_left": "float64",
-    "metres_left": "float64",
-    "late_minutes": "float64",
-    "cancelled": "bool",
-    "full": "bool",
-}
+DEPARTURE_COLUMNS: dict[str, str] = dtypes("departures")
 
 
 def _calendar(minute: np.ndarray) -> tuple[np.ndarray, np.ndarray]:
@@ -496,10 +413,12 @@ def write_atomically(path: Path, write: Callable[[Path], object]) -> Path:
     return path
 
 
-def write_parquet(frame: pd.DataFrame, path: Path) -> None:
-    """Write a table atomically with deterministic bytes (no pandas metadata index, no timestamps)."""
-    table = pa.Table.from_pandas(frame, preserve_index=False)
-    table = table.replace_schema_metadata(None)
+def write_parquet(frame: pd.DataFrame, path: Path, table_name: str | None = None) -> None:
+    """Write table ``table_name`` of the data contract (:mod:`abm.tables`) atomically, with deterministic bytes
+    (no pandas metadata, no timestamps) and each column's declaration as field metadata."""
+    table = pa.Table.from_pandas(frame, preserve_index=False).replace_schema_metadata(None)
+    if table_name is not None:  # tables of calibration and search folders are being declared
+        table = described(table, table_name)
     write_atomically(path, lambda tmp: pq.write_table(table, tmp, compression="zstd"))
 
 
@@ -512,13 +431,13 @@ def write_json(data: Any, path: Path) -> None:
 def write_records(book: RecordBook, out: Path) -> None:
     """Write truth/, observed/, daily.parquet, methods.parquet, queues.parquet and departures.parquet under ``out``."""
     for name, frame in book.truth_tables().items():
-        write_parquet(frame, out / TRUTH_DIR / f"{name}.parquet")
+        write_parquet(frame, out / TRUTH_DIR / f"{name}.parquet", f"{TRUTH_DIR}/{name}")
     for name, frame in book.observed_tables().items():
-        write_parquet(frame, out / OBSERVED_DIR / f"{name}.parquet")
-    write_parquet(book.daily_table(), out / "daily.parquet")
-    write_parquet(book.methods_table(), out / METHODS_FILE)
-    write_parquet(book.queue_table(), out / QUEUES_FILE)
-    write_parquet(book.departures_table(), out / DEPARTURES_FILE)
+        write_parquet(frame, out / OBSERVED_DIR / f"{name}.parquet", f"{OBSERVED_DIR}/{name}")
+    write_parquet(book.daily_table(), out / "daily.parquet", "daily")
+    write_parquet(book.methods_table(), out / METHODS_FILE, "methods")
+    write_parquet(book.queue_table(), out / QUEUES_FILE, "queues")
+    write_parquet(book.departures_table(), out / DEPARTURES_FILE, "departures")
 
 
 def read_truth(run_dir: str | Path) -> dict[str, pd.DataFrame]:

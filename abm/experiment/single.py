@@ -243,7 +243,8 @@ def run_to_directory(
     try:
         write_records(model.records, staging)
         # pooled over the days the summary covers, so its percentiles leave the warm-up out as the summary does
-        write_parquet(model.records.queue_hours_table(warmup, warmup + days - 1), staging / QUEUE_HOURS_FILE)
+        write_parquet(model.records.queue_hours_table(warmup, warmup + days - 1), staging / QUEUE_HOURS_FILE,
+                      "queue_hours")
         summary = summarise(model.records, days, warmup)
         write_json(summary, staging / "summary.json")
         write_json(world.model_dump(mode="json"), staging / WORLD_FILE)

@@ -26,6 +26,7 @@ if TYPE_CHECKING:
 
 DIALECT = "https://json-schema.org/draft/2020-12/schema"
 PAGE = Path(__file__).resolve().parent.parent / "docs" / "reference.md"
+TABLES_PAGE = PAGE.with_name("tables.md")
 REGENERATE = "make reference (python -m abm.reference)"
 
 
@@ -316,19 +317,27 @@ def _unit(prop: dict[str, Any]) -> str:
     return next((u for u in map(_unit, nested) if u), "")
 
 
+def pages() -> dict[Path, str]:
+    """Every generated page: the file reference (from the schemas) and the tables (from the data contract)."""
+    from .tables.page import tables_page
+
+    return {PAGE: reference_page(), TABLES_PAGE: tables_page()}
+
+
 def main(argv: list[str] | None = None) -> int:
-    """Write docs/reference.md from the schemas (``--check``: only say whether it is up to date)."""
+    """Write the generated pages (``--check``: only say whether they are up to date)."""
     args = sys.argv[1:] if argv is None else argv
-    text = reference_page()
-    if "--check" in args:
-        current = PAGE.read_text(encoding="utf-8") if PAGE.exists() else ""
-        if current != text:
-            print(f"{PAGE}: differs from the schemas; regenerate it with {REGENERATE}", file=sys.stderr)
-            return 1
-        return 0
-    PAGE.write_text(text, encoding="utf-8")
-    print(f"wrote {PAGE}")
-    return 0
+    stale = 0
+    for path, text in pages().items():
+        if "--check" in args:
+            if (path.read_text(encoding="utf-8") if path.exists() else "") != text:
+                print(f"{path}: differs from the code it is made from; regenerate it with {REGENERATE}",
+                      file=sys.stderr)
+                stale = 1
+            continue
+        path.write_text(text, encoding="utf-8")
+        print(f"wrote {path}")
+    return stale
 
 
 if __name__ == "__main__":

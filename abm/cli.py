@@ -159,9 +159,6 @@ def cmd_run(args: argparse.Namespace) -> int:
     return _run_world(world, args.days, args.seed, out, ["undertow", *args.argv], args.allow_large, args.warmup)
 
 
-DEMO_EXPERIMENT = "kestrel_quay/demo_experiment.yaml"  # in the shipped worlds (abm.starter.shipped_worlds)
-DEMO_CALIBRATION = "kestrel_quay/calibration.yaml"
-DEMO_RECORD = "demo.json"  # marks a folder as a demo's, so a later demo may replace it
 # Where the summary extension of batches and the demo (cached_estimates) lives, for the pool's server to preload.
 BATCH_EXTENSION_MODULES = ("abm.analysis.estimator_check",)
 
@@ -175,89 +172,13 @@ def _interrupted(command: str, out: str | Path) -> int:
 def cmd_demo(args: argparse.Namespace) -> int:
     """The whole job on the demo world: calibrate to the agency extract, compare policies under it, brief."""
     _start_pool_server("processes", None, BATCH_EXTENSION_MODULES)
-    from .starter import shipped_worlds
+    from .demo import run_demo
 
-    with shipped_worlds() as worlds:
-        return _demo(args, worlds / DEMO_EXPERIMENT, worlds / DEMO_CALIBRATION)
-
-
-def _demo(args: argparse.Namespace, experiment: Path, calibration_file: Path) -> int:
-    """The demo's three stages, from the shipped experiment and calibration files."""
-    from .analysis.estimator_check import cached_estimates
-    from .calibration.config import load_calibration
-    from .calibration.run import run_calibration
-    from .experiment.batch import print_warning, run_batch
-    from .experiment.executors import make_executor
-    from .records import write_json
-    from .report.briefing import brief
-
-    out = Path(args.out)
-    refuse_unwritable(out)
-    calibration_out, batch_out = out / "calibration", out / "batch"
-    plan = load_calibration(calibration_file)
-    resume = args.resume and _is_earlier_demo_of(out, plan.digest())
-    if not resume:
-        _clear_previous_demo(out)
-    command = ["undertow", *args.argv]
-    out.mkdir(parents=True, exist_ok=True)
-    write_json({"command": command, "calibration_sha256": plan.digest()}, out / DEMO_RECORD)
-    print(f"undertow demo: 1/3 calibrating {plan.spec.name} to the agency extract {plan.observed_path} "
-          f"({plan.setting('draws') if plan.method == 'rejection' else plan.setting('initial_draws')} candidate runs "
-          f"first) -> {calibration_out}", flush=True)
     try:
-        with make_executor("processes", args.workers) as pool:
-            calibration = run_calibration(plan, calibration_out, pool, resume, command)
-        print("\n".join(["", *calibration.answer_lines(), *calibration.warnings, ""]), flush=True)
-        print(f"undertow demo: 2/3 comparing policies with the unknowns drawn from that posterior -> {batch_out}",
-              flush=True)
-        # cached_estimates adds the store's est_ columns, as undertow batch does
-        result = run_batch(experiment, batch_out, "processes", args.workers, None, resume, command,
-                           extensions=(cached_estimates,), calibration=calibration_out, on_warning=print_warning)
+        failed = run_demo(Path(args.out), args.resume, args.workers, ["undertow", *args.argv], _brief_stage)
     except KeyboardInterrupt:
-        return _interrupted("demo", out)
-    print(f"{result.plan.spec.name}: {result.total - result.failed} of {result.total} runs complete "
-          f"({result.ran} run now)")
-    if result.failed:
-        print(f"undertow demo: {result.failed} runs failed; the briefing covers the rest (errors in {batch_out})",
-              file=sys.stderr)
-    print("undertow demo: 3/3 writing the briefing", flush=True)
-    briefing, paths = brief(batch_out, argv=["undertow", "brief", str(batch_out)], report=_brief_stage)
-    print(f"Briefing: {paths['html']}")
-    print(f"          {paths['md']} (figures in {batch_out / 'figures'})")
-    print(f"\nBottom line (model estimates, not counts). {briefing.document.bottom_line}")
-    return EXIT_FAULT if result.failed else EXIT_OK
-
-
-def _recorded_command(out: Path) -> tuple[list, dict]:
-    """The command an output folder was made with and its record: a batch's experiment.json or a run's manifest."""
-    import json
-
-    for name in (DEMO_RECORD, "experiment.json", "manifest.json"):
-        try:
-            record = json.loads((out / name).read_text(encoding="utf-8"))
-        except (OSError, ValueError):
-            continue
-        if isinstance(record, dict):
-            return list(record.get("command") or []), record
-    return [], {}
-
-
-def _is_earlier_demo_of(out: Path, digest: str) -> bool:
-    """True when ``out`` holds a demo of this very calibration, so its complete runs can be kept."""
-    command, record = _recorded_command(out)
-    return command[:2] == ["undertow", "demo"] and record.get("calibration_sha256") == digest
-
-
-def _clear_previous_demo(out: Path) -> None:
-    """A fresh demo replaces the last demo's folder (a demo batch, or an older single-run demo), and nothing else."""
-    if not out.exists():
-        return
-    import shutil
-
-    command, _ = _recorded_command(out) if out.is_dir() else ([], {})
-    if command[:2] != ["undertow", "demo"]:
-        raise InputError(f"{out}: exists and is not an earlier demo; choose another --out (nothing was removed)")
-    shutil.rmtree(out)
+        return _interrupted("demo", args.out)
+    return EXIT_FAULT if failed else EXIT_OK
 
 
 BATCH_ONLY_OPTIONS = (("baseline", "--baseline"), ("max_delay_increase", "--max-delay-increase"),

@@ -16,7 +16,7 @@ import pandas as pd
 import pytest
 import yaml
 
-import abm.cli
+import abm.demo
 from abm.cli import main
 from abm.experiment.single import run_to_directory
 from abm.world import file_hash, load_world
@@ -45,8 +45,8 @@ def small_demo(tmp_path: Path, monkeypatch: pytest.MonkeyPatch) -> Path:
     }
     for name, data in (("calibration.yaml", calibration), ("experiment.yaml", experiment)):
         (files / name).write_text(yaml.safe_dump(data, sort_keys=False), encoding="utf-8")
-    monkeypatch.setattr(abm.cli, "DEMO_CALIBRATION", files / "calibration.yaml")
-    monkeypatch.setattr(abm.cli, "DEMO_EXPERIMENT", files / "experiment.yaml")
+    monkeypatch.setattr(abm.demo, "DEMO_CALIBRATION", files / "calibration.yaml")  # an absolute path wins
+    monkeypatch.setattr(abm.demo, "DEMO_EXPERIMENT", files / "experiment.yaml")
     return tmp_path / "demo"
 
 

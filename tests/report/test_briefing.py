@@ -28,7 +28,8 @@ import yaml
 from scipy import stats
 
 from abm.analysis.estimator_check import cached_estimates, read_world, sensitivities_from_world
-from abm.cli import _clear_previous_demo, main
+from abm.cli import main
+from abm.demo import _clear_previous_demo
 from abm.errors import InputError
 from abm.estimate import expansion
 from abm.estimate.inputs import read_tables

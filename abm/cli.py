@@ -100,7 +100,9 @@ def print_summary(summary: dict, title: str, words: Words | None = None) -> None
 
     print(title)
     sources = summary.get("sources", {})
-    rows = {label(key): (value, sources.get(key, "")) for key, value in summary.items() if key != "sources"}
+    # a land border has no departures to miss: no row rather than an n/a
+    skipped = {"sources"} | (set() if words.departs else {"missed_departure_share"})
+    rows = {label(key): (value, sources.get(key, "")) for key, value in summary.items() if key not in skipped}
     width = max(map(len, rows), default=0) + 2
     for name, (value, source) in rows.items():
         shown = "n/a" if value is None else (

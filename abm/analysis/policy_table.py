@@ -120,9 +120,11 @@ class DelayLimits:
         """The limits in words, in the crossing's own (``words``)."""
         return (
             f"95th-percentile {words.time_at_site} no more than {100 * self.time_in_port_increase:g}% above "
-            f"{baseline}'s, and {words.missed} no more than {self.missed_departure_points:g} percentage point"
+            f"{baseline}'s"
+        ) + ("" if not words.departs else (
+            f", and {words.missed} no more than {self.missed_departure_points:g} percentage point"
             f"{'' if self.missed_departure_points == 1 else 's'} above {baseline}'s"
-        )
+        ))
 
 
 def efficient_frontier(cost: Sequence[float], benefit: Sequence[float]) -> np.ndarray:

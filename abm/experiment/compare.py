@@ -208,6 +208,8 @@ def format_comparison(table: pd.DataFrame, factors: Sequence[str], confidence: f
                       words: Words = GENERIC) -> str:
     """The comparison as a readable text table, one block per design point, figures in display labels."""
     pct = f"{confidence:.0%}"
+    # a figure no run has (missed departures at a land border) is left out, not printed as n/a in every block
+    table = table[table.groupby("figure")["runs"].transform("max") > 0] if len(table) else table
     label = {f: words.fill(SUMMARY_LABELS.get(f, f)) for f in table["figure"].unique()} if len(table) else {}
     width = max([len(v) for v in label.values()] + [24]) + 2
     lines = [

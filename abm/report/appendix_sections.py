@@ -185,7 +185,9 @@ def section_method(ctx: Context, brief_argv: Sequence[str]) -> Section:
         "an hourly, weekday-scaled Poisson profile; classes; stops at boarding points); stations run exact "
         "first-in-first-out multi-server queues with the world's selection rules and check methods (each with a "
         "detection chance per class and a false-alarm chance); an alarm refers a vehicle to secondary search; "
-        f"vehicles then join the first {ctx.words.service} whose check-in they make and that has room. People who try to cross hidden in vehicles "
+        + (f"vehicles then join the first {ctx.words.service} whose check-in they make and that has room. "
+           if ctx.words.departs else f"vehicles then leave {ctx.words.the_site} as soon as they are cleared. ")
+        + "People who try to cross hidden in vehicles "
         "are agents that choose a boarding point, time band and vehicle class each day by a logit rule over "
         "perceived risk, effort, waiting and hazard, and learn according to the behaviour model; inspection teams "
         "staff stations and patrol boarding points by roster. Two record sets are kept apart: truth (every "

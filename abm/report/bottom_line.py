@@ -10,18 +10,14 @@ headline names, with the same figures as the comparison table.
 
 from __future__ import annotations
 
-from typing import TYPE_CHECKING
-
+from .context import Context, delay_change_text
 from .document import excludes_zero, interval, is_number, number
-
-if TYPE_CHECKING:
-    from .context import Context
 
 FIGURE_KIND = {"detections": "count", "crossings": "count", "staff_hours": "hours", "displaced_out": "count",
                "hazard_weighted_share": "index", "time_in_port_p95_min": "minutes"}
 
 
-def _change(ctx: "Context", point: int, figure: str) -> tuple[str, bool] | None:
+def _change(ctx: Context, point: int, figure: str) -> tuple[str, bool] | None:
     """ "+12 (95% interval +4 to +20)" and whether the interval excludes zero; None without the figure."""
     row = ctx.cell(point, figure)
     if row is None or not is_number(row["difference"]):
@@ -37,7 +33,7 @@ def _change(ctx: "Context", point: int, figure: str) -> tuple[str, bool] | None:
     return f"{shown} (95% interval {spread})", sure
 
 
-def _other_behaviour(ctx: "Context", scenario: tuple, best: int, sure: bool) -> str:
+def _other_behaviour(ctx: Context, scenario: tuple, best: int, sure: bool) -> str:
     """"; under static behaviour ... " when the batch also ran the same policy under another behaviour model
     (saying the answer depends on the assumption when the gain is clear under one model and not the other)."""
     if ctx.batch.behaviour is None:
@@ -57,7 +53,7 @@ def _other_behaviour(ctx: "Context", scenario: tuple, best: int, sure: bool) -> 
     return "; " + "; ".join(parts) + (", so the answer depends on how people are assumed to behave" if differs else "")
 
 
-def bottom_line(ctx: "Context") -> str:
+def bottom_line(ctx: Context) -> str:
     """At most three sentences: the policy and its gain, its cost, its effect on the people who try."""
     scenario = ctx.primary()
     under = ctx.under(scenario)
@@ -86,9 +82,7 @@ def bottom_line(ctx: "Context") -> str:
         costs.append(f"It takes {staff[0]} staff-hours")
     status = ctx.status.loc[best] if best in ctx.status.index else None
     if status is not None and is_number(status["time_in_port_change"]):
-        costs.append(f"changes the 95th percentile of {ctx.words.time_at_site} by "
-                     f"{number(status['time_in_port_change'], 'relative', True)} and {ctx.words.missed} by "
-                     f"{number(status['missed_change_points'], 'rate', True)} percentage points")
+        costs.append(f"changes the delay ({delay_change_text(ctx, best)})")
     second = ("; it ".join(costs) if staff else "It " + costs[0]) + "." if costs else ""
     moved, hazard = _change(ctx, best, "displaced_out"), _change(ctx, best, "hazard_weighted_share")
     people = []

@@ -48,7 +48,7 @@ from .evidence import Evidence, gather
 from .figures import FIGURE_KEYS
 from .store_view import BatchView, load_batch
 from .context import (
-    BEHAVIOUR_WORDS, Context, effect_text, gain_point, intervention_of, level_list, percent, uncapitalised, value_text,
+    BEHAVIOUR_WORDS, Context, delay_change_text, effect_text, gain_point, intervention_of, level_list, percent, uncapitalised, value_text,
 )
 from .comparison_section import section_assumptions, section_comparison
 from .figure_section import section_figures
@@ -143,11 +143,8 @@ def _best_sentence(ctx: Context, scenario: tuple) -> Item | None:
         outside = ""
         if better:
             top = max(better, key=lambda p: ctx.means.loc[p, "detections"])
-            change = ctx.status.loc[top, "time_in_port_change"]
             outside = (f" {ctx.batch.policy_of(top)} detects more ({effect_text(ctx, top, 'detections')}) but lies "
-                       f"outside the delay limits (95th-percentile {ctx.words.time_at_site} "
-                       f"{number(change, 'relative', True)}, {ctx.words.missed} {number(ctx.status.loc[top, 'missed_change_points'], 'rate', True)} "
-                       "percentage points).")
+                       f"outside the delay limits ({delay_change_text(ctx, top)}).")
         text = (f"{under}no policy within the delay limits detects more than the baseline, {policy}: "
                 f"{value_text(ctx, best, 'detections')} persons over {days} days.{outside}")
     else:
@@ -311,7 +308,8 @@ def section_headline(ctx: Context) -> Section:
     if ctx.batch.policy is not None:
         blocks.append(Paragraph(
             f"Delay limits: {ctx.limits.describe(ctx.baseline_name, ctx.words)}, in the same scenario (means over replications; "
-            "set with --max-delay-increase and --max-missed-increase). Intervals are 95%; a paired interval "
+            f"set with --max-delay-increase{' and --max-missed-increase' if ctx.words.departs else ''}). Intervals "
+            "are 95%; a paired interval "
             "compares the same replication (seed) under both policies.", lead="How to read this."))
     return Section("headline", "Headline findings", tuple(blocks))
 

@@ -8,7 +8,7 @@ from ..experiment.compare import INTERVAL_WORDS, MIN_REPLICATIONS
 from .document import Cell, Paragraph, Section, Table, interval, is_number, number
 from .evidence import RUNS_TABLE
 from .store_view import shown_value
-from .context import Context, capitalised
+from .context import Context, capitalised, delay_change_text
 from .tables import MEASURES, ON_TIME, STAKEHOLDERS, is_within, stakeholder_view
 
 
@@ -49,13 +49,11 @@ def _comparison_table(ctx: Context, scenario: tuple, index: int) -> Table:
         rows.append(tuple(cells))
     limits = [Cell("Within the delay limits", {"figure": "within"}, header=True)]
     for p in ordered:
-        s = ctx.status.loc[p]
         if p == base:
             limits.append(Cell("baseline", {"point": p, "within": "true"}))
         else:
             verdict = "yes" if is_within(ctx.status, p) else "no"
-            limits.append(Cell(f"{verdict}\np95 {number(s['time_in_port_change'], 'relative', True)}, missed "
-                               f"{number(s['missed_change_points'], 'ratio', True)} pp",
+            limits.append(Cell(f"{verdict}\n{delay_change_text(ctx, p, short=True)}",
                                {"point": p, "within": "true" if verdict == "yes" else "false"}))
     rows.append(tuple(limits))
     replications = int(ctx.batch.points.loc[ordered[0], "runs"])
@@ -95,7 +93,7 @@ def section_comparison(ctx: Context) -> Section:
         f"{INTERVAL_WORDS['logit']}), and (Δ) the paired difference against "
         f"{ctx.baseline_name} with its 95% interval (Student t-interval on the per-replication differences; common "
         f"random numbers). Counts are over the {b.days} summarised days. Detections, {ctx.words.time_at_site}, "
-        f"{ctx.words.missed} and "
+        f"{ctx.words.missed + ' and ' if ctx.words.departs else 'and '}"
         "staff-hours are observed records; crossings, displacement out of the system and hazard-weighted boarding "
         "are model truth. Hazard-weighted boarding is the attempt-weighted mean hazard score (0 to 1) of where "
         "people boarded and how deep they hid (the boarding point's hazard plus the depth's, at most 1)."))
@@ -186,7 +184,8 @@ def section_assumptions(ctx: Context) -> Section:
     if b.policy is not None:
         blocks.append(Paragraph(
             ctx.words.fill("Each stakeholder picks the policy best on the figure they answer for: the {site} operator the "
-                           "shortest 95th-percentile {time_at_site} (then fewest {missed}), ") + "enforcement the most detections (then "
+                           "shortest 95th-percentile {time_at_site}"
+                           + (" (then fewest {missed}), " if ctx.words.departs else ", ")) + "enforcement the most detections (then "
             "fewest crossings), safeguarding the lowest hazard-weighted boarding (then least displacement out of "
             "the system). Each cost is the paired difference, on the other stakeholder's figure, between this pick "
             "and the other's own pick.", lead="Who prefers what."))
@@ -202,17 +201,20 @@ def _stakeholder_table(ctx: Context, scenario: tuple, index: int) -> Table:
         kind = ctx.measure[r["figure"]].kind
         own = f"{number(r['value'], kind)}\n{ctx.measure[r['figure']].label} ({ctx.measure[r['figure']].unit})"
         if r["figure"] == "time_in_port_p95_min":  # the operator also reads throughput on time and missed departures
-            for extra in (ON_TIME.key, "missed_departure_share"):
+            for extra in (ON_TIME.key, "missed_departure_share") if ctx.words.departs else ():
                 if extra in ctx.means.columns:
                     m = ctx.measure[extra]
                     own += f"\n{number(ctx.means.loc[r['point'], extra], m.kind)} {m.label.lower()} ({m.unit})"
         own_view = next(s for s in STAKEHOLDERS if s.name == r["stakeholder"])
         prefers = str(r["policy"])
         if r["tied_with"]:
-            prefers += (f"\ntied with {r['tied_with']} on {ctx.measure[r['figure']].label.lower()}; chosen on "
-                        f"{ctx.measure[r['tie_break']].label.lower()}")
+            settled = (f"chosen on {ctx.measure[r['tie_break']].label.lower()}" if r["tie_break"] != r["figure"]
+                       else "chosen on its mean")
+            prefers += f"\ntied with {r['tied_with']} on {ctx.measure[r['figure']].label.lower()}; {settled}"
         cells = [
-            Cell(f"{ctx.stakeholder_name(own_view)}\n{ctx.words.fill(own_view.wants)}", header=True),
+            Cell(f"{ctx.stakeholder_name(own_view)}\n"
+                 f"{ctx.words.fill(own_view.wants if ctx.words.departs else own_view.wants_without_departures)}",
+                 header=True),
             Cell(prefers, {"stakeholder": r["stakeholder"], "point": r["point"]}),
             Cell(own),
         ]

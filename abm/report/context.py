@@ -8,10 +8,10 @@ from dataclasses import dataclass
 import pandas as pd
 
 from ..analysis.policy_table import DelayLimits
+from ..world.words import Words
 from .document import excludes_zero, interval, is_number, number, with_interval
 from .evidence import Evidence
 from .store_view import BatchView
-from ..world.words import Words
 from .tables import MEASURE, Measure, Stakeholder, worded
 
 
@@ -121,6 +121,19 @@ def effect_text(ctx: Context, point: int, figure: str) -> str:
     if is_number(row["difference_low"]) and not excludes_zero(row["difference_low"], row["difference_high"]):
         text += ": not distinguishable from no change"
     return text + ")"
+
+
+def delay_change_text(ctx: Context, point: int, short: bool = False) -> str:
+    """How a point changes the delay against its baseline: the p95 time at the crossing and, where vehicles book
+    departures, the missed share ("95th-percentile time in port +3.9%, missed sailings +0.2 percentage points");
+    ``short`` for a table cell ("p95 +3.9%, missed +0.2 pp")."""
+    s = ctx.status.loc[point]
+    tip = number(s["time_in_port_change"], "relative", True)
+    text = f"p95 {tip}" if short else f"95th-percentile {ctx.words.time_at_site} {tip}"
+    if not ctx.words.departs:  # a land border: vehicles leave when cleared, nothing to miss
+        return text
+    missed = number(s["missed_change_points"], "rate", True)
+    return text + (f", missed {missed} pp" if short else f", {ctx.words.missed} {missed} percentage points")
 
 
 def capitalised(text: str) -> str:

@@ -46,9 +46,13 @@ def load_blocks(batch: BatchView, baseline_points: list[int]) -> list[Any]:
                                     "so their differences include how each eases or worsens the overload; absolute "
                                     "delays overstate what checks alone cost."))
     else:
-        blocks.append(Paragraph(
-            f"Every station and departure of the baseline carries its traffic (a fluid estimate from the world file "
-            f"on its busiest weekday: offered load below {OVERLOAD}, departures within their places).", lead="Load."))
+        w = batch.words
+        carried = (f"Every station and {w.service} of the baseline carries its traffic (a fluid estimate from the world "
+                   f"file on its busiest weekday: offered load below {OVERLOAD}, {w.services} within their places)."
+                   if w.departs else
+                   f"Every station of the baseline carries its traffic (a fluid estimate from the world file on its "
+                   f"busiest weekday: offered load below {OVERLOAD}); vehicles leave on clearance.")
+        blocks.append(Paragraph(carried, lead="Load."))
     added: dict[str, None] = {}  # in order, each once (a policy runs in every scenario)
     for point in batch.points.index:
         if point in baseline_points:

@@ -84,6 +84,8 @@ def comparison(batch: BatchView, runs: pd.DataFrame, confidence: float = CONFIDE
     """
     keys = [m.key for m in (*MEASURES, ON_TIME) if m.key in runs.columns]
     table = compare_points(runs, batch.labels, batch.compare_to, keys, confidence)
+    # a figure no run has (missed departures at a land border) is left out, not shown as n/a everywhere
+    table = table[table.groupby("figure")["mean"].transform(lambda m: m.notna().any())].reset_index(drop=True)
     table["source"] = table["figure"].map(lambda k: MEASURE[k].source)
     return table
 
@@ -234,11 +236,16 @@ class Stakeholder:
     tie_break: str
     wants: str  # the figures they look at, in words (placeholders for the crossing's words, see Words.fill)
     label: str = ""  # display name with placeholders; the name when empty
+    wants_without_departures: str = ""  # ``wants`` where vehicles leave when cleared; ``wants`` when empty
+
+    def __post_init__(self) -> None:
+        if not self.wants_without_departures:
+            object.__setattr__(self, "wants_without_departures", self.wants)
 
 
 STAKEHOLDERS: tuple[Stakeholder, ...] = (
     Stakeholder("Operator", "time_in_port_p95_min", "missed_departure_share",
-                "throughput on time, {time_at_site}, {missed}", "{Site} operator"),
+                "throughput on time, {time_at_site}, {missed}", "{Site} operator", "throughput, {time_at_site}"),
     Stakeholder("Enforcement", "detections", "crossings", "detections, crossings"),
     Stakeholder("Safeguarding", "hazard_weighted_share", "displaced_out",
                 "hazard-weighted boarding, displacement out of the system"),
@@ -286,7 +293,8 @@ def stakeholder_view(
         pick = picks[s.name]
         row = {"stakeholder": s.name, "point": pick, "policy": batch.policy_of(pick), "figure": s.figure,
                "value": m.loc[pick, s.figure], "tied_with": ", ".join(batch.policy_of(p) for p in ties[s.name]),
-               "tie_break": s.tie_break}
+               # the figure that settled a tie; the main figure itself when the next one is absent (no departures)
+               "tie_break": s.tie_break if s.tie_break in m.columns else s.figure}
         for other in STAKEHOLDERS:
             if other.name == s.name or other.name not in picks:
                 continue

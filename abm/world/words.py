@@ -31,6 +31,7 @@ class Words:
 
     service: str  # one departure: "sailing", "train", "convoy", "slot"; "departure" in a world without them
     site: str  # "port", "terminal", "border" or "crossing"
+    departs: bool = True  # False where vehicles leave when cleared (a land border): nothing to book or miss
 
     @property
     def services(self) -> str:
@@ -71,7 +72,7 @@ GENERIC = Words(service="departure", site="crossing")  # when no world is at han
 def _words(service: str | None, site: str | None) -> Words:
     """Words for departures of kind ``service`` (None: a crossing without departures) at a ``site``."""
     default_site = "border" if service is None else "port" if service == "sailing" else "terminal"
-    return Words(service=service or "departure", site=site or default_site)
+    return Words(service=service or "departure", site=site or default_site, departs=service is not None)
 
 
 def words_for(world: World | None) -> Words:

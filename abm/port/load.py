@@ -88,7 +88,7 @@ class LoadReport:
         else:
             out.append(f"  {self.words.services}: {self.daily_capacity:,.0f} places on that day for "
                        f"{self.daily_arrivals:,.0f} vehicles")
-            out.append(f"  {self.words.service:<11}{'booked from':<14}{'booked':>8}{'capacity':>10}{'ratio':>7}")
+            out.append(f"  {self.words.service:<11}{'ready from':<14}{'booked':>8}{'capacity':>10}{'ratio':>7}")
             for r in self.departures.itertuples():
                 out.append(f"  {r.departure:<11}{r.window:<14}{r.booked:>8.0f}{r.capacity:>10.0f}{r.ratio:>7.2f}")
         out += self.warnings or ["  no station or departure is overloaded (load below 0.95, capacity above demand)"]
@@ -193,13 +193,35 @@ def _station_rows(world: World, lay: Layout, rate: np.ndarray) -> tuple[list[dic
     return rows, warnings
 
 
+def _booked_on(close: np.ndarray, ready: np.ndarray) -> tuple[np.ndarray, np.ndarray, np.ndarray]:
+    """Vehicles booked on each departure of the week as the engine books them, and the span of ready minutes.
+
+    ``close`` holds the week's check-in closes in departure order (minutes of the week, the first may be
+    negative); ``ready`` the vehicles ready for check-in in each minute of the week. A vehicle ready at minute t
+    books the first departure, in departure order, whose check-in closes at or after t (next week's where this
+    week's have closed): a departure with a long cut-off after an earlier one that closes later is never booked.
+    Returns (vehicles per departure, first and last ready minute booked on it; -1 where none).
+    """
+    k, week = close.shape[0], ready.shape[0]
+    reach = np.maximum.accumulate(np.concatenate([close, close + week]))  # first with close >= t: first reach >= t
+    booked_on = np.searchsorted(reach, np.arange(week), side="left") % k
+    vehicles = np.bincount(booked_on, weights=ready, minlength=k)
+    first, last = np.full(k, -1), np.full(k, -1)
+    for j in range(k):
+        minutes = np.flatnonzero(booked_on == j)
+        if minutes.size:  # a span may wrap the week's end: start after the largest gap
+            gap = int(np.argmax(np.diff(np.concatenate([minutes, [minutes[0] + week]]))))
+            first[j], last[j] = minutes[(gap + 1) % minutes.size], minutes[gap]
+    return vehicles, first, last
+
+
 def _departure_rows(world: World, lay: Layout) -> tuple[list[dict], list[str], float | None]:
     """Per departure of the busiest weekday: vehicles booked on it against its places; warnings for the whole week.
 
-    Vehicles are booked over the week, each weekday at its own traffic, in the
-    window between the previous departure's check-in close and this one's.
-    Places are the vehicles a departure takes (metres at the share-weighted mean
-    vehicle length), times its chance of not being cancelled.
+    Vehicles are booked over the week, each weekday at its own traffic, as the
+    engine books them (:func:`_booked_on`). Places are the vehicles a departure
+    takes (metres at the share-weighted mean vehicle length), times its chance
+    of not being cancelled.
     """
     tt = build_timetable(world)
     if tt.empty:
@@ -207,47 +229,44 @@ def _departure_rows(world: World, lay: Layout) -> tuple[list[dict], list[str], f
     words = words_for(world)
     week_rate = np.concatenate([np.repeat(lay.hourly_rate * f / 60.0, 60) for f in lay.weekday_factor])
     ready = np.roll(week_rate, int(round(tt.planned)))  # vehicles ready for check-in, by minute of the week
-    cumulative = np.concatenate([[0.0], np.cumsum(ready)])
-    week = MINUTES_PER_DAY * 7
     mean_length = float(lay.class_share @ tt.class_length)
-    services = [(w, minute, close, places)
-                for w in range(7)
-                for minute, close, places in zip(
-                    tt.minute[w], w * MINUTES_PER_DAY + tt.minute[w] - tt.cutoff[w],
-                    np.minimum(tt.capacity[w], tt.metres[w] / mean_length if mean_length else np.inf)
-                    * (1.0 - tt.cancel[w]), strict=True)]
-    services.sort(key=lambda s: s[2])
-
-    def ready_between(start: float, end: float) -> float:  # (start, end] on the weekly clock, wrapping
-        a, b = int(np.floor(start)) % week, int(np.floor(end)) % week
-        inside = cumulative[b + 1] - cumulative[a + 1]
-        return inside if b > a or (b == a and len(services) > 1) else inside + cumulative[-1]
-
+    services = sorted(
+        (w * MINUTES_PER_DAY + minute, w, minute, close, places)
+        for w in range(7)
+        for minute, close, places in zip(
+            tt.minute[w], w * MINUTES_PER_DAY + tt.minute[w] - tt.cutoff[w],
+            np.minimum(tt.capacity[w], tt.metres[w] / mean_length if mean_length else np.inf) * (1.0 - tt.cancel[w]),
+            strict=True))
+    booked, first, last = _booked_on(np.array([s[3] for s in services]), ready)
     busiest = int(np.argmax(lay.weekday_factor))
     rows, short = [], {}
-    for k, (w, minute, close, places) in enumerate(services):
-        previous = services[k - 1][2]
-        booked = ready_between(previous, close)
-        window = f"{_clock(previous)}-{_clock(close)}"
+    for j, (_, w, minute, _, places) in enumerate(services):
+        # ready after the previous booking's close, up to this one's: (first - 1, last] in minutes
+        window = f"{_clock(first[j] - 1)}-{_clock(last[j])}" if first[j] >= 0 else "none"
         if w == busiest:
-            rows.append({"departure": _clock(minute), "window": window, "booked": booked, "capacity": float(places),
-                         "ratio": booked / places if places else np.inf})
-        if booked > places:
-            short.setdefault(_clock(minute), []).append((w, booked, places, window))
+            rows.append({"departure": _clock(minute), "window": window, "booked": booked[j],
+                         "capacity": float(places), "ratio": booked[j] / places if places else np.inf})
+        if booked[j] > places:
+            short.setdefault(_clock(minute), []).append((w, booked[j], places, window))
     warnings = []
     for clock, days in sorted(short.items()):  # one warning per departure time, naming its weekdays unless all
         worst = max(days, key=lambda d: d[1] - d[2])
         when = "" if len(days) == 7 else " on " + ", ".join(WEEKDAYS[d[0]].capitalize() for d in days)
         warnings.append(f"warning: {words.service} {clock}{when}: about {worst[1]:.0f} vehicles are ready for it "
-                        f"(check-in {worst[3]}) against {worst[2]:.0f} places; the rest miss it: add capacity "
-                        f"or a {words.service} in that window")
-    rows.sort(key=lambda r: r["departure"])
-    daily = float(sum(r["capacity"] for r in rows))
-    weekly = float(sum(s[3] for s in services))
-    if cumulative[-1] > weekly:
-        warnings.append(f"warning: {words.services}: {weekly:,.0f} places a week for about {cumulative[-1]:,.0f} "
+                        f"(ready for check-in {worst[3]}) against {worst[2]:.0f} places; the rest miss it: add "
+                        f"capacity or a {words.service} in that window")
+    for w in range(7):  # a day short of places pushes vehicles onto the next day's departures
+        places_w = sum(s[4] for s in services if s[1] == w)
+        arrivals_w = float(lay.hourly_rate.sum() * lay.weekday_factor[w])
+        if arrivals_w > places_w:
+            warnings.append(f"warning: {words.services} on {WEEKDAYS[w].capitalize()}: {places_w:,.0f} places for "
+                            f"about {arrivals_w:,.0f} vehicles: the rest wait for a later day's {words.services}")
+    weekly = float(sum(s[4] for s in services))
+    if ready.sum() > weekly:
+        warnings.append(f"warning: {words.services}: {weekly:,.0f} places a week for about {ready.sum():,.0f} "
                         f"vehicles: vehicles are stranded; add {words.services} or capacity")
-    return rows, warnings, daily
+    rows.sort(key=lambda r: r["departure"])
+    return rows, warnings, float(sum(r["capacity"] for r in rows))
 
 
 def load_report(world: World, layout: Layout | None = None) -> LoadReport:

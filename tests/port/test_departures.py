@@ -177,3 +177,30 @@ def test_bad_departures_are_refused(bad: dict[str, Any], message: str) -> None:
     data["departures"].update(bad)
     with pytest.raises(Exception, match=message):
         parse_world(data)
+
+
+def test_load_report_books_departures_as_the_engine_does() -> None:
+    # 02:30's check-in closes at 01:00, before 02:15's (01:45), and it leaves later: no vehicle ever books it.
+    from abm.port.load import load_report
+
+    data = with_departures(capacity=400, services=[{"time": "02:15"}, {"time": "02:30", "cutoff_minutes": 90},
+                                                   {"time": "08:00"}, {"time": "14:00"}, {"time": "20:00"}])
+    report = load_report(parse_world(data)).departures.set_index("departure")
+    assert report.loc["02:30", "booked"] == 0 and report.loc["02:30", "window"] == "none"
+    model, _ = run_days(data, 21)
+    simulated = model.records.departures_table()
+    simulated = simulated[simulated["day"] >= 2].groupby("time")["booked"].mean()  # past the first days' filling
+    assert simulated["02:30"] == 0
+    for time in ("02:15", "08:00", "14:00", "20:00"):  # Poisson counts: within 4 standard errors of 19 days' mean
+        expected = report.loc[time, "booked"]
+        assert abs(simulated[time] - expected) < 4 * np.sqrt(expected / 19), time
+
+
+def test_a_day_short_of_places_is_a_warning() -> None:
+    from abm.port.load import load_report
+
+    data = with_departures(capacity=100, timetable=[{"first": "00:00", "last": "23:59", "headway_minutes": 240}])
+    data["traffic"]["weekday_factors"] = [1.0, 1.0, 1.0, 1.0, 1.4, 0.5, 0.5]  # 480 a day, 672 on Friday; 600 places
+    text = "\n".join(load_report(parse_world(data)).warnings)
+    assert "sailings on Fri: 600 places for about 672 vehicles" in text
+    assert "sailings on Thu" not in text and "places a week" not in text

@@ -1,5 +1,6 @@
-"""The ``undertow`` command.
+"""Undertow: simulate a freight crossing, estimate the flow no record shows, and compare inspection policies.
 
+The ``undertow`` command.
 Every sub-command reports bad input as one line on stderr and exit code 2
 (never a traceback); an internal fault prints one line and exits 1 unless
 ``UNDERTOW_DEBUG=1`` asks for the traceback.

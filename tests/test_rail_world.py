@@ -8,6 +8,7 @@ speak of trains and the terminal, never of sailings or the port.
 
 from __future__ import annotations
 
+import re
 import subprocess
 import sys
 from pathlib import Path
@@ -68,3 +69,19 @@ def test_rail_briefing_uses_the_worlds_words(rail_batch: tuple[Path, str]) -> No
     assert "missed trains" in text and "time in the terminal" in text
     for foreign in ("sailing", "time in port", "the port "):
         assert foreign not in text, foreign
+
+
+def test_readme_reads_the_batch_with_pandas_and_duckdb(rail_batch: tuple[Path, str], capsys) -> None:
+    out = rail_batch[0]
+    if not (out / "briefing_runs.parquet").is_file():
+        undertow("brief", str(out), cwd=ROOT)
+    readme = (ROOT / "README.md").read_text(encoding="utf-8")
+    section = readme[readme.index("## Reading the tables"):readme.index("## Exporting tables")]
+    code = re.search(r"```python\n(.*?)```", section, re.S).group(1).replace("outputs/rail", str(out))
+    exec(compile(code, "README.md (Reading the tables)", "exec"), {})  # noqa: S102 - our own README
+    printed = capsys.readouterr().out
+    summary = pd.read_parquet(out / "summary.parquet")
+    means = summary.groupby("policy")["detections"].mean()
+    for policy, found in means.items():  # DuckDB's averages are pandas' (the same file, read twice)
+        assert re.search(rf"{policy}\s.*{found:.1f}", printed), policy
+    assert "simulated" in printed or "truth" in printed  # the column's own description, read from the file

@@ -127,7 +127,8 @@ def described(arrow: pa.Table, name: str) -> pa.Table:
     return pa.Table.from_arrays(arrow.columns, schema=pa.schema(fields, metadata={"undertow.table": name}))
 
 
-DECLARATIONS = ("run",)  # modules beside this one, one per folder the tool writes; each declares on import
+# Modules beside this one, one per folder the tool writes; each declares on import.
+DECLARATIONS = ("run", "batch", "calibration", "search")
 
 
 def _load() -> None:

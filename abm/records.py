@@ -413,12 +413,10 @@ def write_atomically(path: Path, write: Callable[[Path], object]) -> Path:
     return path
 
 
-def write_parquet(frame: pd.DataFrame, path: Path, table_name: str | None = None) -> None:
+def write_parquet(frame: pd.DataFrame, path: Path, table_name: str) -> None:
     """Write table ``table_name`` of the data contract (:mod:`abm.tables`) atomically, with deterministic bytes
     (no pandas metadata, no timestamps) and each column's declaration as field metadata."""
-    table = pa.Table.from_pandas(frame, preserve_index=False).replace_schema_metadata(None)
-    if table_name is not None:  # tables of calibration and search folders are being declared
-        table = described(table, table_name)
+    table = described(pa.Table.from_pandas(frame, preserve_index=False).replace_schema_metadata(None), table_name)
     write_atomically(path, lambda tmp: pq.write_table(table, tmp, compression="zstd"))
 
 

@@ -21,7 +21,7 @@ from abm.records import write_json, write_parquet
 path = Path(sys.argv[1])
 for _ in range(60):
     write_json({"values": list(range(5000))}, path)
-    write_parquet(pd.DataFrame({"x": range(5000)}), path.with_suffix(".parquet"))
+    write_parquet(pd.DataFrame({"day": range(5000)}), path.with_suffix(".parquet"), "daily")
 """
 
 

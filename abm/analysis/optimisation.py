@@ -495,9 +495,9 @@ def _search(
         progress=progress,
     )
     result.search.update({"runs": evaluate.ran, "reused": evaluate.reused, "invalid": dict(evaluate.invalid)})
-    write_parquet(_plain(result.selection), out / "selection.parquet")
-    write_parquet(_plain(result.history), out / "history.parquet")
-    write_parquet(_plain(result.frontier), out / "frontier.parquet")
+    write_parquet(_plain(result.selection), out / "selection.parquet", "search/selection")
+    write_parquet(_plain(result.history), out / "history.parquet", "search/history")
+    write_parquet(_plain(result.frontier), out / "frontier.parquet", "search/frontier")
     write_atomically(out / "summary.txt", lambda tmp: tmp.write_text(result.summary() + "\n", encoding="utf-8"))
     if figure:
         fig = result.frontier_figure(words_from_data(plan.world_data))

@@ -245,13 +245,13 @@ def _calibrate(
 
 
 def _write_outputs(result: CalibrationResult, out: Path, figures: bool) -> None:
-    write_parquet(result.posterior.sample_frame(), out / "posterior.parquet")
-    write_parquet(result.to_frame(), out / "posterior_summary.parquet")
-    write_parquet(result.posterior.diagnostics(), out / "diagnostics.parquet")
+    write_parquet(result.posterior.sample_frame(), out / "posterior.parquet", "calibration/posterior")
+    write_parquet(result.to_frame(), out / "posterior_summary.parquet", "calibration/posterior_summary")
+    write_parquet(result.posterior.diagnostics(), out / "diagnostics.parquet", "calibration/diagnostics")
     if result.predictive is not None:
-        write_parquet(result.predictive.to_frame(), out / "predictive_check.parquet")
+        write_parquet(result.predictive.to_frame(), out / "predictive_check.parquet", "calibration/predictive_check")
     if result.self_check is not None:
-        write_parquet(result.self_check.to_frame(), out / SELF_CHECK_TABLE)
+        write_parquet(result.self_check.to_frame(), out / SELF_CHECK_TABLE, "calibration/self_check")
     else:
         (out / SELF_CHECK_TABLE).unlink(missing_ok=True)  # a check from earlier settings is not this one's
     write_json(result.reliability_record(), out / RELIABILITY_FILE)

@@ -217,8 +217,9 @@ class CalibrationStore:
         """Write a finished generation's particles and settings."""
         folder = self.out / f"gen-{generation.index}"
         if generation.reference is not None:
-            write_parquet(reference_frame(self.plan, generation.reference), folder / REFERENCE)
-        write_parquet(particles_frame(self.plan, generation), folder / PARTICLES)
+            write_parquet(reference_frame(self.plan, generation.reference), folder / REFERENCE,
+                          "calibration/generation/reference")
+        write_parquet(particles_frame(self.plan, generation), folder / PARTICLES, "calibration/generation/particles")
         write_json(
             {
                 "index": generation.index,

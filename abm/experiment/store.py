@@ -189,8 +189,8 @@ class Store:
                 failure_rows.append(json.loads((self.failed / f"{spec.run_id}.json").read_text(encoding="utf-8")))
         summary = _summary_frame(summary_rows, plan)
         failures = pd.DataFrame(failure_rows, columns=list(FAILURE_COLUMNS)).astype(FAILURE_COLUMNS)
-        write_parquet(summary, self.out / SUMMARY_TABLE)
-        write_parquet(failures, self.out / FAILURES_TABLE)
+        write_parquet(summary, self.out / SUMMARY_TABLE, "batch/summary")
+        write_parquet(failures, self.out / FAILURES_TABLE, "batch/failures")
         return summary, failures
 
 

@@ -71,7 +71,7 @@ class Evidence:
 
     per_run: pd.DataFrame  # one row per run: run_id, point, replication, factors, derived figures
     shares: dict[str, pd.DataFrame]  # run_id -> attempt shares (boarding point x time band)
-    check: pd.DataFrame  # one row per run x compared estimator (estimator_check.PER_RUN_COLUMNS + labels)
+    check: pd.DataFrame  # one row per run x compared estimator: run_id, point, replication, labels, PER_RUN_COLUMNS
     skipped: pd.DataFrame  # estimators that could not run or be compared, with why
     reliability: pd.DataFrame  # per estimator x behaviour (and "all"): bias, coverage, score, eligible
     trusted: pd.Series | None  # the pooled reliability row of the trusted estimator
@@ -156,6 +156,8 @@ def gather(batch: BatchView) -> Evidence:
     for frame in (check, skipped):
         frame.insert(0, "run_id", frame["run"].map(lambda p: Path(p).name))
     check, skipped = check.drop(columns="run"), skipped.drop(columns="run")
+    for at, key in enumerate(("point", "replication"), start=1):  # each row's design point and replication
+        check.insert(at, key, check["run_id"].map(per_run.set_index("run_id")[key]).astype("int64"))
     reliability = _reliability(check, len(per_run))
     pooled = reliability[reliability["behaviour"] == ALL_BEHAVIOURS] if len(reliability) else reliability
     trusted = best_row(pooled, among="reliable") if len(pooled) else None
@@ -164,8 +166,9 @@ def gather(batch: BatchView) -> Evidence:
     if station is not None and len(pooled):
         proxy = best_row(pooled[pooled["quantity"] == f"{PASSED_UNFOUND}:{station}"])
     per_run = _with_proxy(per_run, check, proxy)
-    write_parquet(per_run, batch.out / RUNS_TABLE)
-    write_parquet(check, batch.out / CHECK_TABLE)
+    # a persons count, null where the run has no such estimate (pandas reads it back as before: NaN where null)
+    write_parquet(per_run.astype({"truth_past_checks": "Int64"}), batch.out / RUNS_TABLE, "batch/briefing_runs")
+    write_parquet(check, batch.out / CHECK_TABLE, "batch/estimator_check")
     level = float(check["level"].iloc[0]) if len(check) else math.nan
     return Evidence(per_run, shares, check, skipped, reliability, trusted, proxy, station, level)
 

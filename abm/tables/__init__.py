@@ -24,13 +24,16 @@ from dataclasses import dataclass
 import pyarrow as pa
 
 RECORD_SETS = ("truth", "observed", "estimate", "setting", "key")
-KINDS = {"int": "int64", "float": "float64", "text": "string", "bool": "bool"}  # kind -> pandas dtype
+# kind -> pandas dtype; "number" (int or float) and "any" (any of the four) are for placeholder columns whose kind
+# is the world's or the file's: a search's decision variable, an experiment's factor level
+KINDS = {"int": "int64", "float": "float64", "text": "string", "bool": "bool", "number": "float64", "any": "object"}
 
 
 @dataclass(frozen=True)
 class Column:
     """One column: a name (``<word>`` marks a part named by the world or the file, e.g. ``method_<method>_checks``),
-    its kind of value (int, float, text, bool), unit (empty for text and identifiers), record set and meaning."""
+    its kind of value (int, float, text, bool; number or any where the world or the file decides), unit (empty for
+    text and identifiers), record set and meaning."""
 
     name: str
     kind: str
@@ -99,7 +102,9 @@ def dtypes(name: str) -> dict[str, str]:
 
 
 _ARROW_KIND = {"int": pa.types.is_integer, "float": pa.types.is_floating,
-               "text": lambda t: pa.types.is_string(t) or pa.types.is_large_string(t), "bool": pa.types.is_boolean}
+               "text": lambda t: pa.types.is_string(t) or pa.types.is_large_string(t), "bool": pa.types.is_boolean,
+               "number": lambda t: pa.types.is_integer(t) or pa.types.is_floating(t)}
+_ARROW_KIND["any"] = lambda t: any(holds(t) for holds in list(_ARROW_KIND.values())[:4])
 
 
 def described(arrow: pa.Table, name: str) -> pa.Table:
@@ -122,7 +127,8 @@ def described(arrow: pa.Table, name: str) -> pa.Table:
     return pa.Table.from_arrays(arrow.columns, schema=pa.schema(fields, metadata={"undertow.table": name}))
 
 
-DECLARATIONS = ("run",)  # modules beside this one, one per folder the tool writes; each declares on import
+# Modules beside this one, one per folder the tool writes; each declares on import.
+DECLARATIONS = ("run", "batch", "calibration", "search")
 
 
 def _load() -> None:

@@ -93,7 +93,7 @@ def fake_run(
         ),
     }
     for name, frame in truth.items():
-        write_parquet(frame.astype(TRUTH_COLUMNS[name]), directory / TRUTH_DIR / f"{name}.parquet")
+        write_parquet(frame.astype(TRUTH_COLUMNS[name]), directory / TRUTH_DIR / f"{name}.parquet", f"{TRUTH_DIR}/{name}")
     encounters = pd.DataFrame(
         [
             (k, d, 600.0, "detection", "gate_imaging", "station", "curtain_sided", "imaging_portal", "", "")
@@ -103,8 +103,9 @@ def fake_run(
         columns=list(OBSERVED_COLUMNS["encounters"]),
     ).astype(OBSERVED_COLUMNS["encounters"])
     for name in OBSERVED_COLUMNS:
-        write_parquet(encounters if name == "encounters" else empty_table(name), directory / OBSERVED_DIR / f"{name}.parquet")
-    write_parquet(pd.DataFrame({"day": np.arange(days)}), directory / "daily.parquet")
+        write_parquet(encounters if name == "encounters" else empty_table(name), directory / OBSERVED_DIR / f"{name}.parquet",
+                      f"{OBSERVED_DIR}/{name}")
+    write_parquet(pd.DataFrame({"day": np.arange(days)}), directory / "daily.parquet", "daily")
     write_json(world, directory / "world.json")
     write_json({"seed": seed, "days": days}, directory / "manifest.json")
     return directory

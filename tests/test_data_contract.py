@@ -13,7 +13,6 @@ figure can pass for one. Batch tables carry run_id, point and replication.
 
 from __future__ import annotations
 
-import copy
 import json
 import re
 import shutil

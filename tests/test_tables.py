@@ -29,8 +29,8 @@ def test_every_column_is_described_with_a_kind_and_a_record_set() -> None:
             if not c.description.strip() or c.kind not in KINDS or t.record_set_of(c) not in RECORD_SETS:
                 problems.append(f"{name}.{c.name}")
             # numbers have units; identifiers (ids, a place on the route, keys) are numbers without one
-            if c.kind in ("int", "float") and not c.unit and not c.name.endswith("_id") \
-                    and t.record_set_of(c) != "key" and c.name != "position":
+            identifier = c.name.endswith(("_id", "seed", "_draw")) or c.name == "position"
+            if c.kind in ("int", "float") and not c.unit and not identifier and t.record_set_of(c) != "key":
                 problems.append(f"{name}.{c.name}: a number without a unit")
         names = [c.name for c in t.columns]
         if len(names) != len(set(names)):

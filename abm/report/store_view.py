@@ -168,7 +168,10 @@ def shown_value(value: Any) -> str:
 
 
 def _level_text(value: Any) -> str:
-    return value if isinstance(value, str) else json.dumps(value)
+    """A factor level as text; numbers read back from Parquet are numpy scalars, which json cannot write."""
+    if isinstance(value, str):
+        return value
+    return json.dumps(value.item() if hasattr(value, "item") else value)
 
 
 def _factor_views(record: Mapping[str, Any]) -> list[FactorView]:

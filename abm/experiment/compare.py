@@ -22,7 +22,8 @@ from scipy import special  # Student-t quantiles without scipy.stats, whose impo
 from ..world.words import GENERIC, Words
 from .single import SUMMARY_LABELS, SUMMARY_SOURCES
 
-COMPARED_FIGURES = ("detections", "crossings", "displaced_out", "time_in_port_p95_min", "missed_departure_share")
+COMPARED_FIGURES = ("detections", "interdictions", "crossings", "displaced_out", "time_in_port_p95_min",
+                    "missed_departure_share")
 CONFIDENCE = 0.95
 MIN_REPLICATIONS = 5  # below this, intervals over replications are shown with a warning (common practice, no source)
 DETERMINISTIC = frozenset({"staff_hours"})  # set by the roster, the same in every replication

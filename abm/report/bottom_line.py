@@ -137,7 +137,8 @@ def _staff(ctx: "Context", point: int) -> str:
     exact = not (is_number(low) and is_number(high)) or low == high  # a roster's hours: the same every replication
     if diff == 0 and exact:
         return "needs no extra staff-hours"
-    text = f"needs {number(abs(diff), 'hours')} {'more' if diff > 0 else 'fewer'} staff-hours over the {ctx.batch.days} days"
+    more = "more" if diff > 0 else "fewer"
+    text = f"needs {number(abs(diff), 'hours')} {more} staff-hours over the {ctx.batch.days} days"
     return text if exact else text + f" (95% interval {interval(low, high, 'hours', True)})"
 
 

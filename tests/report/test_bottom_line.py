@@ -75,8 +75,9 @@ def test_a_gain_whose_interval_holds_zero_is_never_the_policy_to_prefer() -> Non
     assert "to prefer" not in line
     assert sentences[0].startswith("Across all runs, no policy is shown to detect more than Current roster within "
                                    "the delay limits")
-    assert "the largest (not distinguishable from chance) gain is under More checks: +3.6 (95% interval −1.0 to +8.2)" \
-        in sentences[0]
+    largest = ("the largest (not distinguishable from chance) gain is under More checks: "
+               "+3.6 (95% interval −1.0 to +8.2)")
+    assert largest in sentences[0]
     assert named_policy(_context(), ()) == (1, False)
 
 
@@ -95,12 +96,15 @@ def test_a_sure_gain_is_preferred_over_a_larger_gain_that_chance_could_give() ->
 
 
 def test_a_harm_beyond_chance_is_said_with_its_interval() -> None:
-    ctx = _context({"crossings_after_checks": {1: (24.8, 7.9, 41.7)}, "hazard_weighted_share": {1: (0.047, 0.0002, 0.094)}})
+    ctx = _context({"crossings_after_checks": {1: (24.8, 7.9, 41.7)},
+                    "hazard_weighted_share": {1: (0.047, 0.0002, 0.094)}})
     sentences = _sentences(bottom_line(ctx))
     assert len(sentences) <= 3, sentences
     people = sentences[-1]
-    assert "raises crossings of people who boarded after the last check by +24.8 (95% interval +7.9 to +41.7)" in people
-    assert "hazard of where and how deep they board (a 0–1 score) by +0.047 (95% interval +0.0002 to +0.094)" in people
+    assert "raises crossings of people who boarded after the last check by +24.8 (95% interval +7.9 to +41.7)" \
+        in people
+    hazard = "hazard of where and how deep they board (a 0–1 score) by +0.047 (95% interval +0.0002 to +0.094)"
+    assert hazard in people
     assert "beyond what chance could give" in people
     # a harm is said when the policy is preferred too
     sure = _context({"detections": {1: (3.6, 0.4, 6.8)}, "crossings": {1: (12.0, 2.0, 22.0)}})

@@ -244,8 +244,8 @@ def test_comparison_table_equals_a_pandas_computation(briefed: Briefed) -> None:
     point_of = runs.groupby("point")[["policy", "behaviour"]].first()
     cells = [c for c in briefed.page.cells if "data-point" in c and "data-mean" in c]
     figures = {c["data-figure"] for c in cells}
-    assert {"detections", "crossings", "displaced_out", "hazard_weighted_share", "time_in_port_p95_min",
-            "missed_departure_share", "staff_hours", "est_crossings"} <= figures
+    assert {"detections", "interdictions", "crossings", "displaced_out", "hazard_weighted_share",
+            "time_in_port_p95_min", "missed_departure_share", "staff_hours", "est_crossings"} <= figures
     assert len(cells) == len(figures) * len(point_of)
     for cell in cells:
         point, figure = int(cell["data-point"]), cell["data-figure"]

@@ -61,10 +61,7 @@ ON_TIME = Measure(
     "on_time_per_day", "Vehicles on their booked {service}", "vehicles a day", "observed", "rate", +1, SUMMARY_TABLE
 )
 # Derived (detections + interdictions): everyone enforcement stops, found in a check or at a boarding point.
-STOPPED = Measure(
-    "stopped", "Stopped in all", "persons found in checks or at boarding points", "observed", "count", +1,
-    SUMMARY_TABLE,
-)
+STOPPED = Measure("stopped", "Stopped in all", "persons", "observed", "count", +1, SUMMARY_TABLE)
 DERIVED = (ON_TIME, STOPPED)  # compared like the measures, shown where a section needs them (stakeholders)
 MEASURE = {m.key: m for m in (*MEASURES, *DERIVED)}  # labels hold the crossing's words as placeholders (worded())
 

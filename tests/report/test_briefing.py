@@ -281,6 +281,9 @@ def test_the_briefing_opens_with_a_bottom_line_of_at_most_three_sentences(briefe
     if "is the policy to prefer" in line:  # which policy, its gain with an interval, cost and people
         assert "95% interval" in sentences[0] and "staff-hours" in sentences[1] and "people who try" in line
         assert "time in port" in sentences[1]
+    elif "no policy is shown to detect more than" in sentences[0]:  # named only as a gain chance could give
+        assert "the largest (not distinguishable from chance) gain" in sentences[0] and "95% interval" in sentences[0]
+    assert "0 staff-hours" not in line and "takes" not in line
     assert 'data-claim="bottom-line"' in briefed.html
 
 

@@ -86,6 +86,7 @@ def cmd_schema(args: argparse.Namespace) -> int:
 
 def print_summary(summary: dict, title: str, words: Words | None = None) -> None:
     """A short readable table of a run's headline figures, in display labels, each with its record set."""
+    from .experiment.compare import readable
     from .experiment.single import METHOD_LABELS, SUMMARY_LABELS
     from .world.words import GENERIC
 
@@ -105,9 +106,12 @@ def print_summary(summary: dict, title: str, words: Words | None = None) -> None
     skipped = {"sources"} | (set() if words.departs else {"missed_departure_share"})
     rows = {label(key): (value, sources.get(key, "")) for key, value in summary.items() if key not in skipped}
     width = max(map(len, rows), default=0) + 2
+    shares = {label(key) for key in summary if key.endswith("_share")}  # shown as percentages
     for name, (value, source) in rows.items():
-        shown = "n/a" if value is None else (
-            f"{value:,.3f}" if isinstance(value, float) else (f"{value:,}" if isinstance(value, int) else str(value)))
+        if isinstance(value, float):  # 4,704 not 4,704.000; a share as a percentage to 2 significant digits
+            shown = readable(value, share=name in shares, figures=2 if name in shares else 3)
+        else:
+            shown = "n/a" if value is None else (f"{value:,}" if isinstance(value, int) else str(value))
         print(f"  {name:<{width}}{shown:>14}  {source}")
     print("  (truth = simulated ground truth; observed = what an agency would hold. Model estimates, not counts.)")
 

@@ -51,7 +51,7 @@ def rail_batch(tmp_path_factory: pytest.TempPathFactory) -> tuple[Path, str]:
 def test_rail_batch_speaks_of_trains_and_the_terminal(rail_batch: tuple[Path, str]) -> None:
     out, printed = rail_batch
     assert "15 of 15 runs complete" in printed
-    assert "Missed trains (share of vehicles)" in printed and "Time in the terminal, 95th percentile" in printed
+    assert "Missed trains (% of vehicles)" in printed and "Time in the terminal, 95th percentile" in printed
     summary = pd.read_parquet(out / "summary.parquet")
     assert len(summary) == 15 and summary["vehicles"].gt(0).all()
 

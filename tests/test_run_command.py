@@ -149,7 +149,7 @@ def test_run_prints_the_summary_table(first_run):
         row = next((line for line in lines if line.strip().startswith(label + "  ")), None)
         assert row is not None, f"table has no row for {key} ({label})"
         assert row.split()[-1] == summary["sources"][key]
-    assert "Time in port, 95th percentile (minutes)" in text and "Missed sailings (share of vehicles)" in text
+    assert "Time in port, 95th percentile (minutes)" in text and "Missed sailings (% of vehicles)" in text
     assert f"{summary['vehicles']:,}" in text
     assert "Traceback" not in first_run["stderr"]
 

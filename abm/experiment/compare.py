@@ -22,7 +22,8 @@ from scipy import special  # Student-t quantiles without scipy.stats, whose impo
 from ..world.words import GENERIC, Words
 from .single import SUMMARY_LABELS, SUMMARY_SOURCES
 
-COMPARED_FIGURES = ("detections", "crossings", "displaced_out", "time_in_port_p95_min", "missed_departure_share")
+COMPARED_FIGURES = ("detections", "interdictions", "crossings", "displaced_out", "time_in_port_p95_min",
+                    "missed_departure_share")
 CONFIDENCE = 0.95
 MIN_REPLICATIONS = 5  # below this, intervals over replications are shown with a warning (common practice, no source)
 DETERMINISTIC = frozenset({"staff_hours"})  # set by the roster, the same in every replication
@@ -196,12 +197,23 @@ def compare_store(
     return compare_points(summary, factors, compare_to, figures, confidence)
 
 
-def _number(x: Any, signed: bool = False) -> str:
-    if x is None or (isinstance(x, float) and not math.isfinite(x)):
+def readable(x: Any, signed: bool = False, share: bool = False, figures: int = 3) -> str:
+    """A number for a terminal: about ``figures`` significant digits, whole numbers from 100 up, an exact zero as 0.
+
+    ``share``: a share of 1 printed as a percentage (``signed``: percentage points, a change in a share).
+
+    >>> readable(4704.0), readable(-0.2, True), readable(0.0, True), readable(8.4), readable(0.000614, share=True)
+    ('4,704', '-0.200', '0', '8.40', '0.0614%')
+    """
+    if x is None or not math.isfinite(float(x)):
         return "n/a"
-    size = abs(x)
-    digits = 0 if size >= 1000 else 1 if size >= 10 else 2 if size >= 1 else 4
-    return f"{x:{'+' if signed else ''},.{digits}f}"
+    value = 100 * float(x) if share else float(x)
+    unit = (" pp" if signed else "%") if share else ""
+    if value == 0:
+        return f"0{unit}"
+    size = abs(float(f"{value:.{figures}g}"))  # rounded first, so 99.96 counts as 100
+    digits = 0 if size >= 10 ** (figures - 1) else figures - 1 - math.floor(math.log10(size))
+    return f"{value:{'+' if signed else ''},.{digits}f}{unit}"
 
 
 def format_comparison(table: pd.DataFrame, factors: Sequence[str], confidence: float = CONFIDENCE,
@@ -232,14 +244,19 @@ def format_comparison(table: pd.DataFrame, factors: Sequence[str], confidence: f
         lines.append(f"p{int(point):03d}  {shown}  ({role}{int(block['runs'].max())} runs)")
         header = f"  {'figure':<{width}}{'mean':>11}  {pct + ' interval':<24}"
         if not pd.isna(base):
-            header += f"{'difference':>11}  {pct + ' interval'}"
+            header += f"{'difference':>13}  {pct + ' interval'}"
         lines.append(header.rstrip())
         for _, row in block.iterrows():
-            interval = f"[{_number(row['low'])}, {_number(row['high'])}]"
-            text = f"  {label[row['figure']]:<{width}}{_number(row['mean']):>11}  {interval:<24}"
+            share = str(row["figure"]).endswith("_share")  # printed as a percentage, its changes in points
+
+            def shown(key: str, signed: bool = False) -> str:
+                return readable(row[key], signed, share)
+
+            interval = f"[{shown('low')}, {shown('high')}]"
+            text = f"  {label[row['figure']]:<{width}}{shown('mean'):>11}  {interval:<24}"
             if not pd.isna(row["compared_with"]):
-                dint = f"[{_number(row['difference_low'], True)}, {_number(row['difference_high'], True)}]"
-                text += f"{_number(row['difference'], True):>11}  {dint:<24}"
+                dint = f"[{shown('difference_low', True)}, {shown('difference_high', True)}]"
+                text += f"{shown('difference', True):>13}  {dint:<24}"
             lines.append(f"{text.rstrip()}  ({row['source']})" if row["source"] else text.rstrip())
     lines.append("")
     lines.append("(truth = simulated ground truth; observed = what an agency would hold. Model estimates, not counts.)")

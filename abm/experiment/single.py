@@ -82,7 +82,7 @@ SUMMARY_LABELS: dict[str, str] = {
     "staff_hours": "Staff-hours",
     "time_in_port_p50_min": "{Time_at_site}, median (minutes)",
     "time_in_port_p95_min": "{Time_at_site}, 95th percentile (minutes)",
-    "missed_departure_share": "{Missed} (share of vehicles)",
+    "missed_departure_share": "{Missed} (% of vehicles)",
 }
 METHOD_LABELS = {"checks": "checks", "alarms": "alarms", "false_alarms": "false alarms", "found": "persons found",
                  "sensitivity": "sensitivity"}

@@ -148,7 +148,10 @@ def _best_sentence(ctx: Context, scenario: tuple) -> Item | None:
         text = (f"{under}no policy within the delay limits detects more than the baseline, {policy}: "
                 f"{value_text(ctx, best, 'detections')} persons over {days} days.{outside}")
     else:
-        text = (f"{under}{policy} detects the most among the policies within the delay limits: "
+        row = ctx.cell(best, "detections")
+        sure = row is not None and excludes_zero(row["difference_low"], row["difference_high"])
+        most = "detects the most" if sure else "has the most detections on average"  # not "detects more" on chance
+        text = (f"{under}{policy} {most} among the policies within the delay limits: "
                 f"{value_text(ctx, best, 'detections')} persons over {days} days, {effect_text(ctx, best, 'detections')}.")
     return Item(text, data)
 

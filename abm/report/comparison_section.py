@@ -9,7 +9,7 @@ from .document import Cell, Paragraph, Section, Table, interval, is_number, numb
 from .evidence import RUNS_TABLE
 from .store_view import shown_value
 from .context import Context, capitalised, delay_change_text
-from .tables import MEASURES, ON_TIME, STAKEHOLDERS, is_within, stakeholder_view
+from .tables import MEASURES, ON_TIME, STAKEHOLDERS, STOPPED, is_within, stakeholder_view
 
 
 # -- 3. the comparison table -------------------------------------------------------------------------------
@@ -92,7 +92,8 @@ def section_comparison(ctx: Context) -> Section:
         f"Each cell: the mean over replications, its 95% interval ({INTERVAL_WORDS['log']}; for shares a "
         f"{INTERVAL_WORDS['logit']}), and (Δ) the paired difference against "
         f"{ctx.baseline_name} with its 95% interval (Student t-interval on the per-replication differences; common "
-        f"random numbers). Counts are over the {b.days} summarised days. Detections, {ctx.words.time_at_site}, "
+        f"random numbers). Counts are over the {b.days} summarised days. Detections (people found in checks), people "
+        f"stopped at boarding points (by patrols, before they board), {ctx.words.time_at_site}, "
         f"{ctx.words.missed + ' and ' if ctx.words.departs else 'and '}"
         "staff-hours are observed records; crossings, displacement out of the system and hazard-weighted boarding "
         "are model truth. Hazard-weighted boarding is the attempt-weighted mean hazard score (0 to 1) of where "
@@ -183,12 +184,14 @@ def section_assumptions(ctx: Context) -> Section:
         ))
     if b.policy is not None:
         blocks.append(Paragraph(
-            ctx.words.fill("Each stakeholder picks the policy best on the figure they answer for: the {site} operator the "
-                           "shortest 95th-percentile {time_at_site}"
-                           + (" (then fewest {missed}), " if ctx.words.departs else ", ")) + "enforcement the most detections (then "
-            "fewest crossings), safeguarding the lowest hazard-weighted boarding (then least displacement out of "
-            "the system). Each cost is the paired difference, on the other stakeholder's figure, between this pick "
-            "and the other's own pick.", lead="Who prefers what."))
+            ctx.words.fill("Each stakeholder picks the policy best on the figure they answer for: the {site} operator "
+                           "the shortest 95th-percentile {time_at_site}"
+                           + (" (then fewest {missed}), " if ctx.words.departs else ", "))
+            + "enforcement the most people stopped, found in checks or at boarding points (then fewest crossings) — "
+            "both count, since a patrol that stops people before they board serves enforcement as a check that finds "
+            "them does — safeguarding the lowest hazard-weighted boarding (then least displacement out of the "
+            "system). Each cost is the paired difference, on the other stakeholder's figure, between this pick and "
+            "the other's own pick.", lead="Who prefers what."))
         for index, scenario in enumerate(ctx.scenario_points):
             blocks.append(_stakeholder_table(ctx, scenario, index))
     return Section("assumptions", "Static against adaptive behaviour; stakeholders", tuple(blocks))
@@ -200,11 +203,13 @@ def _stakeholder_table(ctx: Context, scenario: tuple, index: int) -> Table:
     for _, r in view.iterrows():
         kind = ctx.measure[r["figure"]].kind
         own = f"{number(r['value'], kind)}\n{ctx.measure[r['figure']].label} ({ctx.measure[r['figure']].unit})"
-        if r["figure"] == "time_in_port_p95_min":  # the operator also reads throughput on time and missed departures
-            for extra in (ON_TIME.key, "missed_departure_share") if ctx.words.departs else ():
-                if extra in ctx.means.columns:
-                    m = ctx.measure[extra]
-                    own += f"\n{number(ctx.means.loc[r['point'], extra], m.kind)} {m.label.lower()} ({m.unit})"
+        # the operator also reads throughput on time and missed departures; enforcement the two kinds of stop
+        extras = {"time_in_port_p95_min": (ON_TIME.key, "missed_departure_share") if ctx.words.departs else (),
+                  STOPPED.key: ("detections", "interdictions")}.get(r["figure"], ())
+        for extra in extras:
+            if extra in ctx.means.columns:
+                m = ctx.measure[extra]
+                own += f"\n{number(ctx.means.loc[r['point'], extra], m.kind)} {m.label.lower()} ({m.unit})"
         own_view = next(s for s in STAKEHOLDERS if s.name == r["stakeholder"])
         prefers = str(r["policy"])
         if r["tied_with"]:

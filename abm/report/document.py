@@ -126,7 +126,20 @@ def interval(low: Any, high: Any, kind: str = "count", signed: bool = False, lik
     """An interval as "a to b" (with "to", so minus signs never read as a dash)."""
     if not (is_number(low) and is_number(high)):
         return "no interval"
-    return f"{number(low, kind, signed, like)} to {number(high, kind, signed, like)}"
+    return f"{_end(low, kind, signed, like)} to {_end(high, kind, signed, like)}"
+
+
+def _end(x: Any, kind: str, signed: bool, like: Any) -> str:
+    """An interval's end as :func:`number` prints it, but one that is not zero never prints as zero: it gets
+    one significant digit more than it would, so "+0.0002 to +0.094" does not read as an interval touching zero."""
+    text = number(x, kind, signed, like)
+    if float(x) == 0 or any(c in "123456789" for c in text):
+        return text
+    scale = 100 if kind in ("percent", "relative") else 1
+    digits = max(0, -math.floor(math.log10(abs(scale * float(x)))))
+    suffix = " pp" if kind == "percent" and signed else ("%" if kind in ("percent", "relative") else "")
+    sign = MINUS if x < 0 else ("+" if signed else "")
+    return f"{sign}{abs(scale * float(x)):.{digits}f}{suffix}"
 
 
 def with_interval(value: Any, low: Any, high: Any, kind: str = "count", signed: bool = False, pct: str = "95%") -> str:

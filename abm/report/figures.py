@@ -13,6 +13,7 @@ from __future__ import annotations
 
 import io
 import math
+import textwrap
 from collections.abc import Mapping, Sequence
 from dataclasses import dataclass
 
@@ -22,6 +23,8 @@ import pandas as pd
 from matplotlib.backends.backend_agg import FigureCanvasAgg
 from matplotlib.figure import Figure
 from matplotlib.patches import Rectangle
+from matplotlib.text import Text
+from matplotlib.transforms import Bbox
 from matplotlib.ticker import NullFormatter
 
 from ..experiment.compare import bounded_mean_interval
@@ -52,6 +55,7 @@ def _t(text: object) -> str:
 
 
 FOOTER_INCHES = 0.3  # room kept at the bottom for the footer line
+TITLE_CHARS = 36  # a heat-map panel title's line: about what a 3-inch panel holds at 9.5 points
 
 
 def _figure(width: float, height: float) -> Figure:
@@ -70,7 +74,7 @@ def _png(fig: Figure, footer: str) -> bytes:
     fig.text(0.01, 0.01, _t(footer), fontsize=7.5, color="#444444", ha="left", va="bottom")
     FigureCanvasAgg(fig)
     buffer = io.BytesIO()
-    fig.savefig(buffer, format="png", dpi=DPI)
+    fig.savefig(buffer, format="png", dpi=DPI, bbox_inches="tight", pad_inches=0.08)  # nothing clipped at an edge
     return buffer.getvalue()
 
 
@@ -92,6 +96,36 @@ def _err(triple: tuple[float, float, float]) -> list[list[float]]:
     return [[mean - low], [high - mean]]
 
 
+def _stack_labels(fig: Figure, ax, labels: Sequence) -> None:  # type: ignore[no-untyped-def]
+    """Move marker labels up, one above another, until none overlaps another: policies with near means
+    (a patrol policy that leaves detections and delay unchanged) would otherwise print their names on top
+    of each other. A thin line joins each moved label to its marker; the axis grows to keep them inside."""
+    FigureCanvasAgg(fig)
+    fig.draw_without_rendering()  # lays the figure out, so the labels' extents are final
+    renderer = fig.canvas.get_renderer()
+    placed: list = []
+
+    def extent(label) -> Bbox:  # type: ignore[no-untyped-def]
+        return Text.get_window_extent(label, renderer)  # the text alone: an annotation's own extent has its line
+
+    for label in sorted(labels, key=lambda a: (a.xy[1], a.xy[0])):  # lowest first, so labels stack upwards
+        box = extent(label)
+        for _ in range(len(labels)):  # a label never needs to pass more than every other one
+            if not any(box.overlaps(other) for other in placed):
+                break
+            x, y = label.xyann
+            label.xyann = (x, y + 1.2 * label.get_fontsize())  # one line of text and a gap
+            box = extent(label)
+        placed.append(box)
+    if placed:
+        top = max(box.y1 for box in placed)
+        axes_top = ax.get_window_extent(renderer).y1
+        if top > axes_top:  # room above the highest label, in data units
+            low, high = ax.get_ylim()
+            span = ax.get_window_extent(renderer).height
+            ax.set_ylim(low, high + (top - axes_top + 4) / span * (high - low))
+
+
 def frontier_figure(
     scenarios: Mapping[str, Sequence[SeriesPoint]],
     limits: Mapping[str, float],
@@ -106,6 +140,7 @@ def frontier_figure(
     with matplotlib.rc_context(STYLE):
         fig = _figure(8, 4.8)
         ax = fig.add_subplot()
+        labels = []
         for k, (scenario, points) in enumerate(scenarios.items()):
             colour, marker, line = SERIES_COLOURS[k % 4], MARKERS[k % 4], LINES[k % 4]
             for p in points:
@@ -114,9 +149,12 @@ def frontier_figure(
                     fmt=marker, color=colour, markersize=7 if p.on_frontier else 5,
                     markerfacecolor=colour if p.within else "white", capsize=2, linewidth=0.9,
                 )
-                # each scenario's labels on their own line above the marker, so near markers do not overprint
-                ax.annotate(_t(p.label), (p.time_in_port[0], p.detections[0]), xytext=(5, 4 + 10 * k),
-                            textcoords="offset points", fontsize=7.5, color=colour if k else "#222222")
+                labels.append(ax.annotate(
+                    _t(p.label), (p.time_in_port[0], p.detections[0]), xytext=(5, 4), textcoords="offset points",
+                    fontsize=7.5, color=colour if k else "#222222",
+                    arrowprops={"arrowstyle": "-", "color": colour, "linewidth": 0.5, "shrinkA": 1, "shrinkB": 4,
+                                "relpos": (0, 0.5)},  # from the label's left end, clear of labels below
+                ))
             on = sorted((p for p in points if p.on_frontier), key=lambda p: p.time_in_port[0])
             ax.plot([p.time_in_port[0] for p in on], [p.detections[0] for p in on], linestyle=line, color=colour,
                     marker=marker, markersize=0, linewidth=1.4, label=_t(f"{scenario}: efficient frontier"))
@@ -127,6 +165,7 @@ def frontier_figure(
         ax.set_ylabel(f"Detections over {days} days (persons)")
         ax.set_title("Detections against delay; each marker a policy (hollow: outside the delay limits)")
         ax.legend(loc="best", frameon=True, framealpha=0.9)
+        _stack_labels(fig, ax, labels)
         png = _png(fig, f"Source: observed records. Means over {replications} replications per policy, "
                         "bars 95% intervals. Model estimates, not counts.")
     return FigureBlock(
@@ -159,12 +198,17 @@ def heatmap_figure(
         fig = _figure(min(8.5, 3.0 * cols + 1.8), 2.6 * rows + 0.9)
         axes = fig.subplots(rows, cols, squeeze=False)
         image = None
-        for ax, (title, table, _, beyond) in zip(axes.flat, panels):
+        # panels of a row share their boarding points: named once, left of the row, so a second panel's names
+        # and axis label do not run into the panel beside it
+        shared = all(list(t.index) == list(panels[0][1].index) for _, t, _, _ in panels)
+        for n, (ax, (title, table, _, beyond)) in enumerate(zip(axes.flat, panels)):
+            first = n % cols == 0 or not shared
             values = table.to_numpy(dtype=float)
             image = ax.imshow(values, cmap=cmap, vmin=-span, vmax=span, aspect="auto")
             ax.set_xticks(range(table.shape[1]), [_words(c) for c in table.columns], rotation=30, ha="right")
-            ax.set_yticks(range(table.shape[0]), [_words(i) for i in table.index])
-            ax.set_title(_t(title))
+            ax.set_yticks(range(table.shape[0]), [_words(i) for i in table.index] if first else [])
+            # wrapped to the panel's width, so neighbouring titles do not run into each other
+            ax.set_title(_t("\n".join(textwrap.fill(line, TITLE_CHARS) for line in title.split("\n"))))
             for (i, j), value in np.ndenumerate(values):
                 shade = cmap((value + span) / (2 * span))
                 light = 0.299 * shade[0] + 0.587 * shade[1] + 0.114 * shade[2] > 0.55
@@ -175,12 +219,13 @@ def heatmap_figure(
                     ax.add_patch(Rectangle((j - 0.5, i - 0.5), 1, 1, fill=False,
                                            edgecolor="#d62728", linewidth=1.6))
             ax.set_xlabel("Time band")
-            ax.set_ylabel("Boarding point")
+            if first:
+                ax.set_ylabel("Boarding point")
         for ax in list(axes.flat)[len(panels):]:
             ax.set_visible(False)
         if image is not None:
             bar = fig.colorbar(image, ax=axes, fraction=0.05, pad=0.02)
-            bar.set_label("Change in share of attempts (percentage points)")
+            bar.set_label("Change in share of attempts\n(percentage points)")  # two lines: one outgrew the panel
         png = _png(fig, f"Source: truth (attempts). Mean over {replications} paired replications. "
                         "Model estimates, not counts.")
     return FigureBlock(

@@ -16,7 +16,7 @@ from typing import Any
 import pandas as pd
 
 from ..analysis.estimator_check import cached_results, method_slug, slug_of, truth_for_run
-from ..port.load import OVERLOAD, load_report
+from ..port.load import MINUTES_PER_DAY, OVERLOAD, load_report
 from ..records import DEPARTURES_FILE, QUEUE_HOURS_FILE, QUEUES_FILE
 from ..world.words import Words
 from .context import SAFETY, percent
@@ -313,7 +313,10 @@ def _departures_by_time(view: RunView) -> pd.DataFrame:
     d = view.departures
     by = d.groupby("time", sort=False).agg(booked=("booked", "sum"), left=("left", "sum"), missed=("missed", "sum"),
                                            full=("full", "sum"), days=("day", "nunique"))
-    by = by.loc[d.sort_values("minute").drop_duplicates("time")["time"]]
+    # by clock time: ``minute`` counts from the run's start, so the first day's times would come first and a
+    # time the timetable adds on a later day (weekend, changed headway) would follow them out of order
+    clock = (d["minute"] % MINUTES_PER_DAY).groupby(d["time"]).min()
+    by = by.loc[clock.sort_values(kind="stable").index]
     if "cancelled" in d:  # runs made before departures could be late or cancelled lack these
         late = d[d["late_minutes"] > 0].groupby("time")["late_minutes"]
         by = by.join(d.groupby("time").agg(cancelled=("cancelled", "sum"))).join(

@@ -40,6 +40,8 @@ class Measure:
 
 MEASURES: tuple[Measure, ...] = (
     Measure("detections", "Detections", "persons", "observed", "count", +1, SUMMARY_TABLE),
+    # A patrol's direct effect: people stopped before they board, which detections (found in checks) never show.
+    Measure("interdictions", "Stopped at boarding points", "persons", "observed", "count", +1, SUMMARY_TABLE),
     Measure("crossings", "Crossings", "persons", "truth", "count", -1, SUMMARY_TABLE),
     Measure("crossings_after_checks", "… boarded after the last check", "persons", "truth", "count", -1, RUNS_TABLE),
     Measure("truth_past_checks", "Past the last check unfound", "person-attempts", "truth", "count", -1, RUNS_TABLE),
@@ -58,7 +60,10 @@ MEASURES: tuple[Measure, ...] = (
 ON_TIME = Measure(
     "on_time_per_day", "Vehicles on their booked {service}", "vehicles a day", "observed", "rate", +1, SUMMARY_TABLE
 )
-MEASURE = {m.key: m for m in (*MEASURES, ON_TIME)}  # labels hold the crossing's words as placeholders (worded())
+# Derived (detections + interdictions): everyone enforcement stops, found in a check or at a boarding point.
+STOPPED = Measure("stopped", "Stopped in all", "persons", "observed", "count", +1, SUMMARY_TABLE)
+DERIVED = (ON_TIME, STOPPED)  # compared like the measures, shown where a section needs them (stakeholders)
+MEASURE = {m.key: m for m in (*MEASURES, *DERIVED)}  # labels hold the crossing's words as placeholders (worded())
 
 
 def worded(words: Words) -> dict[str, Measure]:
@@ -73,6 +78,8 @@ def run_table(batch: BatchView, evidence: Evidence) -> pd.DataFrame:
     if "missed_departure_share" in runs and "vehicles" in runs:
         missed = runs["missed_departure_share"].astype(float).fillna(0.0)
         runs[ON_TIME.key] = runs["vehicles"].astype(float) * (1 - missed) / runs["days"].astype(float)
+    if "detections" in runs and "interdictions" in runs:
+        runs[STOPPED.key] = runs["detections"].astype(float) + runs["interdictions"].astype(float)
     return runs
 
 
@@ -82,7 +89,7 @@ def comparison(batch: BatchView, runs: pd.DataFrame, confidence: float = CONFIDE
     The long format of :func:`abm.experiment.compare.compare_points`, with each
     measure's record set in ``source``.
     """
-    keys = [m.key for m in (*MEASURES, ON_TIME) if m.key in runs.columns]
+    keys = [m.key for m in (*MEASURES, *DERIVED) if m.key in runs.columns]
     table = compare_points(runs, batch.labels, batch.compare_to, keys, confidence)
     # a figure no run has (missed departures at a land border) is left out, not shown as n/a everywhere
     table = table[table.groupby("figure")["mean"].transform(lambda m: m.notna().any())].reset_index(drop=True)
@@ -246,7 +253,10 @@ class Stakeholder:
 STAKEHOLDERS: tuple[Stakeholder, ...] = (
     Stakeholder("Operator", "time_in_port_p95_min", "missed_departure_share",
                 "throughput on time, {time_at_site}, {missed}", "{Site} operator", "throughput, {time_at_site}"),
-    Stakeholder("Enforcement", "detections", "crossings", "detections, crossings"),
+    # Enforcement judges by everyone stopped, not detections alone: a patrol that stops people before they board
+    # serves enforcement as a check that finds them does, and detections alone would make it look useless.
+    Stakeholder("Enforcement", "stopped", "crossings",
+                "people stopped (found in checks or at boarding points), crossings"),
     Stakeholder("Safeguarding", "hazard_weighted_share", "displaced_out",
                 "hazard-weighted boarding, displacement out of the system"),
 )

@@ -119,3 +119,25 @@ def test_zero_spread_over_few_replications_is_not_exact() -> None:
     assert row.loc["staff_hours", "difference_low"] == row.loc["staff_hours", "difference_high"] == 20
     assert "warning: only 3 replications per design point" in format_comparison(compare_points(
         summary, ["policy"], {0: None, 1: 0}, ["crossings"]), ["policy"])
+
+
+def test_printed_numbers_have_about_three_significant_digits() -> None:
+    from abm.experiment.compare import compare_points, readable
+
+    assert [readable(v) for v in (4704.0, 145.8, 46.2, 8.4, 0.2, -0.0143)] == \
+        ["4,704", "146", "46.2", "8.40", "0.200", "-0.0143"]
+    assert readable(0.0) == readable(0.0, signed=True) == "0"  # an exact zero, not +0.0000
+    assert readable(5.69, signed=True) == "+5.69" and readable(99.96) == "100"
+    assert readable(0.000614, share=True) == "0.0614%" and readable(0.0004, True, True) == "+0.0400 pp"
+    assert readable(0.000614, share=True, figures=2) == "0.061%"
+    summary = pd.DataFrame({
+        "point": [0] * 5 + [1] * 5, "replication": list(range(5)) * 2, "policy": ["a"] * 5 + ["b"] * 5,
+        "detections": [40.0, 44.0, 50.0, 46.0, 51.0] * 2,  # the same in every pair: a difference of exactly 0
+        "missed_departure_share": [0.0006, 0.0005, 0.0007, 0.0006, 0.0008, 0.001, 0.0009, 0.0011, 0.001, 0.0012],
+    })
+    text = format_comparison(compare_points(summary, ["policy"], {0: None, 1: 0},
+                                            ["detections", "missed_departure_share"]), ["policy"])
+    detections = next(line for line in text.splitlines()[-5:] if "Found in checks" in line)
+    assert detections.split()[-4:] == ["0", "[0,", "0]", "(observed)"]
+    missed = next(line for line in text.splitlines()[-5:] if "(% of vehicles)" in line)
+    assert "0.104%" in missed and "+0.0400 pp" in missed and "0.0000" not in text

@@ -244,8 +244,8 @@ def test_comparison_table_equals_a_pandas_computation(briefed: Briefed) -> None:
     point_of = runs.groupby("point")[["policy", "behaviour"]].first()
     cells = [c for c in briefed.page.cells if "data-point" in c and "data-mean" in c]
     figures = {c["data-figure"] for c in cells}
-    assert {"detections", "crossings", "displaced_out", "hazard_weighted_share", "time_in_port_p95_min",
-            "missed_departure_share", "staff_hours", "est_crossings"} <= figures
+    assert {"detections", "interdictions", "crossings", "displaced_out", "hazard_weighted_share",
+            "time_in_port_p95_min", "missed_departure_share", "staff_hours", "est_crossings"} <= figures
     assert len(cells) == len(figures) * len(point_of)
     for cell in cells:
         point, figure = int(cell["data-point"]), cell["data-figure"]
@@ -281,6 +281,9 @@ def test_the_briefing_opens_with_a_bottom_line_of_at_most_three_sentences(briefe
     if "is the policy to prefer" in line:  # which policy, its gain with an interval, cost and people
         assert "95% interval" in sentences[0] and "staff-hours" in sentences[1] and "people who try" in line
         assert "time in port" in sentences[1]
+    elif "no policy is shown to detect more than" in sentences[0]:  # named only as a gain chance could give
+        assert "the largest (not distinguishable from chance) gain" in sentences[0] and "95% interval" in sentences[0]
+    assert "0 staff-hours" not in line and "takes" not in line
     assert 'data-claim="bottom-line"' in briefed.html
 
 

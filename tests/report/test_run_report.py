@@ -217,3 +217,17 @@ def test_brief_refuses_what_it_cannot_read_in_one_line(port: Briefed, tmp_path: 
     path.write_bytes(path.read_bytes()[:-10])
     err = refused(str(damaged))
     assert "encounters.parquet" in err and "damaged" in err
+
+
+def test_departures_are_listed_by_clock_time() -> None:
+    """A timetable that changes on a later day (a weekend's hourly trains) adds its times in clock order, not
+    after the first day's (minutes count from the run's start)."""
+    from types import SimpleNamespace
+
+    rows = [(0, "00:00", 0), (0, "02:30", 150), (0, "23:15", 1395), (5, "01:00", 5 * 1440 + 60),
+            (5, "02:00", 5 * 1440 + 120), (6, "00:00", 6 * 1440)]
+    departures = pd.DataFrame([{"day": d, "time": t, "minute": float(m), "booked": 1, "left": 1, "missed": 0,
+                                "full": False} for d, t, m in rows])
+    by = run_sections._departures_by_time(SimpleNamespace(departures=departures))  # type: ignore[arg-type]
+    assert list(by.index) == ["00:00", "01:00", "02:00", "02:30", "23:15"]
+    assert by.loc["00:00", "days"] == 2

@@ -326,7 +326,8 @@ def ztp_regression(
             # an empty level is an encounter with no vehicle: a person stopped at a boarding point
             level = f"'{lonely[0]}'" if lonely[0] else "(none: stopped at a boarding point, no vehicle)"
             raise EstimatorCannotRun(
-                ZTP_REGRESSION, f"{column} {level} has nobody seen more than once, so its rate has no ML estimate",
+                ZTP_REGRESSION,
+                f"{column} level {level} has nobody seen more than once, so its rate has no ML estimate",
             )
     design = (
         pd.get_dummies(persons[covariates].astype(str), prefix_sep="=", drop_first=True, dtype=float)

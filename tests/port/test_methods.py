@@ -16,7 +16,6 @@ Seeds are fixed, so every outcome is deterministic.
 from __future__ import annotations
 
 import copy
-import hashlib
 import math
 from pathlib import Path
 from typing import Any
@@ -32,6 +31,8 @@ from abm.port.day import Attempts, DayEngine, Staffing
 from abm.port.layout import MONTH_DAYS, build_layout
 from abm.port.queues import serve_fifo
 from abm.world import WorldFileError, parse_world
+
+from .digests import record_sha256
 
 ROOT = Path(__file__).resolve().parents[2]
 DEMO = ROOT / "worlds" / "kestrel_quay" / "world.yaml"
@@ -171,7 +172,7 @@ def load(path: Path) -> dict[str, Any]:
 def test_world_without_the_options_writes_the_records_it_wrote_before(name: str, path: Path, tmp_path: Path) -> None:
     run_to_directory(parse_world(without_conditions(load(path)), name), "fixture", 20, 11, tmp_path / name)
     for file, digest in BEFORE[name].items():
-        got = hashlib.sha256((tmp_path / name / file).read_bytes()).hexdigest()
+        got = record_sha256(tmp_path / name / file)
         assert got == digest, f"{name}/{file} changed for a world without the new options"
 
 

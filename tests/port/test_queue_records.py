@@ -15,14 +15,11 @@ made by the code before these tables existed.
 
 from __future__ import annotations
 
-import hashlib
 import math
 from pathlib import Path
 
 import numpy as np
 import pandas as pd
-import pyarrow as pa
-import pyarrow.parquet as pq
 import pytest
 from scipy import stats
 
@@ -30,6 +27,8 @@ from abm.experiment.single import run_to_directory, simulate
 from abm.port.tallies import tally_pass
 from abm.records import DEPARTURES_FILE, QUEUE_HOURS_FILE, QUEUES_FILE, RecordBook
 from abm.world import load_world
+
+from .digests import record_sha256
 
 ROOT = Path(__file__).resolve().parents[2]
 KESTREL = ROOT / "worlds" / "kestrel_quay" / "world.yaml"
@@ -65,25 +64,12 @@ BEFORE: dict[str, dict[str, str]] = {
 }
 
 
-def _sha256(path: Path) -> str:
-    """The digest of a file's bytes; for Parquet, of the file written again without the data contract's
-    descriptions (abm.tables adds them as metadata since these digests were taken), so the values, types and
-    encoding are compared byte for byte."""
-    if path.suffix != ".parquet":
-        return hashlib.sha256(path.read_bytes()).hexdigest()
-    table = pq.read_table(path)
-    bare = pa.Table.from_arrays(table.columns, schema=pa.schema([f.remove_metadata() for f in table.schema]))
-    sink = pa.BufferOutputStream()
-    pq.write_table(bare, sink, compression="zstd")
-    return hashlib.sha256(sink.getvalue().to_pybytes()).hexdigest()
-
-
 @pytest.mark.parametrize("name,path", [("kestrel_quay", KESTREL), ("corran_ridge", CORRAN)])
 def test_the_other_records_are_byte_identical_to_before(name: str, path: Path, tmp_path: Path) -> None:
     out = tmp_path / name
     run_to_directory(load_world(path), "hash", 14, 3, out)
     for file, digest in BEFORE[name].items():
-        assert _sha256(out / file) == digest, f"{name}: {file} changed"
+        assert record_sha256(out / file) == digest, f"{name}: {file} changed"
     for file in (QUEUES_FILE, QUEUE_HOURS_FILE, DEPARTURES_FILE):
         assert (out / file).is_file()
 

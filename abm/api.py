@@ -129,18 +129,14 @@ def read_run(run_dir: str | Path) -> RunTables:
 
     import pandas as pd
 
-    from .observed import OBSERVED_DIR
-    from .records import TRUTH_DIR
+    from .observed import read_observed
+    from .records import read_truth
     from .run_files import require_whole
 
     folder = Path(run_dir)
     require_whole(folder)
-
-    def tables(sub: str) -> dict[str, pd.DataFrame]:
-        return {p.stem: pd.read_parquet(p) for p in sorted((folder / sub).glob("*.parquet"))}
-
     return RunTables(
-        truth=tables(TRUTH_DIR), observed=tables(OBSERVED_DIR), daily=pd.read_parquet(folder / "daily.parquet"),
+        truth=read_truth(folder), observed=read_observed(folder), daily=pd.read_parquet(folder / "daily.parquet"),
         summary=json.loads((folder / "summary.json").read_text(encoding="utf-8")),
         manifest=json.loads((folder / "manifest.json").read_text(encoding="utf-8")),
     )

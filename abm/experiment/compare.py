@@ -137,16 +137,16 @@ def compare_points(
     """One row per design point and figure: mean and interval over replications, paired difference vs baseline.
 
     ``compare_to`` maps a point to the point it is compared with (None: it is a
-    baseline, or the design has none). Points with no completed run are absent.
+    baseline, or the design has none). Points with no completed run are absent, and so is a figure no run has
+    (missed departures at a land border): it is left out rather than shown as n/a everywhere.
     """
+    figures = [f for f in figures if f in summary and summary[f].notna().any()]
     rows: list[dict[str, Any]] = []
     by_point = {int(point): group.set_index("replication") for point, group in summary.groupby("point", sort=True)}
     for point, group in by_point.items():
         base = compare_to.get(point)
         reference = by_point.get(base) if base is not None else None
         for figure in figures:
-            if figure not in group:
-                continue
             values = group[figure].to_numpy(dtype=float)
             mean, low, high = bounded_mean_interval(values, figure_scale(figure), confidence)
             few = np.isfinite(values).sum() < MIN_REPLICATIONS and figure not in DETERMINISTIC
@@ -220,8 +220,6 @@ def format_comparison(table: pd.DataFrame, factors: Sequence[str], confidence: f
                       words: Words = GENERIC) -> str:
     """The comparison as a readable text table, one block per design point, figures in display labels."""
     pct = f"{confidence:.0%}"
-    # a figure no run has (missed departures at a land border) is left out, not printed as n/a in every block
-    table = table[table.groupby("figure")["runs"].transform("max") > 0] if len(table) else table
     label = {f: words.fill(SUMMARY_LABELS.get(f, f)) for f in table["figure"].unique()} if len(table) else {}
     width = max([len(v) for v in label.values()] + [24]) + 2
     lines = [

@@ -211,6 +211,7 @@ def _stakeholder_table(ctx: Context, scenario: tuple, index: int) -> Table:
                 m = ctx.measure[extra]
                 own += f"\n{number(ctx.means.loc[r['point'], extra], m.kind)} {m.label.lower()} ({m.unit})"
         own_view = next(s for s in STAKEHOLDERS if s.name == r["stakeholder"])
+        wants = own_view.wants if ctx.words.departs else (own_view.wants_without_departures or own_view.wants)
         prefers = str(r["policy"])
         if r["tied_with"]:
             settled = (f"chosen on {ctx.measure[r['tie_break']].label.lower()}" if r["tie_break"] != r["figure"]
@@ -218,7 +219,7 @@ def _stakeholder_table(ctx: Context, scenario: tuple, index: int) -> Table:
             prefers += f"\ntied with {r['tied_with']} on {ctx.measure[r['figure']].label.lower()}; {settled}"
         cells = [
             Cell(f"{ctx.stakeholder_name(own_view)}\n"
-                 f"{ctx.words.fill(own_view.wants if ctx.words.departs else own_view.wants_without_departures)}",
+                 f"{ctx.words.fill(wants)}",
                  header=True),
             Cell(prefers, {"stakeholder": r["stakeholder"], "point": r["point"]}),
             Cell(own),

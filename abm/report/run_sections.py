@@ -16,6 +16,7 @@ from typing import Any
 import pandas as pd
 
 from ..analysis.estimator_check import cached_results, method_slug, slug_of, truth_for_run
+from ..experiment.single import SUMMARY_LABELS
 from ..port.load import MINUTES_PER_DAY, OVERLOAD, load_report
 from ..records import DEPARTURES_FILE, QUEUE_HOURS_FILE, QUEUES_FILE
 from ..world.words import Words
@@ -102,8 +103,7 @@ def section_run(view: RunView) -> Section:
 def _totals_rows(view: RunView) -> list[tuple[Cell, ...]]:
     s, sources, w = view.summary, view.summary.get("sources", {}), view.words
     rows = []
-    extra = [("time_in_port_p50_min", f"{w.time_at_site.capitalize()}, median (minutes)", "minutes"),
-             ("time_in_port_p95_min", f"{w.time_at_site.capitalize()}, 95th percentile (minutes)", "minutes")]
+    extra = [(key, w.fill(SUMMARY_LABELS[key]), "minutes") for key in ("time_in_port_p50_min", "time_in_port_p95_min")]
     if view.world.departures is not None:
         extra.append(("missed_departure_share", f"Vehicles that missed their booked {w.service}", "percent"))
     for key, label, kind in (*TOTALS, *extra):

@@ -91,8 +91,6 @@ def comparison(batch: BatchView, runs: pd.DataFrame, confidence: float = CONFIDE
     """
     keys = [m.key for m in (*MEASURES, *DERIVED) if m.key in runs.columns]
     table = compare_points(runs, batch.labels, batch.compare_to, keys, confidence)
-    # a figure no run has (missed departures at a land border) is left out, not shown as n/a everywhere
-    table = table[table.groupby("figure")["mean"].transform(lambda m: m.notna().any())].reset_index(drop=True)
     table["source"] = table["figure"].map(lambda k: MEASURE[k].source)
     return table
 
@@ -244,10 +242,6 @@ class Stakeholder:
     wants: str  # the figures they look at, in words (placeholders for the crossing's words, see Words.fill)
     label: str = ""  # display name with placeholders; the name when empty
     wants_without_departures: str = ""  # ``wants`` where vehicles leave when cleared; ``wants`` when empty
-
-    def __post_init__(self) -> None:
-        if not self.wants_without_departures:
-            object.__setattr__(self, "wants_without_departures", self.wants)
 
 
 STAKEHOLDERS: tuple[Stakeholder, ...] = (

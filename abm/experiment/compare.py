@@ -197,10 +197,12 @@ def compare_store(
     return compare_points(summary, factors, compare_to, figures, confidence)
 
 
-def readable(x: Any, signed: bool = False, share: bool = False, figures: int = 3) -> str:
+def readable(x: Any, signed: bool = False, share: bool = False, figures: int = 3, scale: float | None = None) -> str:
     """A number for a terminal: about ``figures`` significant digits, whole numbers from 100 up, an exact zero as 0.
 
     ``share``: a share of 1 printed as a percentage (``signed``: percentage points, a change in a share).
+    ``scale``: digits as for a number this large (a difference printed to its interval's precision, so a tiny
+    difference in a wide interval does not show more digits than the interval).
 
     >>> readable(4704.0), readable(-0.2, True), readable(0.0, True), readable(8.4), readable(0.000614, share=True)
     ('4,704', '-0.200', '0', '8.40', '0.0614%')
@@ -211,7 +213,11 @@ def readable(x: Any, signed: bool = False, share: bool = False, figures: int = 3
     unit = (" pp" if signed else "%") if share else ""
     if value == 0:
         return f"0{unit}"
-    size = abs(float(f"{value:.{figures}g}"))  # rounded first, so 99.96 counts as 100
+    if scale is not None and math.isfinite(scale):
+        value_scale = max(abs(value), abs(100 * scale if share else scale))
+    else:
+        value_scale = abs(value)
+    size = abs(float(f"{value_scale:.{figures}g}"))  # rounded first, so 99.96 counts as 100
     digits = 0 if size >= 10 ** (figures - 1) else figures - 1 - math.floor(math.log10(size))
     return f"{value:{'+' if signed else ''},.{digits}f}{unit}"
 
@@ -247,14 +253,15 @@ def format_comparison(table: pd.DataFrame, factors: Sequence[str], confidence: f
         for _, row in block.iterrows():
             share = str(row["figure"]).endswith("_share")  # printed as a percentage, its changes in points
 
-            def shown(key: str, signed: bool = False) -> str:
-                return readable(row[key], signed, share)
+            def shown(key: str, signed: bool = False, scale: float | None = None) -> str:
+                return readable(row[key], signed, share, scale=scale)
 
             interval = f"[{shown('low')}, {shown('high')}]"
             text = f"  {label[row['figure']]:<{width}}{shown('mean'):>11}  {interval:<24}"
             if not pd.isna(row["compared_with"]):
                 dint = f"[{shown('difference_low', True)}, {shown('difference_high', True)}]"
-                text += f"{shown('difference', True):>13}  {dint:<24}"
+                width_of = max(abs(float(row["difference_low"])), abs(float(row["difference_high"])))
+                text += f"{shown('difference', True, width_of):>13}  {dint:<24}"
             lines.append(f"{text.rstrip()}  ({row['source']})" if row["source"] else text.rstrip())
     lines.append("")
     lines.append("(truth = simulated ground truth; observed = what an agency would hold. Model estimates, not counts.)")

@@ -132,7 +132,7 @@ def delay_change_text(ctx: Context, point: int, short: bool = False) -> str:
     text = f"p95 {tip}" if short else f"95th-percentile {ctx.words.time_at_site} {tip}"
     if not ctx.words.departs:  # a land border: vehicles leave when cleared, nothing to miss
         return text
-    missed = number(s["missed_change_points"], "rate", True)
+    missed = number(s["missed_change_points"], "ratio", True)
     return text + (f", missed {missed} pp" if short else f", {ctx.words.missed} {missed} percentage points")
 
 

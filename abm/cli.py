@@ -287,7 +287,7 @@ def cmd_batch(args: argparse.Namespace) -> int:
         # every estimator's result becomes summary columns, so briefings can weigh them against truth
         ok = batch_command(
             args.experiment, args.out, args.executor, args.workers, args.scheduler, args.resume, command,
-            extensions=(cached_estimates,), allow_large=args.allow_large,
+            extensions=(cached_estimates,), allow_large=args.allow_large, shared_output=args.shared_output,
         )
     except KeyboardInterrupt:
         return _interrupted("batch", args.out)
@@ -303,7 +303,7 @@ def cmd_calibrate(args: argparse.Namespace) -> int:
     try:
         calibrate_command(
             args.calibration, args.out, args.executor, args.workers, args.scheduler, args.resume, args.check,
-            ["undertow", *args.argv], args.allow_large,
+            ["undertow", *args.argv], args.allow_large, shared_output=args.shared_output, keep_runs=args.keep_runs,
         )
     except KeyboardInterrupt:
         return _interrupted("calibrate", args.out)
@@ -338,7 +338,7 @@ def cmd_optimise(args: argparse.Namespace) -> int:
     try:
         optimise_command(
             args.optimisation, args.out, args.executor, args.workers, args.scheduler, args.resume, args.check,
-            ["undertow", *args.argv], args.allow_large,
+            ["undertow", *args.argv], args.allow_large, shared_output=args.shared_output, keep_runs=args.keep_runs,
         )
     except KeyboardInterrupt:
         return _interrupted("optimise", args.out)
@@ -387,6 +387,8 @@ def _non_negative_float(text: str) -> float:
 
 ALLOW_LARGE_HELP = ("start a plan above the size ceilings (e.g. for a cluster); never one that cannot fit one "
                     "worker's memory or the disk")
+SHARED_OUTPUT_HELP = ("with --scheduler: the workers see --out at the same path and write runs there themselves "
+                      "(by default they send each run back and this command writes it)")
 
 
 def version_text() -> str:
@@ -434,6 +436,7 @@ def build_parser() -> argparse.ArgumentParser:
     )
     batch.add_argument("--workers", type=_positive_int, help="worker processes (default: one per CPU)")
     batch.add_argument("--scheduler", type=_scheduler_address, metavar="ADDRESS", help="an existing Dask scheduler, e.g. tcp://10.0.0.5:8786")
+    batch.add_argument("--shared-output", action="store_true", help=SHARED_OUTPUT_HELP)
     batch.add_argument("--resume", action="store_true", help="finish a batch in --out: skip complete runs, redo the rest")
     batch.add_argument("--allow-large", action="store_true", help=ALLOW_LARGE_HELP)
     batch.set_defaults(func=cmd_batch)
@@ -546,7 +549,10 @@ def build_parser() -> argparse.ArgumentParser:
         )
         search.add_argument("--workers", type=_positive_int, help="worker processes (default: one per CPU)")
         search.add_argument("--scheduler", type=_scheduler_address, metavar="ADDRESS", help="an existing Dask scheduler, e.g. tcp://10.0.0.5:8786")
+        search.add_argument("--shared-output", action="store_true", help=SHARED_OUTPUT_HELP)
         search.add_argument("--resume", action="store_true", help="take up an interrupted run in --out: finished runs are kept")
+        search.add_argument("--keep-runs", action="store_true", help="keep every candidate's run directory (by default "
+                            "only its figures are kept, a few hundred bytes each)")
         search.add_argument("--check", action="store_true", help="only validate the file and say what it would run")
         search.add_argument("--allow-large", action="store_true", help=ALLOW_LARGE_HELP)
         search.set_defaults(func=func)

@@ -28,11 +28,12 @@ from ..errors import InputError, refuse_unwritable
 from ..experiment.budget import SHOWN_VEHICLE_DAYS, Keys, PlanSize, busiest_day, refuse
 from ..experiment.project_file import read_project_file
 from ..experiment.executors import Executor, choose_executor, make_executor
+from ..experiment.journal import Journal
 from ..experiment.lock import acquire, release
 from ..experiment.out_folder import held_record
 from ..experiment.single import package_versions
 from ..experiment.worker import SUMMARY_FILE, RunTask, is_complete
-from ..records import METHODS_FILE, write_atomically, write_json, write_parquet
+from ..records import METHODS_FILE, RecordBook, write_atomically, write_json, write_parquet
 from ..world import WorldFileError, file_hash, parse_world, read_yaml_mapping
 from ..world.paths import PathProblem, apply_changes, set_path
 from ..world.fields import NumberOnly, Strict, unit
@@ -42,6 +43,7 @@ from .policy_search import (
     Variable, candidate_id, search_policy,
 )
 
+SIMULATIONS_TABLE = "search/simulations"
 CURRENT = "current"  # the name given to the world as it stands when the file names no such policy
 
 class OptimisationFileError(WorldFileError):
@@ -54,9 +56,10 @@ class OptimisationFileError(WorldFileError):
 class ModelEvaluator:
     """Candidates as changed worlds, replications as runs through a batch executor (entered by the caller).
 
-    A run lives in ``OUT/runs/<candidate id>/<seed>``; one found complete is
-    read, not run again. A candidate whose changed world is invalid gives NaN
-    figures (the search counts it infeasible).
+    A run is lean by default: its worker sends back the run's :data:`FIGURES` and the journal in ``OUT`` keeps
+    them (:mod:`abm.experiment.journal`); with ``keep_runs`` it also leaves its run directory in
+    ``OUT/runs/<candidate id>/<seed>``. A run found in the journal, or kept complete, is not run again. A
+    candidate whose changed world is invalid gives NaN figures (the search counts it infeasible).
     """
 
     figures = FIGURES
@@ -70,6 +73,7 @@ class ModelEvaluator:
         out: Path,
         executor: Executor,
         command: Sequence[str] = (),
+        keep_runs: bool = False,
     ) -> None:
         self.world = dict(world)
         self.world_sha256 = world_sha256
@@ -77,6 +81,8 @@ class ModelEvaluator:
         self.out = Path(out)
         self.executor = executor
         self.command = tuple(command)
+        self.keep_runs = keep_runs
+        self.journal = Journal(self.out, SIMULATIONS_TABLE, "run")
         self.ran = 0
         self.reused = 0
         self.invalid: dict[str, str] = {}  # candidate id -> why its world is invalid
@@ -86,6 +92,7 @@ class ModelEvaluator:
 
     def __call__(self, candidates: Sequence[Mapping[str, Any]], seeds: Sequence[int]) -> np.ndarray:
         out = np.full((len(candidates), len(seeds), len(self.figures)), np.nan)
+        held = self.journal.rows()
         tasks, where = [], {}
         for k, changes in enumerate(candidates):
             cid = candidate_id(changes)
@@ -97,15 +104,23 @@ class ModelEvaluator:
                 continue
             write_json({"candidate": cid, "set": dict(changes)}, self.out / "candidates" / f"{cid}.json")
             for r, seed in enumerate(seeds):
+                key = f"{cid}/{seed}"
+                where[key] = (k, r)
                 run_dir = self.run_dir(cid, seed)
-                where[f"{cid}/{seed}"] = (k, r, run_dir)
-                if is_complete(run_dir):
+                if key in held:
                     self.reused += 1
                     continue
-                run_dir.parent.mkdir(parents=True, exist_ok=True)
+                if self.keep_runs and is_complete(run_dir):
+                    self.journal.add(self._row(key, cid, seed, run_figures(
+                        json.loads((run_dir / SUMMARY_FILE).read_text(encoding="utf-8")),
+                        pd.read_parquet(run_dir / METHODS_FILE, columns=["day", "check_minutes"]), self.warmup)))
+                    self.reused += 1
+                    continue
+                if self.keep_runs:
+                    run_dir.parent.mkdir(parents=True, exist_ok=True)
                 tasks.append(
                     RunTask(
-                        run_id=f"{cid}/{seed}",
+                        run_id=key,
                         point=k,
                         replication=r,
                         seed=int(seed),
@@ -113,28 +128,44 @@ class ModelEvaluator:
                         warmup=self.warmup,
                         world=world,
                         world_sha256=self.world_sha256,
-                        out=str(run_dir.resolve()),
+                        out=str(run_dir.resolve()) if self.keep_runs else "",
                         command=self.command,
                         values={path: value for path, value in changes.items() if isinstance(value, (int, float, str))},
+                        reduce=SearchFigures(self.warmup),
                     )
                 )
-        failed = set()
         for answer in self.executor.imap(tasks):
             if answer["ok"]:
                 self.ran += 1
+                cid, seed = answer["run_id"].rsplit("/", 1)
+                self.journal.add(self._row(answer["run_id"], cid, int(seed), answer["reduced"]))
             else:
-                failed.add(answer["run_id"])
                 print(f"policy search: run {answer['run_id']} failed: {answer['error']}", file=sys.stderr)
-        for key, (k, r, run_dir) in where.items():
-            if key not in failed:
-                out[k, r] = run_figures(run_dir, self.warmup)
+        self.journal.end_round()
+        rows = self.journal.rows()
+        for key, (k, r) in where.items():
+            if key in rows:
+                out[k, r] = [float(rows[key][figure]) for figure in self.figures]
         return out
 
+    def _row(self, key: str, cid: str, seed: int, figures: Sequence[float]) -> dict[str, Any]:
+        return {"run": key, "candidate": cid, "seed": int(seed), **dict(zip(self.figures, map(float, figures),
+                                                                             strict=True))}
 
-def run_figures(run_dir: Path, warmup: int) -> np.ndarray:
-    """A run's :data:`FIGURES`: its summary's numbers, check hours after the warm-up and encounters."""
-    summary = json.loads((run_dir / SUMMARY_FILE).read_text(encoding="utf-8"))
-    methods = pd.read_parquet(run_dir / METHODS_FILE, columns=["day", "check_minutes"])
+
+@dataclass(frozen=True)
+class SearchFigures:
+    """What a worker computes from a candidate's run in memory: the run's :data:`FIGURES`."""
+
+    warmup: int
+
+    def __call__(self, records: RecordBook, summary: Mapping[str, Any]) -> list[float]:
+        return run_figures(summary, records.methods_table(), self.warmup)
+
+
+def run_figures(summary: Mapping[str, Any], methods: pd.DataFrame, warmup: int) -> list[float]:
+    """A run's :data:`FIGURES` from its summary and methods table: the summary's numbers, check hours after the
+    warm-up and encounters."""
     derived = {
         "check_hours": float(methods.loc[methods["day"] >= warmup, "check_minutes"].sum()) / 60.0,
         "encounters": float(summary["detections"]) + float(summary["interdictions"]),
@@ -143,7 +174,7 @@ def run_figures(run_dir: Path, warmup: int) -> np.ndarray:
     for figure in FIGURES:
         value = derived[figure] if figure in derived else summary.get(figure)
         values.append(float(value) if isinstance(value, (int, float)) and not isinstance(value, bool) else math.nan)
-    return np.array(values)
+    return values
 
 
 # -- optimisation files -----------------------------------------------------------------------
@@ -472,23 +503,27 @@ def run_optimisation(
     command: Sequence[str] = (),
     figure: bool = True,
     progress: Callable[[int], None] | None = None,
+    keep_runs: bool = False,
 ) -> PolicySearchResult:
-    """Search a validated plan with an executor the caller has entered; write the tables, summary and figure."""
+    """Search a validated plan with an executor the caller has entered; write the tables, summary and figure.
+
+    ``keep_runs`` keeps every candidate run's directory; by default only its figures are kept.
+    """
     out = Path(out)
     lock = _open_store(out, plan, command, resume)
     try:  # the folder is locked from open to the end: one writer at a time
-        return _search(plan, out, executor, command, figure, progress)
+        return _search(plan, out, executor, command, figure, progress, keep_runs)
     finally:
         release(lock)
 
 
 def _search(
     plan: OptimisationPlan, out: Path, executor: Executor, command: Sequence[str], figure: bool,
-    progress: Callable[[int], None] | None,
+    progress: Callable[[int], None] | None, keep_runs: bool,
 ) -> PolicySearchResult:
     """The body of :func:`run_optimisation`, in an opened folder."""
     evaluate = ModelEvaluator(
-        plan.world_data, plan.world_sha256, plan.spec.days, plan.spec.warmup_days, out, executor, command
+        plan.world_data, plan.world_sha256, plan.spec.days, plan.spec.warmup_days, out, executor, command, keep_runs
     )
     result = search_policy(
         evaluate, plan.problem, plan.settings, seed=plan.spec.seed, policies=plan.policies, name=plan.spec.name,
@@ -541,6 +576,8 @@ def optimise_command(
     check: bool,
     command: Sequence[str],
     allow_large: bool = False,
+    shared_output: bool = False,
+    keep_runs: bool = False,
 ) -> None:
     """``undertow optimise``: validate (``check``) or search, and print the summary."""
     if check:
@@ -548,16 +585,16 @@ def optimise_command(
         return
     if out is None:
         raise InputError("--out: a policy search needs an output folder (or pass --check to only validate the file)")
-    executor = choose_executor(executor, workers, scheduler)
+    executor = choose_executor(executor, workers, scheduler, shared_output)
     refuse_unwritable(out)
     plan = load_optimisation(path, allow_large, Path(out))
     if plan.size is not None and plan.size.vehicle_days > SHOWN_VEHICLE_DAYS:
         print(plan.size.describe(), file=sys.stderr)
     from ..progress import progress
 
-    with make_executor(executor, workers, scheduler) as runner, progress(
+    with make_executor(executor, workers, scheduler, shared_output=shared_output) as runner, progress(
         plan.settings.maxiter, "generations", "policy search"
     ) as bar:
-        result = run_optimisation(plan, out, runner, resume, command, progress=bar.update)
+        result = run_optimisation(plan, out, runner, resume, command, progress=bar.update, keep_runs=keep_runs)
     print(result.summary())
     print(f"\nselection.parquet, history.parquet, frontier.parquet, summary.txt and frontier.png in {out}", file=sys.stderr)

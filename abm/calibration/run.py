@@ -174,22 +174,27 @@ def run_calibration(
     resume: bool = False,
     command: Sequence[str] = (),
     figures: bool = True,
+    keep_runs: bool = False,
 ) -> CalibrationResult:
-    """Run a validated calibration with an executor the caller has entered (so several calibrations can share one)."""
+    """Run a validated calibration with an executor the caller has entered (so several calibrations can share one).
+
+    ``keep_runs`` keeps every candidate's run directory; by default only its figures are kept.
+    """
     out = Path(out)
     store = CalibrationStore(out, plan)
     store.open(command, resume)
     try:  # the folder is locked from open to close: one writer at a time
-        return _calibrate(plan, out, executor, store, command, figures)
+        return _calibrate(plan, out, executor, store, command, figures, keep_runs)
     finally:
         store.close()
 
 
 def _calibrate(
-    plan: CalibrationPlan, out: Path, executor: Executor, store: CalibrationStore, command: Sequence[str], figures: bool
+    plan: CalibrationPlan, out: Path, executor: Executor, store: CalibrationStore, command: Sequence[str], figures: bool,
+    keep_runs: bool,
 ) -> CalibrationResult:
     """The body of :func:`run_calibration`, on an opened store."""
-    simulate = ModelSimulator(plan, out, executor, command)
+    simulate = ModelSimulator(plan, out, executor, command, keep_runs)
     spec = plan.spec
     names = dict(summary_names=plan.summary_spec.names(), latent_names=LATENT)
     if plan.method == "smc":
@@ -270,14 +275,20 @@ def calibrate(
     command: Sequence[str] = (),
     figures: bool = True,
     allow_large: bool = False,
+    shared_output: bool = False,
+    keep_runs: bool = False,
 ) -> CalibrationResult:
-    """Validate and run the calibration file at ``path`` into ``out`` (``resume`` takes up an interrupted one)."""
+    """Validate and run the calibration file at ``path`` into ``out`` (``resume`` takes up an interrupted one).
+
+    ``keep_runs`` keeps every candidate's run directory (by default only its figures are kept); ``shared_output``
+    as for :func:`abm.experiment.batch.run_batch`.
+    """
     refuse_unwritable(out)
     plan = load_calibration(path, allow_large, Path(out))
     if plan.size is not None and plan.size.vehicle_days > SHOWN_VEHICLE_DAYS:
         print(plan.size.describe(), file=sys.stderr)
-    with make_executor(executor, workers, scheduler) as runner:
-        return run_calibration(plan, out, runner, resume, command, figures)
+    with make_executor(executor, workers, scheduler, shared_output=shared_output) as runner:
+        return run_calibration(plan, out, runner, resume, command, figures, keep_runs)
 
 
 def calibrate_command(
@@ -290,6 +301,8 @@ def calibrate_command(
     check: bool,
     command: Sequence[str],
     allow_large: bool = False,
+    shared_output: bool = False,
+    keep_runs: bool = False,
 ) -> None:
     """``undertow calibrate``: validate (``check``) or run, and print the summary."""
     if check:
@@ -297,7 +310,8 @@ def calibrate_command(
         return
     if out is None:
         raise InputError("--out: a calibration needs an output folder (or pass --check to only validate the file)")
-    executor = choose_executor(executor, workers, scheduler)
-    result = calibrate(path, out, executor, workers, scheduler, resume, command, allow_large=allow_large)
+    executor = choose_executor(executor, workers, scheduler, shared_output)
+    result = calibrate(path, out, executor, workers, scheduler, resume, command, allow_large=allow_large,
+                       shared_output=shared_output, keep_runs=keep_runs)
     print(result.summary())
     print(f"\nTables, summary.txt and figures in {out}", file=sys.stderr)

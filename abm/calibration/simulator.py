@@ -3,35 +3,45 @@
 :class:`ModelSimulator` is a :class:`~abm.calibration.abc.BatchSimulator`:
 each parameter row becomes a candidate world (the priors' paths set), each
 simulation a :class:`~abm.experiment.worker.RunTask` for the batch executors,
-each run a run directory ``OUT/<label>`` (``OUT/gen-<k>/p<i>``,
-``OUT/predictive/p<i>``). A run directory that is already complete, with the
-same parameters and seed in its manifest, is not run again, which is how
-``--resume`` skips finished simulations, also after a change of settings that
-leaves the draws alone (summaries, accept share, more draws: the prior is
-sampled row by row). The summaries of
-a candidate come from its ``observed/`` tables, like those of the target; its
-latent quantities (crossings and totals) from its own summary, which reads its
-truth: candidate runs are the calibration's own, so that is allowed.
+labelled ``<stage>/p<i>`` (``gen-<k>/p<i>``, ``predictive/p<i>``). A candidate
+is lean by default: its worker computes the candidate's summaries (from its
+observed tables, the same statistics as the target's) and latent quantities
+(crossings and totals, from its own truth: candidate runs are the
+calibration's own, so that is allowed) in memory and sends back only those
+numbers, which the stage's journal keeps (:mod:`abm.experiment.journal`).
+With ``keep_runs`` each candidate also leaves its run directory
+``OUT/<label>``, as an ordinary run.
+
+A simulation already in the journal with the same parameters, seed and
+summary statistics is not run again, which is how ``--resume`` skips finished
+simulations, also after a change of settings that leaves the draws alone
+(accept share, more draws: the prior is sampled row by row). A kept run
+directory of the same parameters and seed also serves after the summary
+statistics changed: its summaries are computed again from its records.
 
 Layout of ``OUT``::
 
     calibration.json          the calibration, its digest, the observed summaries, package versions, the command
-    gen-<k>/p<i>/             one run directory per simulation of generation k
+    gen-<k>/simulations.parquet  every simulation of generation k: label, seed, parameters, summaries, latent
+                              quantities (simulations.jsonl while a round of them is under way)
     gen-<k>/particles.parquet the particles kept in generation k: parameters, latent quantities, weight,
                               distance, run label and summaries (and unadjusted values, for rejection)
     gen-<k>/generation.json   tolerance, simulations, the distance's scale and the settings' digest
     gen-0/reference.parquet   every prior draw of generation 0 with its summaries and latent quantities
                               (what rejection ABC and the self-check read)
-    predictive/p<i>/          the posterior predictive runs
+    predictive/simulations.parquet  the posterior predictive runs
+    gen-<k>/p<i>/, predictive/p<i>/  with --keep-runs: one run directory per simulation
     posterior.parquet, posterior_summary.parquet, diagnostics.parquet, predictive_check.parquet,
     self_check.parquet, summary.txt, figures/*.png
 """
 
 from __future__ import annotations
 
+import dataclasses
+import hashlib
 import json
 import shutil
-from collections.abc import Sequence
+from collections.abc import Callable, Mapping, Sequence
 from pathlib import Path
 from typing import Any
 
@@ -40,21 +50,25 @@ import pandas as pd
 
 from ..errors import InputError
 from ..experiment.executors import Executor
+from ..experiment.journal import Journal, same_numbers
 from ..experiment.lock import acquire, release
 from ..experiment.out_folder import held_record
 from ..experiment.single import package_versions
 from ..experiment.worker import SUMMARY_FILE, RunTask, is_complete
 from ..observed import OBSERVED_DIR, conform
 from ..progress import progress
-from ..records import write_json, write_parquet
+from ..records import RecordBook, write_json, write_parquet
 from .abc import Generation, ReferenceTable, Simulated
 from .config import LATENT, CalibrationPlan
+from .summaries import SummarySpec
 
 HEADER = "calibration.json"
 PARTICLES = "particles.parquet"
 GENERATION = "generation.json"
 REFERENCE = "reference.parquet"
 MANIFEST_FILE = "manifest.json"
+SIMULATIONS_TABLE = "calibration/generation/simulations"
+SUMMARIES_KEY = "summaries_sha256"
 
 
 class CalibrationStoreError(InputError):
@@ -65,16 +79,51 @@ class CandidateRunFailed(InputError):
     """A candidate run raised; the calibration cannot go on without it."""
 
 
-class ModelSimulator:
-    """Candidate runs through a batch executor (entered by the caller), one run directory each."""
+@dataclasses.dataclass(frozen=True)
+class CandidateFigures:
+    """What a worker computes from a candidate run in memory: its summary statistics and latent quantities."""
 
-    def __init__(self, plan: CalibrationPlan, out: Path, executor: Executor, command: Sequence[str] = ()) -> None:
+    spec: SummarySpec
+    warmup: int
+
+    def __call__(self, records: RecordBook, summary: Mapping[str, Any]) -> dict[str, list[float]]:
+        observed = records.observed_tables()
+        return {"summaries": candidate_summaries(self.spec, observed.__getitem__, self.warmup),
+                "latent": latent_of(summary)}
+
+
+def candidate_summaries(spec: SummarySpec, table: Callable[[str], pd.DataFrame], warmup: int) -> list[float]:
+    """A candidate's summaries from the observed tables ``table(name)`` gives (in memory, or from its run
+    directory), computed as for the observed records calibrated to."""
+    names = ("encounters", "checks") if spec.needs_checks() else ("encounters",)
+    return [float(v) for v in spec.compute({name: conform(name, table(name)) for name in names}, warmup)]
+
+
+def latent_of(summary: Mapping[str, Any]) -> list[float]:
+    """A candidate run's latent quantities, from its summary (NaN where it has none)."""
+    return [float(summary[key]) if summary.get(key) is not None else float("nan") for key in LATENT]
+
+
+class ModelSimulator:
+    """Candidate runs through a batch executor (entered by the caller), kept in each stage's journal."""
+
+    def __init__(
+        self, plan: CalibrationPlan, out: Path, executor: Executor, command: Sequence[str] = (), keep_runs: bool = False
+    ) -> None:
         self.plan = plan
         self.out = Path(out)
         self.executor = executor
         self.command = tuple(command)
+        self.keep_runs = keep_runs
+        self.figures = CandidateFigures(plan.summary_spec, plan.spec.warmup_days)
+        self.summaries_sha256 = hashlib.sha256(
+            json.dumps([dataclasses.asdict(plan.summary_spec), plan.spec.warmup_days], sort_keys=True).encode()
+        ).hexdigest()
         self.ran = 0  # simulations run by this process
-        self.reused = 0  # simulations found complete in the store
+        self.reused = 0  # simulations found finished in the store
+
+    def _values(self, theta: np.ndarray) -> dict[str, float]:
+        return {name: float(v) for name, v in zip(self.plan.priors.names, theta, strict=True)}
 
     def _task(self, theta: np.ndarray, seed: int, label: str, index: int) -> RunTask:
         spec = self.plan.spec
@@ -87,26 +136,39 @@ class ModelSimulator:
             warmup=spec.warmup_days,
             world=self.plan.world_for(theta),
             world_sha256=self.plan.world_sha256,
-            out=str((self.out / label).resolve()),
+            out=str((self.out / label).resolve()) if self.keep_runs else "",
             command=self.command,
-            values={name: float(v) for name, v in zip(self.plan.priors.names, theta, strict=True)},
+            values=self._values(theta),
+            reduce=self.figures,
         )
 
     def __call__(self, theta: np.ndarray, seeds: np.ndarray, labels: Sequence[str]) -> Simulated:
-        dirs = [self.out / label for label in labels]
-        index = {label: i for i, label in enumerate(labels)}
-        todo = [i for i, d in enumerate(dirs) if not self._reusable(d, theta[i], seeds[i])]
-        for folder in {dirs[i].parent for i in todo}:
-            folder.mkdir(parents=True, exist_ok=True)
-        summaries: list[np.ndarray | None] = [None] * len(labels)
+        journal = Journal(self.out / labels[0].split("/")[0], SIMULATIONS_TABLE, "simulation")
+        held = journal.rows()
+        todo = []
+        for i, label in enumerate(labels):
+            row = held.get(label)
+            if row is not None and row.get(SUMMARIES_KEY) == self.summaries_sha256 and self._same(row, theta[i], seeds[i]):
+                continue
+            if self.keep_runs and self._reusable(self.out / label, theta[i], seeds[i]):
+                journal.add(self._row(label, theta[i], seeds[i], self.figures_from_directory(self.out / label)))
+                continue
+            todo.append(i)
         failures = []
         if todo:
+            for folder in {(self.out / labels[i]).parent for i in todo}:
+                folder.mkdir(parents=True, exist_ok=True)
             tasks = (self._task(theta[i], seeds[i], labels[i], i) for i in todo)
-            stage = labels[0].split("/")[0]
-            with progress(len(todo), "runs", f"candidate runs ({stage})") as bar:
+            where = {labels[i]: i for i in todo}
+            with progress(len(todo), "runs", f"candidate runs ({journal.folder.name})") as bar:
                 for answer in self.executor.imap(tasks):
                     bar.update(1)
-                    self._take(answer, index, dirs, summaries, failures)
+                    if answer["ok"]:
+                        i = where[answer["run_id"]]
+                        journal.add(self._row(labels[i], theta[i], seeds[i], answer["reduced"]))
+                    else:
+                        failures.append(f"{answer['run_id']}: {answer['error']}")
+        journal.end_round()
         self.ran += len(todo) - len(failures)
         self.reused += len(labels) - len(todo)
         if failures:
@@ -114,24 +176,22 @@ class ModelSimulator:
                 f"{len(failures)} candidate run(s) failed, first {sorted(failures)[0]}; fix the cause and rerun with "
                 "--resume (finished runs are kept)"
             )
-        rows = [row if row is not None else self._summaries(d) for row, d in zip(summaries, dirs, strict=True)]
-        latent = np.array([[_figure(d, key) for key in LATENT] for d in dirs], dtype=float)
-        return Simulated(np.vstack(rows), latent)
+        rows = journal.rows()
+        names = [f"summary:{name}" for name in self.plan.summary_spec.names()]
+        summaries = np.array([[float(rows[label][n]) for n in names] for label in labels], dtype=float)
+        latent = np.array([[float(rows[label][k]) for k in LATENT] for label in labels], dtype=float)
+        return Simulated(summaries.reshape(len(labels), len(names)), latent)
 
-    def _take(
-        self,
-        answer: dict[str, Any],
-        index: dict[str, int],
-        dirs: list[Path],
-        summaries: list[np.ndarray | None],
-        failures: list[str],
-    ) -> None:
-        """Read a finished run as it comes back, while the workers go on with the others."""
-        if answer["ok"]:
-            i = index[answer["run_id"]]
-            summaries[i] = self._summaries(dirs[i])
-        else:
-            failures.append(f"{answer['run_id']}: {answer['error']}")
+    def _same(self, row: Mapping[str, Any], theta: np.ndarray, seed: int) -> bool:
+        return int(row["seed"]) == int(seed) and same_numbers(row, self._values(theta))
+
+    def _row(self, label: str, theta: np.ndarray, seed: int, figures: Mapping[str, list[float]]) -> dict[str, Any]:
+        """A journal row: label, seed, parameters, latent quantities, summaries and the summaries' digest."""
+        row: dict[str, Any] = {"simulation": label, "seed": int(seed), **self._values(theta)}
+        row.update(zip(LATENT, figures["latent"], strict=True))
+        row.update(zip((f"summary:{n}" for n in self.plan.summary_spec.names()), figures["summaries"], strict=True))
+        row[SUMMARIES_KEY] = self.summaries_sha256
+        return row
 
     def _reusable(self, run_dir: Path, theta: np.ndarray, seed: int) -> bool:
         """A complete run of these very parameters and seed; a run of other ones (settings changed) is removed.
@@ -143,24 +203,18 @@ class ModelSimulator:
             return False
         manifest = json.loads((run_dir / MANIFEST_FILE).read_text(encoding="utf-8"))
         held = manifest.get("experiment_run", {}).get("values", {})
-        wanted = {name: float(v) for name, v in zip(self.plan.priors.names, theta, strict=True)}
-        if held == wanted and manifest.get("seed") == int(seed):
+        if held == self._values(theta) and manifest.get("seed") == int(seed):
             return True
         shutil.rmtree(run_dir)
         return False
 
-    def _summaries(self, run_dir: Path) -> np.ndarray:
-        """A candidate run's summaries, from the observed tables they need (the same statistics as the target's)."""
-        spec = self.plan.summary_spec
-        names = ("encounters", "checks") if spec.needs_checks() else ("encounters",)
-        tables = {name: conform(name, pd.read_parquet(run_dir / OBSERVED_DIR / f"{name}.parquet")) for name in names}
-        return spec.compute(tables, self.plan.spec.warmup_days)
-
-
-def _figure(run_dir: Path, key: str) -> float:
-    summary = json.loads((run_dir / SUMMARY_FILE).read_text(encoding="utf-8"))
-    value = summary.get(key)
-    return float(value) if value is not None else float("nan")
+    def figures_from_directory(self, run_dir: Path) -> dict[str, list[float]]:
+        """A kept candidate run's figures, read from its run directory."""
+        summary = json.loads((run_dir / SUMMARY_FILE).read_text(encoding="utf-8"))
+        return {"summaries": candidate_summaries(self.figures.spec,
+                                                 lambda name: pd.read_parquet(run_dir / OBSERVED_DIR / f"{name}.parquet"),
+                                                 self.figures.warmup),
+                "latent": latent_of(summary)}
 
 
 class CalibrationStore:

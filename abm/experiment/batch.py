@@ -87,8 +87,12 @@ def run_batch(
     calibration: str | Path | None = None,
     on_warning: Callable[[str], None] | None = None,
     allow_large: bool = False,
+    shared_output: bool = False,
 ) -> BatchResult:
     """Run (or finish, with ``resume``) every run of an experiment into ``out``.
+
+    With a ``scheduler``, the cluster's workers send each run's files back to be written here, unless
+    ``shared_output`` says they see ``out`` at the same path (then they write in place).
 
     ``calibration`` overrides the file's ``calibration:`` folder (see :func:`load_plan`).
     ``on_warning`` is given each load warning (:func:`load_warnings`) before any run starts, and the plan's
@@ -101,7 +105,8 @@ def run_batch(
     in parallel, and the store calls them again when it builds the summary.
     """
     # The executor first: a process pool's server then imports the engine while the plan is read.
-    runner = make_executor(executor, workers, scheduler, preload=[extension.__module__ for extension in extensions])
+    runner = make_executor(executor, workers, scheduler, [extension.__module__ for extension in extensions],
+                           shared_output)
     refuse_unwritable(out)
     plan = load_plan(experiment, calibration, allow_large, Path(out))
     store = Store(out)
@@ -175,12 +180,13 @@ def batch_command(
     command: Sequence[str],
     extensions: Sequence[SummaryExtension] = (),
     allow_large: bool = False,
+    shared_output: bool = False,
 ) -> bool:
     """``undertow batch``: run the batch, print the comparison; False when some runs failed (noted on stderr)."""
-    executor = choose_executor(executor, workers, scheduler)
+    executor = choose_executor(executor, workers, scheduler, shared_output)
     result = run_batch(experiment, out, executor, workers, scheduler, resume, command, extensions=extensions,
-                       on_warning=print_warning, allow_large=allow_large)
-    done = result.total - result.failed
+                       on_warning=print_warning, allow_large=allow_large, shared_output=shared_output)
+    done = len(result.summary)  # runs read back whole from the store, not answers that said so
     print(f"{result.plan.spec.name}: {done} of {result.total} runs complete ({result.ran} run now) -> {result.out}")
     print(format_comparison(result.comparison, [f.label for f in result.plan.factors],
                             words=words_from_data(result.plan.world_data)))
@@ -189,4 +195,4 @@ def batch_command(
             f"undertow batch: {result.failed} of {result.total} runs failed; errors in {Path(out) / FAILURES_TABLE}",
             file=sys.stderr,
         )
-    return not result.failed
+    return done == result.total

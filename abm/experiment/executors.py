@@ -5,8 +5,13 @@ and yields the same small answers (in completion order), so a run's result
 never depends on where it ran. Only a bounded window of tasks is in flight at
 once: a batch of tens of thousands of runs does not sit in memory as messages.
 
-Workers write run directories themselves, so on a cluster the batch folder
-must be on a file system every worker sees at the same path.
+Local workers write run directories themselves. The workers of a cluster
+reached with a scheduler address need not see the output folder: they send
+each run's files back and this process writes them (see
+:mod:`abm.experiment.worker`), unless the folder is declared shared
+(``--shared-output``), when they write in place as local workers do. Either
+way every answer is settled here, so a run reported complete is one this
+process has read back.
 """
 
 from __future__ import annotations
@@ -21,12 +26,13 @@ from collections import deque
 from collections.abc import Iterable, Iterator, Sequence
 from concurrent.futures import FIRST_COMPLETED, Future, ProcessPoolExecutor, wait
 from concurrent.futures.process import BrokenProcessPool
+from dataclasses import replace
 from types import TracebackType
 from typing import Any, Protocol
 
 from ..errors import InputError
 from .fork_server import start_fork_server, start_method, start_server_for
-from .worker import RunTask, execute_run, failure, watch_parent
+from .worker import RunTask, execute_run, failure, settle, watch_parent
 
 EXECUTORS = ("serial", "processes", "dask")
 # A run in flight when its worker process dies is retried on a fresh pool up to this many attempts in all
@@ -86,7 +92,7 @@ class SerialExecutor:
     def imap(self, tasks: Iterable[RunTask]) -> Iterator[dict[str, Any]]:
         """Answers in task order."""
         for task in tasks:
-            yield execute_run(task)
+            yield settle(task, execute_run(task))
 
 
 class ProcessExecutor:
@@ -143,7 +149,7 @@ class ProcessExecutor:
             for future in done:
                 task, attempt = in_flight.pop(future)
                 try:
-                    yield future.result()
+                    yield settle(task, future.result())
                 except BrokenProcessPool:
                     lost.append((task, attempt))
                 except Exception as exc:  # noqa: BLE001 - e.g. a task that cannot be sent; the batch goes on
@@ -154,7 +160,7 @@ class ProcessExecutor:
                 for future in wait(in_flight).done:
                     task, attempt = in_flight.pop(future)
                     if future.exception() is None:
-                        yield future.result()
+                        yield settle(task, future.result())
                     else:
                         lost.append((task, attempt))
                 self._pool.shutdown(wait=True)
@@ -171,14 +177,20 @@ class DaskExecutor:
 
     name = "dask"
 
-    def __init__(self, workers: int | None = None, scheduler: str | None = None, preload: Sequence[str] = ()) -> None:
+    def __init__(
+        self, workers: int | None = None, scheduler: str | None = None, preload: Sequence[str] = (),
+        shared_output: bool = False,
+    ) -> None:
         """``preload``: as for :class:`ProcessExecutor`, for the workers of a local cluster.
 
-        A local cluster's workers fork from the same fork server as a process pool's, started here;
-        starting one sets this process's Dask config to start local workers that way from then on.
+        The workers of a cluster at ``scheduler`` send their runs' files back, unless ``shared_output`` says they
+        see the output folder at the same path as this process. A local cluster's workers fork from the same fork
+        server as a process pool's, started here; starting one sets this process's Dask config to start local
+        workers that way from then on.
         """
         self.workers = workers or os.cpu_count() or 1
         self.scheduler = scheduler
+        self.ship = bool(scheduler) and not shared_output
         self._cluster: Any = None
         self._client: Any = None
         start_server_for(self.name, scheduler, preload)
@@ -232,6 +244,8 @@ class DaskExecutor:
         def submit() -> None:
             task = next(source, None)
             if task is not None:
+                if self.ship and task.out:
+                    task = replace(task, ship=True)
                 # A fresh key per submission: a long-lived cluster must never hand back another batch's result.
                 future = client.submit(execute_run, task, key=f"undertow-{task.run_id}-{uuid.uuid4().hex}", pure=False)
                 by_key[future.key] = task
@@ -244,7 +258,7 @@ class DaskExecutor:
             for future in pending:
                 task = by_key.pop(future.key)
                 try:
-                    answer = future.result()
+                    answer = settle(task, future.result())
                 except Exception as exc:  # noqa: BLE001 - e.g. KilledWorker: recorded, the batch goes on
                     answer = _crash(task, exc)
                 future.release()
@@ -270,9 +284,14 @@ def quiet_dask_logs() -> None:
         logging.getLogger(name).setLevel(logging.CRITICAL)
 
 
-def choose_executor(executor: str | None, workers: int | None, scheduler: str | None) -> str:
+def choose_executor(
+    executor: str | None, workers: int | None, scheduler: str | None, shared_output: bool = False
+) -> str:
     """The executor the command-line options ask for (serial by default, Dask when a scheduler is given)."""
     chosen = executor or ("dask" if scheduler else "serial")
+    if shared_output and not scheduler:
+        raise InputError("--shared-output: applies to a cluster reached with --scheduler (local workers share this "
+                         "machine's disk already)")
     if scheduler and chosen != "dask":
         raise InputError(f"--scheduler: connects to a Dask cluster; it needs --executor dask, not {chosen}")
     if workers and chosen == "serial":
@@ -281,13 +300,15 @@ def choose_executor(executor: str | None, workers: int | None, scheduler: str | 
 
 
 def make_executor(
-    name: str, workers: int | None = None, scheduler: str | None = None, preload: Sequence[str] = ()
+    name: str, workers: int | None = None, scheduler: str | None = None, preload: Sequence[str] = (),
+    shared_output: bool = False,
 ) -> Executor:
-    """The executor called ``name`` (one of :data:`EXECUTORS`); ``preload`` as for :class:`ProcessExecutor`."""
+    """The executor called ``name`` (one of :data:`EXECUTORS`); ``preload`` as for :class:`ProcessExecutor`,
+    ``shared_output`` as for :class:`DaskExecutor`."""
     if name == "serial":
         return SerialExecutor()
     if name == "processes":
         return ProcessExecutor(workers, preload)
     if name == "dask":
-        return DaskExecutor(workers, scheduler, preload)
+        return DaskExecutor(workers, scheduler, preload, shared_output)
     raise InputError(f"unknown executor '{name}'; expected one of {', '.join(EXECUTORS)}")

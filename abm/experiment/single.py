@@ -235,9 +235,26 @@ def run_to_directory(
     records keep them all); ``manifest_extra`` adds keys to the manifest, e.g.
     which experiment run this is.
     """
+    refuse_existing(Path(out))
+    model = simulate(world, warmup + days, seed, progress)
+    return write_run(model, world, world_hash, days, seed, out, command, warmup, manifest_extra)
+
+
+def write_run(
+    model: PortModel,
+    world: World,
+    world_hash: str,
+    days: int,
+    seed: int,
+    out: Path,
+    command: list[str] | None = None,
+    warmup: int = 0,
+    manifest_extra: dict[str, Any] | None = None,
+) -> dict[str, Any]:
+    """Write a simulated model's run directory atomically (arguments as for :func:`run_to_directory`); returns
+    the summary."""
     out = Path(out)
     refuse_existing(out)
-    model = simulate(world, warmup + days, seed, progress)
     # A name of this call's own: never a folder the user (or another writer) made, so nothing of theirs is touched.
     staging = out.with_name(f".{out.name}.{uuid.uuid4().hex[:12]}.partial")
     try:

@@ -1,31 +1,52 @@
 """What a worker does with one run: the task message, and its small answer.
 
 A task is small and self-contained: the design point's world as plain data,
-the seed, the days and where to write. The worker writes the run directory
-itself (atomically, through :func:`abm.experiment.single.run_to_directory`);
-only the run's summary, or its error, travels back. A task may also carry the
-batch's summary extensions: the worker calls them once the run is written, so
-what they derive from the run (e.g. the estimates cache) is made in parallel
-instead of by the coordinator afterwards.
+the seed, the days and where to write. A run goes one of three ways:
+
+- written: the worker writes the run directory itself, atomically (through
+  :func:`abm.experiment.single.write_run`); only the run's summary, or its
+  error, travels back. Workers must then see the output folder at the same
+  path: local pools do, a cluster does only with a shared file system.
+- shipped (``ship``): the worker writes the run directory in a private
+  temporary folder and sends its files back; :func:`settle` writes them on the
+  coordinator, so the workers need not see the output folder at all.
+- lean (no ``out``): nothing is written; the run's summary, and what the
+  task's ``reduce`` computes from its records in memory, travel back
+  (calibration and policy-search candidates, which need a few numbers each).
+
+Either way :func:`settle` runs on the coordinator: a run reported written is
+checked there, and one it cannot read back is a failure, never a success.
+
+A task may also carry the batch's summary extensions: the worker calls them
+once the run is written, so what they derive from the run (e.g. the estimates
+cache) is made in parallel instead of by the coordinator afterwards.
 """
 
 from __future__ import annotations
 
 import json
 import os
+import shutil
+import tempfile
 import threading
 import time
 import traceback
+import uuid
 from collections.abc import Callable, Mapping
 from dataclasses import dataclass, field
 from pathlib import Path
 from typing import Any
 
+from ..records import RecordBook
 from ..run_files import damage
 from ..world import parse_world
-from .single import run_to_directory
+from .single import refuse_existing, simulate, summarise, write_run
 
 SUMMARY_FILE = "summary.json"
+
+# Computes what a lean task wants from a finished run: its records in memory and its summary. It travels with the
+# task (pickled), so it is a module-level function or an instance of a module-level class.
+Reducer = Callable[[RecordBook, Mapping[str, Any]], Any]
 
 
 @dataclass(frozen=True)
@@ -40,11 +61,13 @@ class RunTask:
     warmup: int
     world: dict[str, Any]
     world_sha256: str
-    out: str  # the run directory to create (absolute, so any worker can reach it)
+    out: str = ""  # the run directory to create (absolute, so any worker can reach it); "" writes none (lean)
     command: tuple[str, ...] = ()
     values: dict[str, Any] = field(default_factory=dict)  # factor label -> value, for the manifest
     # module-level functions of the run directory (they travel by name); see the module docstring
     extensions: tuple[Callable[[Path], Mapping[str, Any]], ...] = ()
+    reduce: Reducer | None = None  # its result travels back as the answer's "reduced"
+    ship: bool = False  # write the run directory in a private folder and send its files back
 
 
 PARENT_POLL_SECONDS = 1.0
@@ -81,34 +104,101 @@ def failure(task: RunTask, error: str, trace: str) -> dict[str, Any]:
 
 def execute_run(task: RunTask) -> dict[str, Any]:
     """Do one run; never raises for a fault of the run itself, so the batch goes on."""
-    out = Path(task.out)
+    out = Path(task.out) if task.out else None
     try:
         world = parse_world(task.world, f"design point {task.point}")
-        summary = run_to_directory(
-            world,
-            task.world_sha256,
-            task.days,
-            task.seed,
-            out,
-            command=list(task.command),
-            warmup=task.warmup,
-            manifest_extra={
-                "experiment_run": {
-                    "run_id": task.run_id,
-                    "point": task.point,
-                    "replication": task.replication,
-                    "values": task.values,
-                }
-            },
-        )
+        if out is not None and not task.ship:
+            refuse_existing(out)  # before the work: a straggler of an interrupted batch may have written it
+        model = simulate(world, task.warmup + task.days, task.seed)
+        if out is None:
+            summary = summarise(model.records, task.days, task.warmup)
+            files = None
+        elif task.ship:
+            summary, files = _written_elsewhere(task, world, model)
+        else:
+            summary, files = write_run(model, world, **_run_arguments(task, out)), None
+            _extend(task, out)
+        answer: dict[str, Any] = {"run_id": task.run_id, "ok": True, "summary": summary}
+        if files is not None:
+            answer["files"] = files
+        if task.reduce is not None:
+            answer["reduced"] = task.reduce(model.records, summary)
     except Exception as exc:  # noqa: BLE001 - any fault of one run is recorded, not fatal to the batch
-        if is_complete(out):
+        if out is not None and not task.ship and task.reduce is None and is_complete(out):
             # A straggler from an interrupted batch finished this very run first; runs are deterministic.
             return {"run_id": task.run_id, "ok": True, "summary": json.loads((out / SUMMARY_FILE).read_text())}
         return failure(task, " ".join(f"{exc.__class__.__name__}: {exc}".split()), traceback.format_exc())
+    return answer
+
+
+def _run_arguments(task: RunTask, out: Path) -> dict[str, Any]:
+    return {
+        "world_hash": task.world_sha256,
+        "days": task.days,
+        "seed": task.seed,
+        "out": out,
+        "command": list(task.command),
+        "warmup": task.warmup,
+        "manifest_extra": {
+            "experiment_run": {
+                "run_id": task.run_id,
+                "point": task.point,
+                "replication": task.replication,
+                "values": task.values,
+            }
+        },
+    }
+
+
+def _extend(task: RunTask, run_dir: Path) -> None:
     for extension in task.extensions:
         try:
-            extension(out)
+            extension(run_dir)
         except Exception:  # noqa: BLE001 - the store calls it again when it builds the summary, and reports it there
             pass
-    return {"run_id": task.run_id, "ok": True, "summary": summary}
+
+
+def _written_elsewhere(task: RunTask, world: Any, model: Any) -> tuple[dict[str, Any], dict[str, bytes]]:
+    """Write the run directory in a private temporary folder, as it would be written in place; return its files."""
+    with tempfile.TemporaryDirectory(prefix="undertow-run-") as private:
+        run_dir = Path(private) / Path(task.out).name
+        summary = write_run(model, world, **_run_arguments(task, run_dir))
+        _extend(task, run_dir)
+        files = {path.relative_to(run_dir).as_posix(): path.read_bytes()
+                 for path in sorted(run_dir.rglob("*")) if path.is_file()}
+    return summary, files
+
+
+def settle(task: RunTask, answer: dict[str, Any]) -> dict[str, Any]:
+    """On the coordinator: write a shipped run's files into place, and check a run said written can be read back.
+
+    A run the coordinator cannot read back whole is returned as a failure: a worker that wrote it where this
+    machine cannot see it has not finished it for anyone here.
+    """
+    if not answer.get("ok") or not task.out:
+        return answer
+    out = Path(task.out)
+    files = answer.pop("files", None)
+    if files is not None and not is_complete(out):
+        _land(files, out)
+    if is_complete(out):
+        return answer
+    where = ("the worker sent its files back, but they did not make a whole run here" if files is not None else
+             "the worker reported it written, but this machine cannot read it back: the workers do not see the "
+             "output folder at this path (leave out --shared-output, and the workers send their runs back)")
+    return failure(task, f"{out}: {where}", "")
+
+
+def _land(files: Mapping[str, bytes], out: Path) -> None:
+    """Write a run directory's files under a staging name of this call's own, then rename it into place."""
+    staging = out.with_name(f".{out.name}.{uuid.uuid4().hex[:12]}.partial")
+    try:
+        for name, content in files.items():
+            path = staging / name
+            path.parent.mkdir(parents=True, exist_ok=True)
+            path.write_bytes(content)
+        out.parent.mkdir(parents=True, exist_ok=True)
+        staging.rename(out)
+    except BaseException:
+        shutil.rmtree(staging, ignore_errors=True)  # ours alone, made above
+        raise

@@ -141,4 +141,15 @@ declare(
               *_statistics(),
               _parameter("setting", "the value the candidate run took, drawn from its prior"),
           )),
+    Table("calibration/generation/simulations", "<stage>/simulations.parquet", CALIBRATION, "setting",
+          "Every candidate simulation of a stage (gen-<k>, or predictive) as its worker sent it back: what "
+          "--resume reads instead of running it again.", (
+              SIMULATION,
+              C("seed", "int", "", "the candidate run's seed"),
+              C("summaries_sha256", "text", "", "SHA-256 of the summary statistics' settings the summaries were "
+                "computed under (a change of them runs the candidate again)"),
+              *_latent("truth", "the candidate run's simulated truth in the window"),
+              *_statistics(),
+              _parameter("setting", "the value the candidate run took"),
+          )),
 )

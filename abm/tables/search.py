@@ -22,8 +22,8 @@ FIGURES: dict[str, tuple[str, str, str]] = {
     "check_hours": ("hours", "hours spent checking, from methods.parquet", "observed"),
     "encounters": ("persons", "detections and interdictions", "observed"),
 }
-CANDIDATE = C("candidate", "text", "", "the candidate's id, a hash of its world changes (its runs lie in "
-              "runs/<candidate>/<seed>/)", "key")
+CANDIDATE = C("candidate", "text", "", "the candidate's id, a hash of its world changes (its changes are in "
+              "candidates/<candidate>.json; with --keep-runs its runs lie in runs/<candidate>/<seed>/)", "key")
 
 
 def _searched() -> tuple[C, ...]:
@@ -82,4 +82,13 @@ declare(
     Table("search/frontier", "frontier.parquet", SEARCH, "truth",
           "The searched candidates no other beats on both detections (more) and time_in_port_p95_min (less), by the "
           "latter; columns as history.parquet.", _searched()),
+    Table("search/simulations", "simulations.parquet", SEARCH, "truth",
+          "Every run the search simulated (the searched seeds and the finalists' fresh ones), as its worker sent it "
+          "back: what --resume reads instead of running it again.", (
+              C("run", "text", "", "<candidate>/<seed>", "key"),
+              CANDIDATE,
+              C("seed", "int", "", "the run's seed", "setting"),
+              *(C(name, "float", unit, f"{meaning}: the run's (NaN where it has none)", record_set)
+                for name, (unit, meaning, record_set) in FIGURES.items()),
+          )),
 )

@@ -39,6 +39,7 @@ from abm.analysis.policy_search import (
 )
 from abm.cli import EXIT_INPUT, EXIT_OK, main
 from abm.experiment.executors import ProcessExecutor
+from abm.experiment.worker import is_complete
 
 ROOT = Path(__file__).resolve().parents[2]
 BUDGET_WORLD = ROOT / "worlds" / "reference" / "two_station_budget" / "world.yaml"
@@ -290,3 +291,20 @@ def test_the_current_setting_is_always_a_finalist(tmp_path):
     assert plan.policies == {"current": {}}
     assert "popsize 5 x 1 = 5 candidates per generation" in describe_optimisation(write(
         tmp_path / "p.yaml", data | {"search": {"popsize": 5, "maxiter": 2}}))
+
+
+def test_lean_and_kept_runs_give_the_same_search_and_a_lean_run_keeps_a_few_hundred_bytes(tmp_path, executor):
+    data = dict(BUDGET_SEARCH, search={"popsize": 2, "maxiter": 1}, selection={"top": 2, "replications": 2})
+    path = write(tmp_path / "small.yaml", data)
+    lean = run_optimisation(load_optimisation(path), tmp_path / "lean", executor, figure=False)
+    kept = run_optimisation(load_optimisation(path), tmp_path / "kept", executor, figure=False, keep_runs=True)
+    pd.testing.assert_frame_equal(lean.selection, kept.selection)
+    pd.testing.assert_frame_equal(lean.history, kept.history)
+    simulations = pd.read_parquet(tmp_path / "lean" / "simulations.parquet")
+    assert len(simulations) == lean.search["runs"] > 0 and not (tmp_path / "lean" / "runs").exists()
+    assert all(is_complete(tmp_path / "kept" / "runs" / run) for run in simulations["run"])
+    # The bound: at most 5 KB of disk per candidate run by default (the journal, not a run directory).
+    assert (tmp_path / "lean" / "simulations.parquet").stat().st_size / len(simulations) <= 5 * 1024
+    # A kept search resumed without --keep-runs reads its journal and runs nothing.
+    again = run_optimisation(load_optimisation(path), tmp_path / "kept", executor, resume=True, figure=False)
+    assert again.search["runs"] == 0

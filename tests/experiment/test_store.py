@@ -155,14 +155,14 @@ def test_a_run_that_raises_is_recorded_and_the_batch_goes_on(
     # so the fault is injected): the serial executor runs in this process, where the patch holds.
     import abm.experiment.worker as worker
 
-    real = worker.run_to_directory
+    real = worker.write_run
 
-    def faulty(world, *args, **kwargs):  # type: ignore[no-untyped-def]
+    def faulty(model, world, *args, **kwargs):  # type: ignore[no-untyped-def]
         if kwargs["manifest_extra"]["experiment_run"]["point"] == 1:
             raise RuntimeError("station 'gate_imaging' could not check a vehicle (injected)")
-        return real(world, *args, **kwargs)
+        return real(model, world, *args, **kwargs)
 
-    monkeypatch.setattr(worker, "run_to_directory", faulty)
+    monkeypatch.setattr(worker, "write_run", faulty)
     other = {"name": "double_imaging", "set": {"stations.gate_imaging.selection.fraction": 0.4}}
     factor = {"name": "policy", "baseline": "current", "levels": [{"name": "current", "set": {}}, other]}
     path = make_experiment(experiment(days=2, factors=[factor]))

@@ -178,23 +178,27 @@ def estimate_flow(records: str | Path | RunTables, window: tuple[int, int] | Non
 
 
 def run_batch(experiment: str | Path, out: str | Path, executor: str = "serial", workers: int | None = None,
-              scheduler: str | None = None, resume: bool = False) -> BatchResult:
-    """Run every run of an experiment file into a batch folder (as ``undertow batch``)."""
+              scheduler: str | None = None, resume: bool = False, shared_output: bool = False) -> BatchResult:
+    """Run every run of an experiment file into a batch folder (as ``undertow batch``; ``shared_output`` as its
+    ``--shared-output``)."""
     from .experiment.batch import run_batch as run
 
-    return run(experiment, out, executor, workers, scheduler, resume, ["abm.api.run_batch"], show_progress=False)
+    return run(experiment, out, "dask" if scheduler else executor, workers, scheduler, resume, ["abm.api.run_batch"], show_progress=False,
+               shared_output=shared_output)
 
 
 def calibrate(calibration: str | Path, out: str | Path, executor: str = "serial", workers: int | None = None,
-              resume: bool = False) -> CalibrationResult:
-    """Fit a calibration file's unknowns to its observed records (as ``undertow calibrate``)."""
+              resume: bool = False, scheduler: str | None = None, shared_output: bool = False,
+              keep_runs: bool = False) -> CalibrationResult:
+    """Fit a calibration file's unknowns to its observed records (as ``undertow calibrate``; ``shared_output`` and
+    ``keep_runs`` as its ``--shared-output`` and ``--keep-runs``)."""
     from .calibration.config import load_calibration
     from .calibration.run import run_calibration
     from .experiment.executors import make_executor
 
     plan = load_calibration(calibration, out=Path(out))
-    with make_executor(executor, workers) as pool:
-        return run_calibration(plan, out, pool, resume, ["abm.api.calibrate"])
+    with make_executor("dask" if scheduler else executor, workers, scheduler, shared_output=shared_output) as pool:
+        return run_calibration(plan, out, pool, resume, ["abm.api.calibrate"], keep_runs=keep_runs)
 
 
 def brief(folder: str | Path, formats: Sequence[str] = ("html", "md")) -> dict[str, Path]:

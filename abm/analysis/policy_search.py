@@ -75,10 +75,10 @@ Method
        (``time_in_port_p95_min``, less).
 
 Reading the file and running it on the port model is :mod:`abm.analysis.optimisation`;
-this module is the search itself, on any evaluator. Runs live in ``OUT/runs/<candidate>/<seed>/`` (a candidate's id is a hash of
-its world changes), so an interrupted search resumes with ``--resume``
-without repeating a run: the search is deterministic given the seed and
-replays through the finished runs.
+this module is the search itself, on any evaluator. Each run's figures are kept in ``OUT/simulations.parquet`` by
+``<candidate>/<seed>`` (a candidate's id is a hash of its world changes; ``--keep-runs`` also keeps its run in
+``OUT/runs/<candidate>/<seed>/``), so an interrupted search resumes with ``--resume`` without repeating a run: the
+search is deterministic given the seed and replays through the finished runs.
 """
 
 from __future__ import annotations

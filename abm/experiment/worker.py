@@ -26,12 +26,14 @@ from __future__ import annotations
 
 import json
 import os
+import pickle
 import shutil
 import tempfile
 import threading
 import time
 import traceback
 import uuid
+from collections import OrderedDict
 from collections.abc import Callable, Mapping
 from dataclasses import dataclass, field
 from pathlib import Path
@@ -40,6 +42,7 @@ from typing import Any
 from ..records import RecordBook
 from ..run_files import damage
 from ..world import parse_world
+from ..world.schema import World
 from .single import refuse_existing, simulate, summarise, write_run
 
 SUMMARY_FILE = "summary.json"
@@ -106,7 +109,7 @@ def execute_run(task: RunTask) -> dict[str, Any]:
     """Do one run; never raises for a fault of the run itself, so the batch goes on."""
     out = Path(task.out) if task.out else None
     try:
-        world = parse_world(task.world, f"design point {task.point}")
+        world = _world(task)
         if out is not None and not task.ship:
             refuse_existing(out)  # before the work: a straggler of an interrupted batch may have written it
         model = simulate(world, task.warmup + task.days, task.seed)
@@ -129,6 +132,24 @@ def execute_run(task: RunTask) -> dict[str, Any]:
             return {"run_id": task.run_id, "ok": True, "summary": json.loads((out / SUMMARY_FILE).read_text())}
         return failure(task, " ".join(f"{exc.__class__.__name__}: {exc}".split()), traceback.format_exc())
     return answer
+
+
+_WORLDS: OrderedDict[bytes, World] = OrderedDict()  # the last few worlds this worker validated, by content
+WORLDS_KEPT = 8
+
+
+def _world(task: RunTask) -> World:
+    """A task's world, validated once per worker: the replications of a design point, or a policy-search candidate's
+    seeds, share one world, and validating it again costs more than pickling it (nothing changes a World)."""
+    key = pickle.dumps(task.world, protocol=pickle.HIGHEST_PROTOCOL)
+    world = _WORLDS.get(key)
+    if world is None:
+        world = _WORLDS[key] = parse_world(task.world, f"design point {task.point}")
+        if len(_WORLDS) > WORLDS_KEPT:
+            _WORLDS.popitem(last=False)  # the least recently used
+    else:
+        _WORLDS.move_to_end(key)
+    return world
 
 
 def _run_arguments(task: RunTask, out: Path) -> dict[str, Any]:

@@ -79,11 +79,48 @@ def get_path(data: dict[str, Any], path: str) -> Any:
 
 
 def set_path(data: dict[str, Any], path: str, value: Any) -> dict[str, Any]:
-    """A deep copy of ``data`` with ``value`` at ``path`` (missing mapping keys are added)."""
-    out = copy.deepcopy(data)
+    """A copy of ``data`` with ``value`` at ``path`` (missing mapping keys are added); ``data`` is left as it was.
+
+    Only the sections on the path are copied; the rest is shared with ``data``, so neither may be changed in
+    place afterwards (nothing here does). A whole-world deep copy per change had cost about 4 ms of the
+    coordinator's time for each calibration candidate.
+    """
+    out = _copied_along(data, path)
     parent, slot = _resolve(out, path, create_leaf=True)
     parent[slot] = copy.deepcopy(value)
     return out
+
+
+def _copied_along(data: dict[str, Any], path: str) -> dict[str, Any]:
+    """``data`` with every section the path passes through copied (one level each), so a change at the path's
+    end touches copies only; where the path does not resolve, :func:`_resolve` reports it on the copy."""
+    root = dict(data)
+    node: Any = root
+    segments = path.split(".")
+    for i, segment in enumerate(segments):
+        match = _SEGMENT.match(segment)
+        if match is None:
+            return root
+        key, index = match.group("key"), match.group("index")
+        last = i == len(segments) - 1
+        if key and not (last and index is None):
+            if isinstance(node, dict) and key in node:
+                slot: Any = key
+            elif isinstance(node, list):
+                named = [j for j, item in enumerate(node) if isinstance(item, dict) and item.get("name") == key]
+                if not named:
+                    return root
+                slot = named[0]
+            else:
+                return root
+            node[slot] = copy.copy(node[slot])
+            node = node[slot]
+        if index is not None and not last:
+            if not isinstance(node, list) or int(index) >= len(node):
+                return root
+            node[int(index)] = copy.copy(node[int(index)])
+            node = node[int(index)]
+    return root
 
 
 def apply_changes(data: dict[str, Any], changes: dict[str, Any]) -> dict[str, Any]:

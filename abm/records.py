@@ -18,9 +18,6 @@ depends only on the world and the seed.
 from __future__ import annotations
 
 import json
-import os
-import uuid
-from collections.abc import Callable
 from dataclasses import dataclass, field
 from pathlib import Path
 from typing import Any
@@ -30,6 +27,7 @@ import pandas as pd
 import pyarrow as pa
 import pyarrow.parquet as pq
 
+from .atomic import write_atomically
 from .observed import OBSERVED_COLUMNS, OBSERVED_DIR, conform
 from .port.day import OUTCOME_NAMES, DayResult
 from .port.layout import Layout
@@ -393,26 +391,6 @@ def _wait_stats(waits: pd.DataFrame, keys: list[str], quantiles: tuple[float, ..
 
 
 # -- writing ----------------------------------------------------------------------------
-def _private_tmp(path: Path) -> Path:
-    """A temporary name beside ``path`` that no other writer uses.
-
-    Two processes may write the same derived file at once (a straggler of an
-    interrupted batch and the resumed one): each writes its own whole file and
-    renames it into place, so a reader only ever sees a complete one.
-    """
-    return path.with_name(f".{path.name}.{os.getpid()}.{uuid.uuid4().hex[:8]}.tmp")
-
-
-def write_atomically(path: Path, write: Callable[[Path], object]) -> Path:
-    """Write ``path`` whole or not at all: ``write`` fills a temporary name of this writer's own beside it,
-    which is then renamed into place (creating the folder if needed). Returns ``path``."""
-    path.parent.mkdir(parents=True, exist_ok=True)
-    tmp = _private_tmp(path)
-    write(tmp)
-    os.replace(tmp, path)
-    return path
-
-
 def write_parquet(frame: pd.DataFrame, path: Path, table_name: str) -> None:
     """Write table ``table_name`` of the data contract (:mod:`abm.tables`) atomically, with deterministic bytes
     (no pandas metadata, no timestamps) and each column's declaration as field metadata."""

@@ -33,7 +33,8 @@ from ..experiment.lock import acquire, release
 from ..experiment.out_folder import held_record
 from ..experiment.single import package_versions
 from ..experiment.worker import SUMMARY_FILE, RunTask, is_complete
-from ..records import METHODS_FILE, RecordBook, write_atomically, write_json, write_parquet
+from ..atomic import write_atomically
+from ..records import METHODS_FILE, RecordBook, write_json, write_parquet
 from ..world import WorldFileError, file_hash, parse_world, read_yaml_mapping
 from ..world.paths import PathProblem, apply_changes, set_path
 from ..world.fields import NumberOnly, Strict, unit

@@ -14,7 +14,7 @@ import numpy as np
 from matplotlib.backends.backend_agg import FigureCanvasAgg
 from matplotlib.figure import Figure
 
-from ..records import write_atomically
+from ..atomic import write_atomically
 from .abc import weighted_quantile
 
 if TYPE_CHECKING:

@@ -18,7 +18,8 @@ import pandas as pd
 from ..errors import InputError, refuse_unwritable
 from ..experiment.budget import SHOWN_VEHICLE_DAYS
 from ..experiment.executors import Executor, choose_executor, make_executor
-from ..records import write_atomically, write_json, write_parquet
+from ..atomic import write_atomically
+from ..records import write_json, write_parquet
 from .abc import ABCPosterior, PredictiveCheck, abc_smc, predictive_check
 from .config import LATENT, LATENT_MEANING, CalibrationPlan, describe_calibration, load_calibration
 from .figures import write_figures

@@ -5,7 +5,6 @@ from __future__ import annotations
 import json
 import math
 import os
-import tempfile
 from collections.abc import Callable, Mapping, Sequence
 from functools import partial
 from pathlib import Path
@@ -14,6 +13,7 @@ from typing import TextIO
 import numpy as np
 import pandas as pd
 
+from ..atomic import write_atomically
 from ..errors import InputError, refuse_unwritable
 from .expansion import EXPANSION, Sensitivities, beta_for, expansion, expansion_name, selection_shares
 from .frequency import (
@@ -212,19 +212,6 @@ def output_names(window: tuple[int, int] | None) -> tuple[str, str]:
     return f"{stem}.csv", f"{stem}.json"
 
 
-def _write_atomic(path: Path, text: str) -> None:
-    """Write to a temporary name in the same folder, then rename over ``path``."""
-    handle, temp = tempfile.mkstemp(dir=path.parent, prefix=f".{path.name}.", suffix=".tmp")
-    try:
-        with os.fdopen(handle, "w", encoding="utf-8", newline="") as out:
-            out.write(text)
-        os.chmod(temp, 0o644)  # mkstemp makes the file private; these are ordinary outputs
-        os.replace(temp, path)
-    except BaseException:
-        Path(temp).unlink(missing_ok=True)
-        raise
-
-
 def write_estimates(
     run_dir: str | os.PathLike[str],
     results: Sequence[EstimateResult],
@@ -237,7 +224,8 @@ def write_estimates(
     base = Path(run_dir)
     csv_name, json_name = output_names(window)
     csv_path, json_path = base / csv_name, base / json_name
-    _write_atomic(csv_path, results_frame(results).to_csv(index=False))
+    table = results_frame(results).to_csv(index=False)
+    write_atomically(csv_path, lambda tmp: tmp.write_text(table, encoding="utf-8", newline=""))
     document = {
         "window": None if window is None else list(window),
         "level": level,
@@ -245,7 +233,8 @@ def write_estimates(
         "cannot_run": [{"method": name, "reason": reason} for name, reason in failures],
     }
     # allow_nan=False: a NaN reaching the file is a fault, not a value
-    _write_atomic(json_path, json.dumps(document, indent=2, allow_nan=False) + "\n")
+    text = json.dumps(document, indent=2, allow_nan=False) + "\n"
+    write_atomically(json_path, lambda tmp: tmp.write_text(text, encoding="utf-8", newline=""))
     return csv_path, json_path
 
 

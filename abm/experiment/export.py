@@ -42,7 +42,8 @@ import pyarrow as pa
 import pyarrow.parquet as pq
 
 from ..errors import InputError, refuse_unwritable
-from ..records import write_atomically, write_json
+from ..atomic import write_atomically
+from ..records import write_json
 from ..run_files import FILES_RECORD, require_whole, sha256_of
 from .lock import check_unlocked
 from .single import SUMMARY_SOURCES

@@ -19,8 +19,6 @@ run directory that exists is always whole.
 
 from __future__ import annotations
 
-import shutil
-import uuid
 import sys
 from collections.abc import Callable
 from importlib import metadata
@@ -30,6 +28,7 @@ from typing import Any
 import numpy as np
 import pandas as pd
 
+from ..atomic import staged_folder
 from ..errors import InputError
 from ..model import PortModel
 from ..records import QUEUE_HOURS_FILE, RecordBook, write_json, write_parquet, write_records
@@ -255,9 +254,7 @@ def write_run(
     the summary."""
     out = Path(out)
     refuse_existing(out)
-    # A name of this call's own: never a folder the user (or another writer) made, so nothing of theirs is touched.
-    staging = out.with_name(f".{out.name}.{uuid.uuid4().hex[:12]}.partial")
-    try:
+    with staged_folder(out) as staging:  # a name of this call's own: never a folder the user (or another writer) made
         write_records(model.records, staging)
         # pooled over the days the summary covers, so its percentiles leave the warm-up out as the summary does
         write_parquet(model.records.queue_hours_table(warmup, warmup + days - 1), staging / QUEUE_HOURS_FILE,
@@ -278,8 +275,4 @@ def write_run(
         manifest.update(manifest_extra or {})
         write_json(manifest, staging / "manifest.json")
         record_files(staging)  # last: what a complete run holds, for checking it later
-        staging.rename(out)
-    except BaseException:
-        shutil.rmtree(staging, ignore_errors=True)  # ours alone, made above
-        raise
     return summary

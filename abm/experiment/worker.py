@@ -27,18 +27,17 @@ from __future__ import annotations
 import json
 import os
 import pickle
-import shutil
 import tempfile
 import threading
 import time
 import traceback
-import uuid
 from collections import OrderedDict
 from collections.abc import Callable, Mapping
 from dataclasses import dataclass, field
 from pathlib import Path
 from typing import Any
 
+from ..atomic import staged_folder
 from ..records import RecordBook
 from ..run_files import damage
 from ..world import parse_world
@@ -212,14 +211,8 @@ def settle(task: RunTask, answer: dict[str, Any]) -> dict[str, Any]:
 
 def _land(files: Mapping[str, bytes], out: Path) -> None:
     """Write a run directory's files under a staging name of this call's own, then rename it into place."""
-    staging = out.with_name(f".{out.name}.{uuid.uuid4().hex[:12]}.partial")
-    try:
+    with staged_folder(out) as staging:
         for name, content in files.items():
             path = staging / name
             path.parent.mkdir(parents=True, exist_ok=True)
             path.write_bytes(content)
-        out.parent.mkdir(parents=True, exist_ok=True)
-        staging.rename(out)
-    except BaseException:
-        shutil.rmtree(staging, ignore_errors=True)  # ours alone, made above
-        raise

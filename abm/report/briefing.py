@@ -34,7 +34,7 @@ from ..analysis.estimator_check import bias_sentence
 from ..analysis.policy_table import DelayLimits
 from ..errors import InputError
 from ..experiment.compare import bounded_mean_interval, figure_scale
-from ..records import write_atomically
+from ..atomic import write_atomically
 from . import html as html_renderer
 from .answer import section_answer
 from .bottom_line import bottom_line

@@ -17,7 +17,7 @@ from collections.abc import Callable, Sequence
 from dataclasses import dataclass
 from pathlib import Path
 
-from ..records import write_atomically
+from ..atomic import write_atomically
 from . import html as html_renderer
 from . import markdown as markdown_renderer
 from .document import Document, FigureBlock, is_number, number

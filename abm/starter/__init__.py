@@ -21,7 +21,7 @@ from importlib import resources
 from pathlib import Path
 
 from ..errors import InputError, refuse_unwritable
-from ..records import write_atomically
+from ..atomic import write_atomically
 from ..world import load_world
 from ..world.schema import World
 

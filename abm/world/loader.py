@@ -323,21 +323,48 @@ def _describe(error: dict[str, Any], model: type[BaseModel], data: Any = None) -
     return path, message
 
 
+def schema_problem(
+    exc: ValidationError, model: type[BaseModel], data: Any, present: bool = False
+) -> tuple[str, str]:
+    """The first schema problem of a file's data as (key path, message), for every file kind.
+
+    A misspelt key shows up as "missing" plus an unknown sibling: the unknown key is the real news, so it is
+    the one reported. ``present`` drops the parts of pydantic's location the data does not hold (a union
+    member's tag), as project files' messages do.
+    """
+    errors = exc.errors()
+    error = errors[0]
+    if error["type"] == "missing":
+        parent = tuple(error["loc"][:-1])
+        error = next((e for e in errors if e["type"] == "extra_forbidden" and tuple(e["loc"][:-1]) == parent), error)
+    if present:
+        keep_last = error["type"] in ("missing", "extra_forbidden")
+        error = dict(error, loc=present_location(tuple(error["loc"]), data, keep_last))
+    return _describe(error, model, data)
+
+
+def present_location(loc: tuple[Any, ...], data: Any, keep_last: bool) -> tuple[Any, ...]:
+    """The part of a pydantic location that exists in the data (dropping union-member tags)."""
+    node, kept = data, []
+    for i, item in enumerate(loc):
+        if isinstance(node, dict) and item in node:
+            node = node[item]
+        elif isinstance(node, list) and isinstance(item, int) and 0 <= item < len(node):
+            node = node[item]
+        else:
+            if keep_last and i == len(loc) - 1:
+                kept.append(item)
+            break
+        kept.append(item)
+    return tuple(kept)
+
+
 def parse_world(data: dict[str, Any], source: str | Path = "<world>") -> World:
     """Validate a world given as a mapping; raise WorldFileError naming ``source``."""
     try:
         world = World.model_validate(data)
     except ValidationError as exc:
-        errors = exc.errors()
-        error = errors[0]
-        if error["type"] == "missing":
-            # A misspelt key shows up as "missing" plus an unknown sibling: the unknown key is the real news.
-            parent = tuple(error["loc"][:-1])
-            error = next(
-                (e for e in errors if e["type"] == "extra_forbidden" and tuple(e["loc"][:-1]) == parent), error
-            )
-        path, message = _describe(error, World, data)
-        raise WorldFileError(source, path, message) from None
+        raise WorldFileError(source, *schema_problem(exc, World, data)) from None
     try:
         check_references(world)
     except ReferenceProblem as exc:

@@ -29,8 +29,8 @@ from ..experiment.budget import SHOWN_VEHICLE_DAYS, Keys, PlanSize, busiest_day,
 from ..experiment.project_file import read_project_file
 from ..experiment.executors import Executor, choose_executor, make_executor
 from ..experiment.journal import Journal
-from ..experiment.lock import acquire, release
-from ..experiment.out_folder import held_record
+from ..experiment.lock import release
+from ..experiment.out_folder import open_output
 from ..experiment.single import package_versions
 from ..experiment.worker import SUMMARY_FILE, RunTask, is_complete
 from ..atomic import write_atomically
@@ -470,29 +470,29 @@ HEADER = "optimisation.json"
 
 def _open_store(out: Path, plan: OptimisationPlan, command: Sequence[str], resume: bool) -> Path:
     """Start a search in OUT or take one up; returns the folder's lock, which the caller releases."""
-    header = out / HEADER
-    held = held_record(out, HEADER, "policy search", resume, PolicySearchError)
-    if held is not None:
-        if held.get("optimisation_sha256") != plan.digest():
-            raise PolicySearchError(
-                f"{out}: holds a different policy search (the file or its world changed); choose another --out "
-                "(nothing was overwritten)"
-            )
-        return acquire(out)
-    out.mkdir(parents=True, exist_ok=True)
-    lock = acquire(out)
-    write_json(
-        {
-            "optimisation": plan.spec.model_dump(mode="json"),
-            "optimisation_file": str(plan.source),
-            "optimisation_sha256": plan.digest(),
-            "world_file": str(plan.world_path),
-            "world_sha256": plan.world_sha256,
-            "packages": package_versions(),
-            "command": list(command),
-        },
-        header,
-    )
+
+    def changed(held: dict[str, Any]) -> None:
+        raise PolicySearchError(
+            f"{out}: holds a different policy search (the file or its world changed); choose another --out "
+            "(nothing was overwritten)"
+        )
+
+    def write_record() -> None:
+        write_json(
+            {
+                "optimisation": plan.spec.model_dump(mode="json"),
+                "optimisation_file": str(plan.source),
+                "optimisation_sha256": plan.digest(),
+                "world_file": str(plan.world_path),
+                "world_sha256": plan.world_sha256,
+                "packages": package_versions(),
+                "command": list(command),
+            },
+            out / HEADER,
+        )
+
+    lock, _ = open_output(out, HEADER, "policy search", resume, PolicySearchError,
+                          ("optimisation_sha256", plan.digest()), write_record, changed)
     return lock
 
 

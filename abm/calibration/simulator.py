@@ -51,8 +51,8 @@ import pandas as pd
 from ..errors import InputError
 from ..experiment.executors import Executor
 from ..experiment.journal import Journal, same_numbers
-from ..experiment.lock import acquire, release
-from ..experiment.out_folder import held_record
+from ..experiment.lock import release
+from ..experiment.out_folder import open_output
 from ..experiment.single import package_versions
 from ..experiment.worker import SUMMARY_FILE, RunTask, is_complete
 from ..observed import OBSERVED_DIR, conform
@@ -233,11 +233,8 @@ class CalibrationStore:
 
     def open(self, command: Sequence[str], resume: bool) -> None:
         """Start a calibration in OUT, or (``resume``) take up the same calibration found there."""
-        held = held_record(self.out, HEADER, "calibration", resume, CalibrationStoreError)
-        if held is not None:
-            if held.get("calibration_sha256") == self.plan.digest():
-                self.lock = acquire(self.out)
-                return
+
+        def changed(held: dict[str, Any]) -> None:
             if held.get("simulation_sha256") != self.plan.simulation_digest():
                 raise CalibrationStoreError(
                     f"{self.out}: holds a different calibration (its world, priors, seed or days changed since it "
@@ -245,9 +242,10 @@ class CalibrationStore:
                 )
             # Only settings changed (method, summaries, records, level...): finished runs of unchanged draws
             # are reused, generations made under the old settings are made again.
-        self.out.mkdir(parents=True, exist_ok=True)
-        self.lock = acquire(self.out)
-        self._write_header(command)
+
+        self.lock, _ = open_output(self.out, HEADER, "calibration", resume, CalibrationStoreError,
+                                   ("calibration_sha256", self.plan.digest()), lambda: self._write_header(command),
+                                   changed)
 
     def _write_header(self, command: Sequence[str]) -> None:
         write_json(

@@ -8,11 +8,12 @@ left as it is. A live writer's lock refuses it too (:mod:`abm.experiment.lock`).
 from __future__ import annotations
 
 import json
+from collections.abc import Callable
 from pathlib import Path
 from typing import Any
 
 from ..errors import InputError
-from .lock import LOCK_FILE, check_unlocked
+from .lock import LOCK_FILE, acquire, check_unlocked
 
 
 def held_record(out: Path, record_name: str, what: str, resume: bool, error: type[InputError]) -> dict[str, Any] | None:
@@ -41,3 +42,31 @@ def held_record(out: Path, record_name: str, what: str, resume: bool, error: typ
     if out.is_dir() and any(p.name != LOCK_FILE for p in out.iterdir()):
         raise error(f"{out}: is not empty and holds no {what}; choose another --out (nothing was overwritten)")
     return None
+
+
+def open_output(
+    out: Path,
+    record_name: str,
+    what: str,
+    resume: bool,
+    error: type[InputError],
+    digest: tuple[str, str],
+    write_record: Callable[[], None],
+    changed: Callable[[dict[str, Any]], None],
+) -> tuple[Path, bool]:
+    """Open ``out`` for one writer; returns its lock (the caller releases it) and whether earlier work was taken up.
+
+    Earlier work (with ``resume``) is taken up as it is when its record holds ``digest`` (key, value). Otherwise
+    ``changed(held)`` raises, naming what changed, unless the earlier work may go on under new settings; then,
+    as for a new folder, the folder is made, locked and ``write_record()`` writes the record.
+    """
+    held = held_record(out, record_name, what, resume, error)
+    key, value = digest
+    if held is not None and held.get(key) == value:
+        return acquire(out), True
+    if held is not None:
+        changed(held)
+    out.mkdir(parents=True, exist_ok=True)
+    lock = acquire(out)
+    write_record()
+    return lock, False

@@ -29,8 +29,8 @@ from ..errors import InputError
 from ..records import write_json, write_parquet
 from ..run_files import damage
 from .design import Plan, PlannedFactor, RunSpec
-from .lock import acquire, release
-from .out_folder import held_record
+from .lock import release
+from .out_folder import open_output
 from .posterior import DRAW_COLUMN
 from .single import SUMMARY_SOURCES, package_versions
 from .worker import SUMMARY_FILE, is_complete
@@ -93,40 +93,44 @@ class Store:
 
     def open(self, plan: Plan, command: list[str], resume: bool) -> None:
         """Start a new batch in OUT, or (``resume``) take up the same experiment's batch found there."""
-        record = self.out / EXPERIMENT_FILE
-        held = held_record(self.out, EXPERIMENT_FILE, "batch", resume, StoreError)
-        if held is not None:
-            if held.get("experiment_sha256") != plan.digest():
-                _refuse_changed_posterior(self.out, held, plan)
-                raise StoreError(
-                    f"{self.out}: holds a batch of a different experiment (the experiment or its world changed "
-                    "since it started); choose another --out (nothing was overwritten)"
-                )
-            self.lock = acquire(self.out)  # before tidying: a second writer must not tidy the first's runs away
+
+        def changed(held: dict[str, Any]) -> None:
+            _refuse_changed_posterior(self.out, held, plan)
+            raise StoreError(
+                f"{self.out}: holds a batch of a different experiment (the experiment or its world changed "
+                "since it started); choose another --out (nothing was overwritten)"
+            )
+
+        def write_record() -> None:
+            self.runs.mkdir(parents=True, exist_ok=True)
+            calibration = {"calibration": plan.posterior.record()} if plan.posterior is not None else {}
+            write_json(
+                {
+                    "experiment": plan.spec.model_dump(mode="json"),
+                    "experiment_file": str(plan.source),
+                    "experiment_sha256": plan.digest(),
+                    "world_file": str(plan.world_path),
+                    "world_sha256": plan.world_sha256,
+                    "factors": [_factor_record(f) for f in plan.factors],
+                    "design": plan.design_table(),
+                    "seeds": list(plan.seeds),
+                    "runs": plan.total_runs,
+                    "packages": package_versions(),
+                    "command": command,
+                    **calibration,
+                },
+                self.out / EXPERIMENT_FILE,
+            )
+            self.started = True
+
+        created = [p for p in (self.out, self.runs) if not p.exists()]
+        # Taken up, the lock is held before tidying: a second writer must not tidy the first's runs away.
+        self.lock, taken_up = open_output(self.out, EXPERIMENT_FILE, "batch", resume, StoreError,
+                                          ("experiment_sha256", plan.digest()), write_record, changed)
+        if taken_up:
             self._tidy()
-            return
-        self.created = [p for p in (self.out, self.runs) if not p.exists()]
-        self.runs.mkdir(parents=True, exist_ok=True)
-        self.lock = acquire(self.out)
-        calibration = {"calibration": plan.posterior.record()} if plan.posterior is not None else {}
-        write_json(
-            {
-                "experiment": plan.spec.model_dump(mode="json"),
-                "experiment_file": str(plan.source),
-                "experiment_sha256": plan.digest(),
-                "world_file": str(plan.world_path),
-                "world_sha256": plan.world_sha256,
-                "factors": [_factor_record(f) for f in plan.factors],
-                "design": plan.design_table(),
-                "seeds": list(plan.seeds),
-                "runs": plan.total_runs,
-                "packages": package_versions(),
-                "command": command,
-                **calibration,
-            },
-            record,
-        )
-        self.started = True
+        else:
+            self.created = created
 
     def _tidy(self) -> None:
         """Before resuming: partial runs are redone from scratch, and so are failed ones."""

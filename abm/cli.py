@@ -19,6 +19,7 @@ from .errors import InputError, refuse_unwritable
 from .reference import FILE_KINDS as _KINDS
 
 if TYPE_CHECKING:
+    from .experiment.executors import Placement
     from .report.document import Document
     from .world.words import Words
 
@@ -276,6 +277,13 @@ def _start_pool_server(
     start_server_for(executor, scheduler, extension_modules)
 
 
+def _placement(args: argparse.Namespace) -> Placement:
+    """Where the command's runs execute."""
+    from .experiment.executors import Placement
+
+    return Placement(args.executor, args.workers, args.scheduler, args.shared_output)
+
+
 def cmd_batch(args: argparse.Namespace) -> int:
     """Run every run of an experiment into a batch folder; print the per-design-point comparison."""
     _start_pool_server(args.executor, args.scheduler, BATCH_EXTENSION_MODULES)
@@ -286,8 +294,8 @@ def cmd_batch(args: argparse.Namespace) -> int:
     try:
         # every estimator's result becomes summary columns, so briefings can weigh them against truth
         ok = batch_command(
-            args.experiment, args.out, args.executor, args.workers, args.scheduler, args.resume, command,
-            extensions=(cached_estimates,), allow_large=args.allow_large, shared_output=args.shared_output,
+            args.experiment, args.out, _placement(args), args.resume, command, extensions=(cached_estimates,),
+            allow_large=args.allow_large,
         )
     except KeyboardInterrupt:
         return _interrupted("batch", args.out)
@@ -302,8 +310,8 @@ def cmd_calibrate(args: argparse.Namespace) -> int:
 
     try:
         calibrate_command(
-            args.calibration, args.out, args.executor, args.workers, args.scheduler, args.resume, args.check,
-            ["undertow", *args.argv], args.allow_large, shared_output=args.shared_output, keep_runs=args.keep_runs,
+            args.calibration, args.out, _placement(args), args.resume, args.check, ["undertow", *args.argv],
+            args.allow_large, keep_runs=args.keep_runs,
         )
     except KeyboardInterrupt:
         return _interrupted("calibrate", args.out)
@@ -337,8 +345,8 @@ def cmd_optimise(args: argparse.Namespace) -> int:
 
     try:
         optimise_command(
-            args.optimisation, args.out, args.executor, args.workers, args.scheduler, args.resume, args.check,
-            ["undertow", *args.argv], args.allow_large, shared_output=args.shared_output, keep_runs=args.keep_runs,
+            args.optimisation, args.out, _placement(args), args.resume, args.check, ["undertow", *args.argv],
+            args.allow_large, keep_runs=args.keep_runs,
         )
     except KeyboardInterrupt:
         return _interrupted("optimise", args.out)

@@ -27,7 +27,7 @@ from pydantic import Field, field_validator
 from ..errors import InputError, refuse_unwritable
 from ..experiment.budget import SHOWN_VEHICLE_DAYS, Keys, PlanSize, busiest_day, refuse
 from ..experiment.project_file import read_project_file
-from ..experiment.executors import Executor, choose_executor, make_executor
+from ..experiment.executors import Executor, Placement
 from ..experiment.journal import Journal
 from ..experiment.lock import release
 from ..experiment.out_folder import open_output
@@ -568,32 +568,23 @@ def describe_optimisation(path: str | Path, allow_large: bool = False) -> str:
 
 
 def optimise_command(
-    path: str | Path,
-    out: str | Path | None,
-    executor: str | None,
-    workers: int | None,
-    scheduler: str | None,
-    resume: bool,
-    check: bool,
-    command: Sequence[str],
-    allow_large: bool = False,
-    shared_output: bool = False,
-    keep_runs: bool = False,
+    path: str | Path, out: str | Path | None, place: Placement, resume: bool, check: bool, command: Sequence[str],
+    allow_large: bool = False, keep_runs: bool = False,
 ) -> None:
-    """``undertow optimise``: validate (``check``) or search, and print the summary."""
+    """``undertow optimise``: validate (``check``) or search where ``place`` says, and print the summary."""
     if check:
         print(describe_optimisation(path, allow_large))
         return
     if out is None:
         raise InputError("--out: a policy search needs an output folder (or pass --check to only validate the file)")
-    executor = choose_executor(executor, workers, scheduler, shared_output)
+    place.name()  # contradictory options are refused before anything is read
     refuse_unwritable(out)
     plan = load_optimisation(path, allow_large, Path(out))
     if plan.size is not None and plan.size.vehicle_days > SHOWN_VEHICLE_DAYS:
         print(plan.size.describe(), file=sys.stderr)
     from ..progress import progress
 
-    with make_executor(executor, workers, scheduler, shared_output=shared_output) as runner, progress(
+    with place.make() as runner, progress(
         plan.settings.maxiter, "generations", "policy search"
     ) as bar:
         result = run_optimisation(plan, out, runner, resume, command, progress=bar.update, keep_runs=keep_runs)

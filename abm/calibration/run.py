@@ -17,7 +17,7 @@ import pandas as pd
 
 from ..errors import InputError, refuse_unwritable
 from ..experiment.budget import SHOWN_VEHICLE_DAYS
-from ..experiment.executors import Executor, choose_executor, make_executor
+from ..experiment.executors import Executor, Placement, make_executor
 from ..atomic import write_atomically
 from ..records import write_json, write_parquet
 from .abc import ABCPosterior, PredictiveCheck, abc_smc, predictive_check
@@ -293,26 +293,16 @@ def calibrate(
 
 
 def calibrate_command(
-    path: str | Path,
-    out: str | Path | None,
-    executor: str | None,
-    workers: int | None,
-    scheduler: str | None,
-    resume: bool,
-    check: bool,
-    command: Sequence[str],
-    allow_large: bool = False,
-    shared_output: bool = False,
-    keep_runs: bool = False,
+    path: str | Path, out: str | Path | None, place: Placement, resume: bool, check: bool, command: Sequence[str],
+    allow_large: bool = False, keep_runs: bool = False,
 ) -> None:
-    """``undertow calibrate``: validate (``check``) or run, and print the summary."""
+    """``undertow calibrate``: validate (``check``) or run where ``place`` says, and print the summary."""
     if check:
         print(describe_calibration(path, allow_large))
         return
     if out is None:
         raise InputError("--out: a calibration needs an output folder (or pass --check to only validate the file)")
-    executor = choose_executor(executor, workers, scheduler, shared_output)
-    result = calibrate(path, out, executor, workers, scheduler, resume, command, allow_large=allow_large,
-                       shared_output=shared_output, keep_runs=keep_runs)
+    result = calibrate(path, out, place.name(), place.workers, place.scheduler, resume, command,
+                       allow_large=allow_large, shared_output=place.shared_output, keep_runs=keep_runs)
     print(result.summary())
     print(f"\nTables, summary.txt and figures in {out}", file=sys.stderr)

@@ -21,7 +21,7 @@ import pandas as pd
 from .compare import compare_points, format_comparison
 from .budget import SHOWN_VEHICLE_DAYS, PlanSize, busiest_day
 from .design import Plan, RunSpec, load_plan, point_shown
-from .executors import choose_executor, make_executor
+from .executors import Placement, make_executor
 from .store import FAILURES_TABLE, Store, SummaryExtension
 from ..errors import refuse_unwritable
 from ..progress import progress
@@ -173,19 +173,17 @@ def print_warning(text: str) -> None:
 def batch_command(
     experiment: str | Path,
     out: str | Path,
-    executor: str | None,
-    workers: int | None,
-    scheduler: str | None,
+    place: Placement,
     resume: bool,
     command: Sequence[str],
     extensions: Sequence[SummaryExtension] = (),
     allow_large: bool = False,
-    shared_output: bool = False,
 ) -> bool:
-    """``undertow batch``: run the batch, print the comparison; False when some runs failed (noted on stderr)."""
-    executor = choose_executor(executor, workers, scheduler, shared_output)
-    result = run_batch(experiment, out, executor, workers, scheduler, resume, command, extensions=extensions,
-                       on_warning=print_warning, allow_large=allow_large, shared_output=shared_output)
+    """``undertow batch``: run the batch where ``place`` says, print the comparison; False when some runs failed
+    (noted on stderr)."""
+    result = run_batch(experiment, out, place.name(), place.workers, place.scheduler, resume, command,
+                       extensions=extensions, on_warning=print_warning, allow_large=allow_large,
+                       shared_output=place.shared_output)
     done = len(result.summary)  # runs read back whole from the store, not answers that said so
     print(f"{result.plan.spec.name}: {done} of {result.total} runs complete ({result.ran} run now) -> {result.out}")
     print(format_comparison(result.comparison, [f.label for f in result.plan.factors],

@@ -26,7 +26,7 @@ from collections import deque
 from collections.abc import Iterable, Iterator, Sequence
 from concurrent.futures import FIRST_COMPLETED, Future, ProcessPoolExecutor, wait
 from concurrent.futures.process import BrokenProcessPool
-from dataclasses import replace
+from dataclasses import dataclass, replace
 from types import TracebackType
 from typing import Any, Protocol
 
@@ -282,6 +282,25 @@ def quiet_dask_logs() -> None:
     """Let this process's Dask (and its Tornado loop) log only critical messages from now on."""
     for name in ("distributed", "tornado.application"):
         logging.getLogger(name).setLevel(logging.CRITICAL)
+
+
+@dataclass(frozen=True)
+class Placement:
+    """Where a command's runs execute, as its options say: ``--executor``, ``--workers``, ``--scheduler`` and
+    ``--shared-output``."""
+
+    executor: str | None = None
+    workers: int | None = None
+    scheduler: str | None = None
+    shared_output: bool = False
+
+    def name(self) -> str:
+        """The executor these options choose (refusing options that contradict each other)."""
+        return choose_executor(self.executor, self.workers, self.scheduler, self.shared_output)
+
+    def make(self, preload: Sequence[str] = ()) -> Executor:
+        """The executor, not yet entered; ``preload`` as for :class:`ProcessExecutor`."""
+        return make_executor(self.name(), self.workers, self.scheduler, preload, self.shared_output)
 
 
 def choose_executor(

@@ -13,7 +13,7 @@ import os
 import sys
 from collections.abc import Callable, Sequence
 from pathlib import Path
-from typing import TYPE_CHECKING
+from typing import TYPE_CHECKING, Any
 
 from .errors import InputError, refuse_unwritable
 from .reference import FILE_KINDS as _KINDS
@@ -302,7 +302,6 @@ def cmd_batch(args: argparse.Namespace) -> int:
     return EXIT_OK if ok else EXIT_FAULT
 
 
-
 def cmd_calibrate(args: argparse.Namespace) -> int:
     """Fit unknown inflow and behaviour to observed records by ABC over the model; print the posterior."""
     _start_pool_server(args.executor, args.scheduler)
@@ -426,7 +425,25 @@ def build_parser() -> argparse.ArgumentParser:
     parser = _Parser(prog="undertow", description=__doc__.splitlines()[0])
     parser.add_argument("--version", action=_Version, nargs=0, help="print the versions and exit")
     sub = parser.add_subparsers(dest="command", required=True, parser_class=_Parser)
+    _add_file_commands(sub)
+    _add_run_commands(sub)
+    _add_reading_commands(sub)
+    _add_search_commands(sub)
+    return parser
 
+
+def _add_placement(command: argparse.ArgumentParser) -> None:
+    """The options saying where a command's runs execute (:class:`abm.experiment.executors.Placement`)."""
+    command.add_argument(
+        "--executor", choices=["serial", "processes", "dask"], help="where runs execute (default serial; dask with --scheduler)"
+    )
+    command.add_argument("--workers", type=_positive_int, help="worker processes (default: one per CPU)")
+    command.add_argument("--scheduler", type=_scheduler_address, metavar="ADDRESS", help="an existing Dask scheduler, e.g. tcp://10.0.0.5:8786")
+    command.add_argument("--shared-output", action="store_true", help=SHARED_OUTPUT_HELP)
+
+
+def _add_file_commands(sub: Any) -> None:
+    """check, schema and new: the commands about the files a user writes."""
     check = sub.add_parser("check", help="validate world, experiment, calibration and optimisation files")
     check.add_argument("files", nargs="+", help="YAML files of any kind the tool reads (by their kind:)")
     check.add_argument("--allow-large", action="store_true", help=ALLOW_LARGE_HELP)
@@ -436,15 +453,29 @@ def build_parser() -> argparse.ArgumentParser:
     schema.add_argument("kind", metavar="KIND", choices=FILE_KINDS, help=f"one of {', '.join(FILE_KINDS)}")
     schema.set_defaults(func=cmd_schema)
 
+    new = sub.add_parser("new", help="write a starting file: a world of a kind, an experiment, or a shipped example")
+    new_files = new.add_subparsers(dest="what", required=True, parser_class=_Parser)
+    new_world = new_files.add_parser("world", help="a fictional starting world that check accepts")
+    new_world.add_argument("--kind", choices=["ferry", "rail", "land"], required=True,
+                           help="ferry port (sailings), rail freight terminal (trains) or land border (none)")
+    new_world.add_argument("out", metavar="OUT.yaml", help="file to create (never overwritten)")
+    new_experiment = new_files.add_parser("experiment", help="an experiment for a world: its roster against two changes")
+    new_experiment.add_argument("world", metavar="WORLD.yaml", help="the world file the experiment runs")
+    new_experiment.add_argument("out", metavar="OUT.yaml", help="file to create (never overwritten)")
+    new_example = new_files.add_parser("example", help="a copy of a shipped example world's folder to edit")
+    new_example.add_argument("name", choices=["kestrel_quay", "stonechat_rail", "corran_ridge"],
+                             help="kestrel_quay (ferry, the demo, with its agency extract), stonechat_rail (rail), "
+                                  "corran_ridge (land border)")
+    new_example.add_argument("out", metavar="FOLDER", help="folder to create (never overwritten)")
+    new.set_defaults(func=cmd_new)
+
+
+def _add_run_commands(sub: Any) -> None:
+    """batch, run and demo: the commands that simulate."""
     batch = sub.add_parser("batch", help="run an experiment's batch of runs and compare its design points")
     batch.add_argument("experiment", help="experiment YAML file")
     batch.add_argument("--out", required=True, help="batch folder to create (or to finish, with --resume)")
-    batch.add_argument(
-        "--executor", choices=["serial", "processes", "dask"], help="where runs execute (default serial; dask with --scheduler)"
-    )
-    batch.add_argument("--workers", type=_positive_int, help="worker processes (default: one per CPU)")
-    batch.add_argument("--scheduler", type=_scheduler_address, metavar="ADDRESS", help="an existing Dask scheduler, e.g. tcp://10.0.0.5:8786")
-    batch.add_argument("--shared-output", action="store_true", help=SHARED_OUTPUT_HELP)
+    _add_placement(batch)
     batch.add_argument("--resume", action="store_true", help="finish a batch in --out: skip complete runs, redo the rest")
     batch.add_argument("--allow-large", action="store_true", help=ALLOW_LARGE_HELP)
     batch.set_defaults(func=cmd_batch)
@@ -471,6 +502,9 @@ def build_parser() -> argparse.ArgumentParser:
     demo.add_argument("--workers", type=_positive_int, help="worker processes (default: one per CPU)")
     demo.set_defaults(func=cmd_demo)
 
+
+def _add_reading_commands(sub: Any) -> None:
+    """brief, compare, estimate and export: the commands that read what runs wrote."""
     brief = sub.add_parser("brief", help="write a briefing (HTML and Markdown) from a batch folder or one run")
     brief.add_argument("out", metavar="OUT", help="batch folder written by undertow batch or undertow demo, or a "
                        "run directory written by undertow run (a short report on that run)")
@@ -513,22 +547,6 @@ def build_parser() -> argparse.ArgumentParser:
     estimate.add_argument("--seed", type=_seed, help="seed for the expansions' bootstrap intervals (default: none)")
     estimate.set_defaults(func=cmd_estimate)
 
-    new = sub.add_parser("new", help="write a starting file: a world of a kind, an experiment, or a shipped example")
-    new_files = new.add_subparsers(dest="what", required=True, parser_class=_Parser)
-    new_world = new_files.add_parser("world", help="a fictional starting world that check accepts")
-    new_world.add_argument("--kind", choices=["ferry", "rail", "land"], required=True,
-                           help="ferry port (sailings), rail freight terminal (trains) or land border (none)")
-    new_world.add_argument("out", metavar="OUT.yaml", help="file to create (never overwritten)")
-    new_experiment = new_files.add_parser("experiment", help="an experiment for a world: its roster against two changes")
-    new_experiment.add_argument("world", metavar="WORLD.yaml", help="the world file the experiment runs")
-    new_experiment.add_argument("out", metavar="OUT.yaml", help="file to create (never overwritten)")
-    new_example = new_files.add_parser("example", help="a copy of a shipped example world's folder to edit")
-    new_example.add_argument("name", choices=["kestrel_quay", "stonechat_rail", "corran_ridge"],
-                             help="kestrel_quay (ferry, the demo, with its agency extract), stonechat_rail (rail), "
-                                  "corran_ridge (land border)")
-    new_example.add_argument("out", metavar="FOLDER", help="folder to create (never overwritten)")
-    new.set_defaults(func=cmd_new)
-
     export = sub.add_parser(
         "export", help="write a run's or a batch's tables as CSV files or an xlsx workbook",
         description="Write every table of a run directory or batch folder as CSV files or one xlsx workbook. "
@@ -545,6 +563,9 @@ def build_parser() -> argparse.ArgumentParser:
     )
     export.set_defaults(func=cmd_export)
 
+
+def _add_search_commands(sub: Any) -> None:
+    """calibrate and optimise: the commands that search over many candidate runs."""
     for name, key, func, what in (
         ("calibrate", "calibration", cmd_calibrate, "fit inflow and behaviour to observed records (ABC over the model)"),
         ("optimise", "optimisation", cmd_optimise, "search policies under delay and staff constraints"),
@@ -552,19 +573,13 @@ def build_parser() -> argparse.ArgumentParser:
         search = sub.add_parser(name, help=what)
         search.add_argument(key, help=f"{key} YAML file")
         search.add_argument("--out", help="output folder to create (or to finish, with --resume)")
-        search.add_argument(
-            "--executor", choices=["serial", "processes", "dask"], help="where runs execute (default serial; dask with --scheduler)"
-        )
-        search.add_argument("--workers", type=_positive_int, help="worker processes (default: one per CPU)")
-        search.add_argument("--scheduler", type=_scheduler_address, metavar="ADDRESS", help="an existing Dask scheduler, e.g. tcp://10.0.0.5:8786")
-        search.add_argument("--shared-output", action="store_true", help=SHARED_OUTPUT_HELP)
+        _add_placement(search)
         search.add_argument("--resume", action="store_true", help="take up an interrupted run in --out: finished runs are kept")
         search.add_argument("--keep-runs", action="store_true", help="keep every candidate's run directory (by default "
                             "only its figures are kept, a few hundred bytes each)")
         search.add_argument("--check", action="store_true", help="only validate the file and say what it would run")
         search.add_argument("--allow-large", action="store_true", help=ALLOW_LARGE_HELP)
         search.set_defaults(func=func)
-    return parser
 
 
 def main(argv: Sequence[str] | None = None) -> int:

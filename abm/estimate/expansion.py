@@ -75,6 +75,30 @@ def selection_shares(checks: pd.DataFrame, station: str, strata: list[str], esti
     return totals["checks"] / totals["vehicles"]
 
 
+def detected_groups(
+    tables: dict[str, pd.DataFrame], window: Window, station: str, strata: list[str], unit: str, estimator: str
+) -> pd.DataFrame:
+    """The groups detected at ``station`` in the window, one row each: stratum, size (1 per vehicle with
+    ``unit`` vehicles) and the stratum's selection share."""
+    shares = selection_shares(in_window(tables["checks"], window), station, strata, estimator)
+    detections = station_detections(in_window(tables["encounters"], window))
+    detections = detections[detections["place"] == station]
+    if detections.empty:
+        raise EstimatorCannotRun(estimator, f"no detections at '{station}' in the window ({window_text(window)})")
+    # A vehicle carried past midnight has minute >= 1440: its hour of day wraps.
+    detections = detections.assign(hour=(detections["minute"] // 60).astype("int64") % 24)
+    groups = detections.groupby(["encounter_id", *strata]).size().rename("size").reset_index()
+    if unit == "vehicles":
+        groups["size"] = 1
+    by_hour = "hour" in strata
+    share = shares.reindex(pd.MultiIndex.from_frame(groups[strata]) if by_hour else groups["vehicle_class"])
+    if share.isna().any() or (share == 0).any():
+        where = groups.loc[(share.isna() | (share == 0)).to_numpy(), strata].iloc[0].tolist()
+        raise EstimatorCannotRun(estimator, f"detections at '{station}' in stratum {where} where no vehicle was checked")
+    groups["share"] = share.to_numpy()
+    return groups
+
+
 def expansion(
     observed: Observed,
     window: Window = None,
@@ -121,21 +145,7 @@ def expansion(
     a, b = beta_for(station, str(row["method"].iloc[0]), sensitivities, name)
 
     strata = ["vehicle_class", "hour"] if by_hour else ["vehicle_class"]
-    shares = selection_shares(in_window(tables["checks"], window), station, strata, name)
-    detections = station_detections(in_window(tables["encounters"], window))
-    detections = detections[detections["place"] == station]
-    if detections.empty:
-        raise EstimatorCannotRun(name, f"no detections at '{station}' in the window ({window_text(window)})")
-    # A vehicle carried past midnight has minute >= 1440: its hour of day wraps.
-    detections = detections.assign(hour=(detections["minute"] // 60).astype("int64") % 24)
-    groups = detections.groupby(["encounter_id", *strata]).size().rename("size").reset_index()
-    if unit == "vehicles":
-        groups["size"] = 1
-    share = shares.reindex(pd.MultiIndex.from_frame(groups[strata]) if by_hour else groups["vehicle_class"])
-    if share.isna().any() or (share == 0).any():
-        where = groups.loc[(share.isna() | (share == 0)).to_numpy(), strata].iloc[0].tolist()
-        raise EstimatorCannotRun(name, f"detections at '{station}' in stratum {where} where no vehicle was checked")
-    groups["share"] = share.to_numpy()
+    groups = detected_groups(tables, window, station, strata, unit, name)
 
     s_mean = a / (a + b)
     s_var = a * b / ((a + b) ** 2 * (a + b + 1))

@@ -70,8 +70,18 @@ def check_references(world: World) -> None:
     _check_bands(world)
     _check_weather(world)
     _check_lengths(world)
-    classes, bands = world.class_names, world.band_names
+    _check_methods(world)
+    _check_stations(world)
+    _check_points(world)
+    _check_teams(world)
+    _check_lanes_fit(world)
+    _check_staffed(world)
+    _check_adversary(world)
 
+
+def _check_methods(world: World) -> None:
+    """Each method's detection chances name known classes, or give a default for the rest."""
+    classes = world.class_names
     for i, method in enumerate(world.methods):
         for key in method.detection:
             if key != DEFAULT_KEY:
@@ -84,6 +94,10 @@ def check_references(world: World) -> None:
             )
         _check_method_conditions(world, i)
 
+
+def _check_stations(world: World) -> None:
+    """Stations name known methods, bands and classes; referrals go downstream to a secondary station."""
+    classes, bands = world.class_names, world.band_names
     names = world.station_names
     for i, station in enumerate(world.stations):
         path = f"stations[{i}]"
@@ -118,6 +132,10 @@ def check_references(world: World) -> None:
         if station.role == "secondary" and not any(s.refer_to == station.name for s in world.stations):
             raise ReferenceProblem(f"stations[{i}].name", f"secondary station '{station.name}' receives no referrals")
 
+
+def _check_points(world: World) -> None:
+    """Boarding points lie before a primary station or at departure and name known classes and bands."""
+    classes, bands, names = world.class_names, world.band_names, world.station_names
     primaries = [s.name for s in world.stations if s.role == "primary"]
     for i, point in enumerate(world.boarding_points):
         path = f"boarding_points[{i}]"
@@ -135,6 +153,10 @@ def check_references(world: World) -> None:
             if key != DEFAULT_KEY:
                 _require(key, bands, f"{path}.interdiction.{key}", "time band")
 
+
+def _check_teams(world: World) -> None:
+    """Teams staff known stations and patrol known points; only flexible teams have postings, weighted."""
+    names = world.station_names
     for i, team in enumerate(world.roster.teams):
         for key in team.lanes:
             _require(key, names, f"roster.teams[{i}].lanes.{key}", "station")
@@ -150,9 +172,11 @@ def check_references(world: World) -> None:
         if team.postings and not sum(p.weight for p in team.postings) > 0:
             raise ReferenceProblem(f"roster.teams[{i}].postings", "the weights sum to 0, so randomised command has "
                                    "nothing to draw; give at least one posting a positive weight")
-    _check_lanes_fit(world)
-    _check_staffed(world)
 
+
+def _check_adversary(world: World) -> None:
+    """The adversary's waits and shares, and the displacement areas, name known bands, points, classes, depths."""
+    classes, bands = world.class_names, world.band_names
     for key in world.adversary.adaptive.band_waiting:
         _require(key, bands, f"adversary.adaptive.band_waiting.{key}", "time band")
     if world.displacement is not None:

@@ -292,6 +292,8 @@ class ReinforcementBehaviour(_Quiet):
         self.options = options
 
     def choose(self, agents: Sequence["ConcealmentAgent"], rng: np.random.Generator) -> np.ndarray:
+        if not agents:  # a day when nobody attempts
+            return np.zeros(0, dtype=np.int64)
         rows = [self.propensity * self.options.valid_for(agent.size) for agent in agents]
         weights = np.array([fits if fits.sum() > 0 else self.propensity for fits in rows]).reshape(len(agents), -1)
         return _draw(weights, rng)

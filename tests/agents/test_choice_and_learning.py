@@ -150,3 +150,13 @@ def test_roth_erev_update_follows_the_published_rule() -> None:
         spread[option] = reward * 0.8
         q = 0.9 * q + spread
     np.testing.assert_allclose(behaviour.propensity, q)
+
+
+@pytest.mark.parametrize("behaviour", ["static", "adaptive", "reinforcement"])
+def test_a_day_when_nobody_attempts_is_an_empty_choice(behaviour: str) -> None:
+    # Found on a rail world whose few groups all rested one day: the reinforcement model failed to shape no rows.
+    world = two_option_world(0.2, 0.5)
+    world["adversary"]["behaviour"] = behaviour
+    model = PortModel(parse_world(world), seed=0)
+    chosen = model.behaviour.choose([], np.random.default_rng(0))
+    assert np.asarray(chosen).shape == (0,)

@@ -23,10 +23,11 @@ from .abc import (
     pointwise,
     predictive_check,
     regression_adjust,
+    rejection_abc,
+    rejection_from_table,
     smc_weights,
     weighted_quantile,
 )
-from .rejection import rejection_abc, rejection_from_table
 from .config import CalibrationFileError, CalibrationPlan, describe_calibration, load_calibration
 from .priors import Prior, PriorError, PriorSet
 from .run import CalibrationResult, calibrate, run_calibration

@@ -27,12 +27,7 @@ def efficient_frontier(cost: Sequence[float], benefit: Sequence[float]) -> np.nd
     return out
 
 
-
 def frontier(history: pd.DataFrame, benefit: str = BENEFIT, cost: str = DELAY) -> pd.DataFrame:
-    """Candidates no other candidate beats on both ``benefit`` (higher) and ``cost`` (lower), by cost."""
-    frame = history[np.isfinite(history[benefit]) & np.isfinite(history[cost])]
-    b, c = frame[benefit].to_numpy(), frame[cost].to_numpy()
-    dominated = np.array(
-        [bool(np.any((b >= b[i]) & (c <= c[i]) & ((b > b[i]) | (c < c[i])))) for i in range(len(frame))], dtype=bool
-    )
-    return frame[~dominated].sort_values(cost, kind="stable").reset_index(drop=True)
+    """Rows no other row beats on both ``benefit`` (higher) and ``cost`` (lower), by cost; rows missing either are out."""
+    on = efficient_frontier(history[cost], history[benefit])
+    return history[on].sort_values(cost, kind="stable").reset_index(drop=True)

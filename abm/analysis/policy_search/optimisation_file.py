@@ -21,6 +21,7 @@ from .problem import FIGURE_SOURCES, FIGURES, Allocation, Constraint, Problem, S
 
 CURRENT = "current"  # the name given to the world as it stands when the file names no such policy
 
+
 class OptimisationFileError(WorldFileError):
     """An optimisation file that cannot be used, with the key path at fault. ``str()`` is one line."""
 

@@ -25,7 +25,7 @@ FIGURE_SOURCES = dict(SUMMARY_SOURCES) | DERIVED
 FIGURES = tuple(FIGURE_SOURCES)
 REPORTED = (BENEFIT, DELAY, "crossings", "check_hours")  # figures every finalist's row carries
 # Spawn-key purposes: the search's common seeds, the selection's fresh seeds, differential evolution's own draws.
-_SEARCH, _FRESH, _EVOLUTION = 0x5EA, 0xF5E, 0xDE
+SEARCH_SEEDS, FRESH_SEEDS, EVOLUTION_SEEDS = 0x5EA, 0xF5E, 0xDE
 INVALID = 1e12  # objective and violation of a candidate whose world is invalid or whose runs failed
 
 
@@ -187,7 +187,7 @@ def replication_seeds(seed: int, purpose: int, n: int) -> tuple[int, ...]:
     return tuple(int(child.generate_state(1)[0]) for child in root.spawn(n))
 
 
-class _Cache:
+class CandidateCache:
     """Figures per candidate (mean over the search's seeds), each candidate simulated once."""
 
     def __init__(self, evaluate: Evaluator, seeds: Sequence[int]) -> None:

@@ -12,11 +12,12 @@ from scipy import optimize
 
 from ..frontier import BENEFIT, DELAY, frontier
 from .problem import (
-    _EVOLUTION, _SEARCH, INVALID, Evaluator, PolicySearchError, Problem, SearchSettings, _Cache, candidate_id,
-    replication_seeds,
+    EVOLUTION_SEEDS, INVALID, SEARCH_SEEDS, CandidateCache, Evaluator, PolicySearchError, Problem, SearchSettings,
+    candidate_id, replication_seeds,
 )
 from .result import PolicySearchResult
-from .selection import _select
+from .selection import select
+
 
 def search_policy(
     evaluate: Evaluator,
@@ -28,55 +29,16 @@ def search_policy(
     name: str = "policy search",
     progress: Callable[[int], None] | None = None,
 ) -> PolicySearchResult:
-    """Search, select and trace the frontier (see the module docstring); ``policies`` join the selection."""
+    """Search, select and trace the frontier (see the package docstring); ``policies`` join the selection."""
     for figure in {problem.objective, BENEFIT, DELAY, *(c.figure for c in problem.constraints)}:
         if figure not in evaluate.figures:
             raise PolicySearchError(f"the evaluator gives no figure '{figure}' (it gives {', '.join(evaluate.figures)})")
-    cache = _Cache(evaluate, replication_seeds(seed, _SEARCH, settings.replications))
-
-    def columns(x: np.ndarray) -> list[str]:
-        points = [problem.decode(x[:, s]) for s in range(x.shape[1])]
-        cache.get(points)
-        return [candidate_id(p) for p in points]
-
-    def objective(x: np.ndarray) -> np.ndarray:
-        values = [problem.sign * cache.mean(cid, problem.objective) for cid in columns(np.atleast_2d(x.T).T)]
-        return np.array([v if math.isfinite(v) else INVALID for v in values])
-
-    def violations(x: np.ndarray) -> np.ndarray:
-        ids = columns(np.atleast_2d(x.T).T)
-        return np.array([[c.violation(cache.mean(cid, c.figure)) for cid in ids] for c in problem.constraints])
-
-    rng = np.random.default_rng(np.random.SeedSequence(seed, spawn_key=(_EVOLUTION,)))
-    constraints = [optimize.NonlinearConstraint(violations, -np.inf, 0.0)] if problem.constraints else []
-    integer = problem.integrality()
-
-    def tick(intermediate_result: optimize.OptimizeResult) -> None:  # scipy passes the result by this name
-        if progress is not None:
-            progress(1)
-
-    de = optimize.differential_evolution(
-        objective,
-        problem.bounds(),
-        strategy="best1bin",
-        maxiter=settings.maxiter,
-        popsize=settings.popsize,
-        tol=settings.tol,
-        mutation=settings.mutation,
-        recombination=settings.recombination,
-        init=settings.init,
-        polish=False,
-        integrality=integer if integer.any() else None,
-        vectorized=True,
-        updating="deferred",
-        constraints=constraints,
-        rng=rng,
-        callback=tick,
-    )
+    cache = CandidateCache(evaluate, replication_seeds(seed, SEARCH_SEEDS, settings.replications))
+    de = _evolve(cache, problem, settings, seed, progress)
     history = _history(cache, problem)
     finalists = _finalists(history, problem, settings.top)
     named = {label: dict(changes) for label, changes in (policies or {}).items()}
-    selection, best = _select(evaluate, finalists, named, cache, problem, settings, seed)
+    selection, best = select(evaluate, finalists, named, cache, problem, settings, seed)
     best_changes = named[best] if best in named else cache.changes[best]
     return PolicySearchResult(
         name=name,
@@ -99,6 +61,56 @@ def search_policy(
     )
 
 
+def _evolve(
+    cache: CandidateCache,
+    problem: Problem,
+    settings: SearchSettings,
+    seed: int,
+    progress: Callable[[int], None] | None,
+) -> optimize.OptimizeResult:
+    """Differential evolution over the problem, each candidate's figures from ``cache`` (see the package docstring)."""
+
+    def columns(x: np.ndarray) -> list[str]:
+        points = [problem.decode(x[:, s]) for s in range(x.shape[1])]
+        cache.get(points)
+        return [candidate_id(p) for p in points]
+
+    def objective(x: np.ndarray) -> np.ndarray:
+        values = [problem.sign * cache.mean(cid, problem.objective) for cid in columns(np.atleast_2d(x.T).T)]
+        return np.array([v if math.isfinite(v) else INVALID for v in values])
+
+    def violations(x: np.ndarray) -> np.ndarray:
+        ids = columns(np.atleast_2d(x.T).T)
+        return np.array([[c.violation(cache.mean(cid, c.figure)) for cid in ids] for c in problem.constraints])
+
+    rng = np.random.default_rng(np.random.SeedSequence(seed, spawn_key=(EVOLUTION_SEEDS,)))
+    constraints = [optimize.NonlinearConstraint(violations, -np.inf, 0.0)] if problem.constraints else []
+    integer = problem.integrality()
+
+    def tick(intermediate_result: optimize.OptimizeResult) -> None:  # scipy passes the result by this name
+        if progress is not None:
+            progress(1)
+
+    return optimize.differential_evolution(
+        objective,
+        problem.bounds(),
+        strategy="best1bin",
+        maxiter=settings.maxiter,
+        popsize=settings.popsize,
+        tol=settings.tol,
+        mutation=settings.mutation,
+        recombination=settings.recombination,
+        init=settings.init,
+        polish=False,
+        integrality=integer if integer.any() else None,
+        vectorized=True,
+        updating="deferred",
+        constraints=constraints,
+        rng=rng,
+        callback=tick,
+    )
+
+
 def _stopped(de: optimize.OptimizeResult, maxiter: int) -> str:
     """Why the search stopped, in our words rather than the library's."""
     if de.success:
@@ -109,7 +121,7 @@ def _stopped(de: optimize.OptimizeResult, maxiter: int) -> str:
     return "stopped early: no candidate met the constraints well enough to go on; widen the bounds or the limits"
 
 
-def _history(cache: _Cache, problem: Problem) -> pd.DataFrame:
+def _history(cache: CandidateCache, problem: Problem) -> pd.DataFrame:
     """Every searched candidate: its changes, mean figures over the search's seeds, feasibility, objective."""
     rows = []
     for cid in cache.order:

@@ -11,19 +11,22 @@ import pandas as pd
 from scipy import stats
 
 from ...experiment.compare import bounded_mean_interval, figure_scale, mean_interval
-from .problem import _FRESH, REPORTED, Evaluator, Problem, SearchSettings, _Cache, candidate_id, replication_seeds
+from .problem import (
+    FRESH_SEEDS, REPORTED, CandidateCache, Evaluator, Problem, SearchSettings, candidate_id, replication_seeds,
+)
 
-def _select(
+
+def select(
     evaluate: Evaluator,
     finalists: Sequence[str],
     named: Mapping[str, Mapping[str, Any]],
-    cache: _Cache,
+    cache: CandidateCache,
     problem: Problem,
     settings: SearchSettings,
     seed: int,
 ) -> tuple[pd.DataFrame, str]:
     """Fresh common seeds for every finalist; the incumbent and paired t comparisons against it."""
-    seeds = replication_seeds(seed, _FRESH, settings.selection_replications)
+    seeds = replication_seeds(seed, FRESH_SEEDS, settings.selection_replications)
     labels = list(finalists) + [n for n in named if candidate_id(named[n]) not in finalists]
     changes = [cache.changes[c] if c in cache.changes else dict(named[c]) for c in labels]
     values = np.asarray(evaluate(changes, seeds), dtype=float)  # (candidates, seeds, figures)

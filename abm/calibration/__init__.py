@@ -3,9 +3,12 @@
 The model itself is the estimator: approximate Bayesian computation finds the
 parameter values under which simulated observed records look like the real
 ones, and the simulated truth of those runs says what went undetected. The
-algorithms (:mod:`abm.calibration.abc`) are pure functions over any simulator
+algorithms (:mod:`abm.calibration.abc`: rejection with regression adjustment,
+ABC-SMC, the posterior predictive check) are pure functions over any simulator
 of summary statistics; :mod:`abm.calibration.simulator` plugs in the port
-model through the batch executors. Of the records being calibrated only the
+model through the batch executors, :mod:`abm.calibration.config` reads a
+calibration file, :mod:`abm.calibration.run` runs one into an output folder
+and :mod:`abm.calibration.self_check` checks the method's own intervals. Of the records being calibrated only the
 observed part is read (:mod:`abm.calibration.target`).
 """
 

@@ -38,7 +38,8 @@ import yaml
 ROOT = Path(__file__).resolve().parents[1]
 sys.path.insert(0, str(ROOT))
 
-from abm.calibration.abc import kept_count, rejection_from_table, weighted_quantile  # noqa: E402
+from abm.calibration import rejection_from_table, weighted_quantile  # noqa: E402
+from abm.calibration.abc.rejection import kept_count  # noqa: E402
 from abm.calibration.config import LATENT, load_calibration  # noqa: E402
 from abm.calibration.run import run_calibration  # noqa: E402
 from abm.calibration.target import load_target  # noqa: E402

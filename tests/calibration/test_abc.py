@@ -17,7 +17,7 @@ import numpy as np
 import pytest
 from scipy import stats
 
-from abm.calibration.abc import (
+from abm.calibration import (
     ABCError,
     Generation,
     Simulated,
@@ -29,11 +29,11 @@ from abm.calibration.abc import (
     predictive_check,
     regression_adjust,
     rejection_abc,
-    simulation_seeds,
     smc_weights,
-    weighted_covariance,
     weighted_quantile,
 )
+from abm.calibration.abc.seeds import simulation_seeds
+from abm.calibration.abc.weighted import weighted_covariance
 from abm.calibration.priors import Prior, PriorSet
 
 # Poisson-Gamma: Gamma(2, rate 0.5) prior, ten counts summing to 48 -> Gamma(50, rate 10.5).

@@ -14,7 +14,8 @@ import numpy as np
 import pytest
 from scipy import stats
 
-from abm.calibration.abc import ReferenceTable, mad_scale, pointwise, rejection_abc
+from abm.calibration import mad_scale, pointwise, rejection_abc
+from abm.calibration.abc.posterior import ReferenceTable
 from abm.calibration.priors import Prior, PriorSet
 from abm.calibration.self_check import SELF_CHECK_COLUMNS, cross_validate, reliability_warnings
 

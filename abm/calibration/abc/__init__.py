@@ -52,39 +52,3 @@ Randomness
     So a calibration replays exactly, and a store that keeps finished
     simulations can resume one.
 """
-
-from .distance import distances, mad_scale
-from .posterior import ABCPosterior, Generation, ReferenceTable
-from .predictive import PredictiveCheck, predictive_check
-from .rejection import kept_count, regression_adjust, rejection_abc, rejection_from_table
-from .seeds import simulation_seeds, stage_rng
-from .simulation import ABCError, BatchSimulator, Simulated, pointwise
-from .smc import Checkpoint, abc_smc, kernel_covariance, smc_weights
-from .weighted import effective_sample_size, weighted_covariance, weighted_quantile
-
-__all__ = [
-    "ABCError",
-    "ABCPosterior",
-    "BatchSimulator",
-    "Checkpoint",
-    "Generation",
-    "PredictiveCheck",
-    "ReferenceTable",
-    "Simulated",
-    "abc_smc",
-    "distances",
-    "effective_sample_size",
-    "kept_count",
-    "kernel_covariance",
-    "mad_scale",
-    "pointwise",
-    "predictive_check",
-    "regression_adjust",
-    "rejection_abc",
-    "rejection_from_table",
-    "simulation_seeds",
-    "smc_weights",
-    "stage_rng",
-    "weighted_covariance",
-    "weighted_quantile",
-]

@@ -52,7 +52,7 @@ def _file_kind(path: str) -> str:
 
 def cmd_check(args: argparse.Namespace) -> int:
     """Validate files of every kind the tool reads, by their ``kind:``; print a world's load report."""
-    from .analysis.optimisation import describe_optimisation
+    from .analysis.policy_search.optimisation_file import describe_optimisation
     from .calibration.config import describe_calibration
     from .experiment.batch import load_warnings
     from .experiment.design import describe_experiment, load_plan
@@ -340,7 +340,7 @@ def cmd_new(args: argparse.Namespace) -> int:
 def cmd_optimise(args: argparse.Namespace) -> int:
     """Search policies under constraints with common random numbers; print the best and the runner-ups."""
     _start_pool_server(args.executor, args.scheduler)
-    from .analysis.optimisation import optimise_command
+    from .analysis.policy_search.run import optimise_command
 
     try:
         optimise_command(

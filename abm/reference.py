@@ -49,7 +49,7 @@ FILE_KINDS: dict[str, FileKind] = {
         FileKind("experiment", "abm.experiment.schema:Experiment", "Experiment files",
                  "`kind: experiment`, or a top-level `world:` key without `kind:`."),
         FileKind("calibration", "abm.calibration.config:Calibration", "Calibration files", "`kind: calibration`."),
-        FileKind("optimisation", "abm.analysis.optimisation:Optimisation", "Optimisation files",
+        FileKind("optimisation", "abm.analysis.policy_search.optimisation_file:Optimisation", "Optimisation files",
                  "`kind: optimisation`."),
     )
 }

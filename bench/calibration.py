@@ -101,7 +101,7 @@ def run_bare(path: Path, workers: int) -> None:
     from concurrent.futures import ProcessPoolExecutor
 
     from abm.calibration import load_calibration
-    from abm.calibration.abc import simulation_seeds, stage_rng
+    from abm.calibration.abc.seeds import simulation_seeds, stage_rng
     from abm.experiment.fork_server import start_fork_server, start_method
 
     start_fork_server()

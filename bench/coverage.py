@@ -10,7 +10,7 @@ regression adjustment, whose reference table (the prior draws and their
 simulations) does not depend on the records calibrated to. So the script runs
 ``undertow calibrate``'s own code once per world and behaviour (timed: that is
 what one calibration costs), then fits every truth against that same reference
-table with the same function (:func:`abm.calibration.rejection.rejection_from_table`),
+table with the same function (:func:`abm.calibration.abc.rejection.rejection_from_table`),
 exactly as a fresh calibration with the same seed would. Truths are simulated
 with seeds of their own, never in the reference table.
 
@@ -38,9 +38,9 @@ import yaml
 ROOT = Path(__file__).resolve().parents[1]
 sys.path.insert(0, str(ROOT))
 
-from abm.calibration.abc import weighted_quantile  # noqa: E402
+from abm.calibration import rejection_from_table, weighted_quantile  # noqa: E402
+from abm.calibration.abc.rejection import kept_count  # noqa: E402
 from abm.calibration.config import LATENT, load_calibration  # noqa: E402
-from abm.calibration.rejection import kept_count, rejection_from_table  # noqa: E402
 from abm.calibration.run import run_calibration  # noqa: E402
 from abm.calibration.target import load_target  # noqa: E402
 from abm.experiment.compare import wilson_interval  # noqa: E402

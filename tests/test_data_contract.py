@@ -23,8 +23,7 @@ import pytest
 import yaml
 
 from abm.analysis.estimator_check import cached_estimates
-from abm.analysis.optimisation import load_optimisation, run_optimisation
-from abm.analysis.policy_search import FIGURE_SOURCES
+from abm.analysis.policy_search import FIGURE_SOURCES, load_optimisation, run_optimisation
 from abm.calibration import load_calibration, run_calibration
 from abm.experiment.batch import run_batch
 from abm.experiment.executors import SerialExecutor

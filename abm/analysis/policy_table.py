@@ -1,4 +1,4 @@
-"""Policy comparison helpers for briefings: hazard of where people board, delay limits, frontiers.
+"""Policy comparison helpers for briefings: hazard of where people board, delay limits.
 
 These are the small computations a policy briefing needs on top of a batch's
 summary table (:mod:`abm.experiment.store`):
@@ -10,7 +10,6 @@ summary table (:mod:`abm.experiment.store`):
 * :func:`attempt_shares`: attempt shares by boarding point and time band, the
   cells of a displacement heat map;
 * :class:`DelayLimits`: the delay a port can bear, against a baseline;
-* :func:`efficient_frontier`: policies not beaten on both delay and detections;
 * :func:`difference_in_differences`: how much a policy's paired effect changes
   between two assumptions (e.g. static vs adaptive behaviour), replication by
   replication under common random numbers.
@@ -125,17 +124,6 @@ class DelayLimits:
             f", and {words.missed} no more than {self.missed_departure_points:g} percentage point"
             f"{'' if self.missed_departure_points == 1 else 's'} above {baseline}'s"
         ))
-
-
-def efficient_frontier(cost: Sequence[float], benefit: Sequence[float]) -> np.ndarray:
-    """True for points no other point beats: none has cost <= and benefit >= with one of them strict."""
-    c, b = np.asarray(cost, float), np.asarray(benefit, float)
-    keep = np.isfinite(c) & np.isfinite(b)
-    out = keep.copy()
-    for i in np.flatnonzero(keep):
-        others = keep & (c <= c[i]) & (b >= b[i]) & ((c < c[i]) | (b > b[i]))
-        out[i] = not others.any()
-    return out
 
 
 def difference_in_differences(

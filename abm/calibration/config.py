@@ -51,7 +51,7 @@ from ..experiment.budget import Keys, PlanSize, busiest_day, refuse
 from ..experiment.project_file import read_project_file
 from ..world.fields import NumberOnly, Strict, unit
 from .priors import DISTRIBUTIONS, Prior, PriorError, PriorSet
-from .rejection import kept_count
+from .abc.rejection import kept_count
 from .self_check import MIN_TRIALS
 from .summaries import DEFAULT_GROUPS, SUMMARY_GROUPS, SummarySpec, observed_span
 from .target import load_target

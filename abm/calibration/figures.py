@@ -15,7 +15,7 @@ from matplotlib.backends.backend_agg import FigureCanvasAgg
 from matplotlib.figure import Figure
 
 from ..atomic import write_atomically
-from .abc import weighted_quantile
+from .abc.weighted import weighted_quantile
 
 if TYPE_CHECKING:
     from .run import CalibrationResult

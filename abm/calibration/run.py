@@ -20,11 +20,13 @@ from ..experiment.budget import SHOWN_VEHICLE_DAYS
 from ..experiment.executors import Executor, Placement, make_executor
 from ..atomic import write_atomically
 from ..records import write_json, write_parquet
-from .abc import ABCPosterior, PredictiveCheck, abc_smc, predictive_check
+from .abc.posterior import ABCPosterior
+from .abc.predictive import PredictiveCheck, predictive_check
+from .abc.smc import abc_smc
 from .config import LATENT, LATENT_MEANING, CalibrationPlan, describe_calibration, load_calibration
 from .figures import write_figures
 from .priors import PriorSet
-from .rejection import kept_count, posterior_of, rejection_abc
+from .abc.rejection import kept_count, posterior_of, rejection_abc
 from .self_check import SelfCheck, cross_validate, reliability_warnings
 from .simulator import CalibrationStore, ModelSimulator
 

@@ -33,9 +33,11 @@ import numpy as np
 import pandas as pd
 
 from ..experiment.compare import wilson_interval
-from .abc import ABCError, ABCPosterior, ReferenceTable, weighted_quantile
+from .abc.posterior import ABCPosterior, ReferenceTable
+from .abc.simulation import ABCError
+from .abc.weighted import weighted_quantile
 from .priors import PriorSet
-from .rejection import rejection_from_table
+from .abc.rejection import rejection_from_table
 
 SELF_CHECK_COLUMNS = (
     "quantity", "level", "trials", "covered", "coverage", "coverage_low", "coverage_high", "mean_width", "rmse",
@@ -127,7 +129,7 @@ def cross_validate(
     """Leave-one-out over ``trials`` rows of ``table`` drawn without replacement (see the module docstring).
 
     Each pseudo-observed row is calibrated on the other rows by
-    :func:`~abm.calibration.rejection.rejection_from_table` with ``keep`` and
+    :func:`~abm.calibration.abc.rejection.rejection_from_table` with ``keep`` and
     ``regression``; ``scale`` is the calibration's own distance scale.
     """
     if not MIN_TRIALS <= trials <= table.size:

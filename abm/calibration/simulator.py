@@ -1,6 +1,6 @@
 """The port model as an ABC simulator, and the calibration store.
 
-:class:`ModelSimulator` is a :class:`~abm.calibration.abc.BatchSimulator`:
+:class:`ModelSimulator` is a :class:`~abm.calibration.abc.simulation.BatchSimulator`:
 each parameter row becomes a candidate world (the priors' paths set), each
 simulation a :class:`~abm.experiment.worker.RunTask` for the batch executors,
 labelled ``<stage>/p<i>`` (``gen-<k>/p<i>``, ``predictive/p<i>``). A candidate
@@ -58,7 +58,8 @@ from ..experiment.worker import SUMMARY_FILE, RunTask, is_complete
 from ..observed import OBSERVED_DIR, conform
 from ..progress import progress
 from ..records import RecordBook, write_json, write_parquet
-from .abc import Generation, ReferenceTable, Simulated
+from .abc.posterior import Generation, ReferenceTable
+from .abc.simulation import Simulated
 from .config import LATENT, CalibrationPlan
 from .summaries import SummarySpec
 
@@ -264,7 +265,7 @@ class CalibrationStore:
             self.out / HEADER,
         )
 
-    # -- the checkpoint (abm.calibration.abc.Checkpoint) -------------------------------------
+    # -- the checkpoint (abm.calibration.abc.smc.Checkpoint) -------------------------------------
     def save(self, generation: Generation) -> None:
         """Write a finished generation's particles and settings."""
         folder = self.out / f"gen-{generation.index}"

@@ -17,7 +17,8 @@ from dataclasses import dataclass, replace
 
 import pandas as pd
 
-from ..analysis.policy_table import DelayLimits, difference_in_differences, efficient_frontier
+from ..analysis.frontier import efficient_frontier
+from ..analysis.policy_table import DelayLimits, difference_in_differences
 from ..experiment.compare import CONFIDENCE, compare_points, paired_difference
 from ..experiment.store import SUMMARY_TABLE
 from ..world.words import Words

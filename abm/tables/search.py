@@ -16,7 +16,7 @@ from .batch import SUMMARY_FIGURES
 
 SEARCH = "policy-search folder"
 
-# Figure -> (unit, meaning, record set): abm.analysis.policy_search.FIGURE_SOURCES.
+# Figure -> (unit, meaning, record set): abm.analysis.policy_search.problem.FIGURE_SOURCES.
 FIGURES: dict[str, tuple[str, str, str]] = {
     **{name: (unit, meaning, record_set) for name, (_, unit, meaning, record_set) in SUMMARY_FIGURES.items()},
     "check_hours": ("hours", "hours spent checking, from methods.parquet", "observed"),

@@ -26,15 +26,18 @@ import pandas as pd
 import pytest
 import yaml
 
-from abm.analysis.optimisation import OptimisationFileError, describe_optimisation, load_optimisation, run_optimisation
+from abm.analysis.frontier import frontier
 from abm.analysis.policy_search import (
     Allocation,
     Constraint,
+    OptimisationFileError,
     Problem,
     SearchSettings,
     Variable,
     candidate_id,
-    frontier,
+    describe_optimisation,
+    load_optimisation,
+    run_optimisation,
     search_policy,
 )
 from abm.cli import EXIT_INPUT, EXIT_OK, main

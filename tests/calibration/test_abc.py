@@ -17,7 +17,7 @@ import numpy as np
 import pytest
 from scipy import stats
 
-from abm.calibration.abc import (
+from abm.calibration import (
     ABCError,
     Generation,
     Simulated,
@@ -28,13 +28,13 @@ from abm.calibration.abc import (
     pointwise,
     predictive_check,
     regression_adjust,
-    simulation_seeds,
+    rejection_abc,
     smc_weights,
-    weighted_covariance,
     weighted_quantile,
 )
+from abm.calibration.abc.seeds import simulation_seeds
+from abm.calibration.abc.weighted import weighted_covariance
 from abm.calibration.priors import Prior, PriorSet
-from abm.calibration.rejection import rejection_abc
 
 # Poisson-Gamma: Gamma(2, rate 0.5) prior, ten counts summing to 48 -> Gamma(50, rate 10.5).
 A, B = 2.0, 0.5

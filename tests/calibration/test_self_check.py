@@ -14,9 +14,9 @@ import numpy as np
 import pytest
 from scipy import stats
 
-from abm.calibration.abc import ReferenceTable, mad_scale, pointwise
+from abm.calibration import mad_scale, pointwise, rejection_abc
+from abm.calibration.abc.posterior import ReferenceTable
 from abm.calibration.priors import Prior, PriorSet
-from abm.calibration.rejection import rejection_abc
 from abm.calibration.self_check import SELF_CHECK_COLUMNS, cross_validate, reliability_warnings
 
 A, B, N_COUNTS = 2.0, 0.5, 10

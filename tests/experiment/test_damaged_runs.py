@@ -83,8 +83,9 @@ def test_a_damaged_batch_record_is_named_not_an_internal_error(batch: tuple[Path
 
 
 def test_damaged_calibration_and_search_records_are_named(tmp_path: Path) -> None:
-    from abm.analysis.optimisation import HEADER as SEARCH_HEADER
-    from abm.analysis.optimisation import _open_store, load_optimisation
+    from abm.analysis.policy_search.run import HEADER as SEARCH_HEADER
+    from abm.analysis.policy_search import load_optimisation
+    from abm.analysis.policy_search.run import _open_store
     from abm.calibration.config import load_calibration
     from abm.calibration.simulator import HEADER as CALIBRATION_HEADER
     from abm.calibration.simulator import CalibrationStore

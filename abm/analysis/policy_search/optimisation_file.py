@@ -1,184 +1,29 @@
-"""An optimisation file run on the port model: the file's schema, its validation, the model as evaluator, the store.
-
-:func:`load_optimisation` reads and checks a ``kind: optimisation`` file (every
-candidate's world is validated before any run), :class:`ModelEvaluator` turns
-candidates into changed worlds and replications into runs through a batch
-executor, and :func:`run_optimisation` runs :func:`abm.analysis.policy_search.search_policy`
-into an output folder that ``--resume`` takes up. The method itself is described
-in :mod:`abm.analysis.policy_search`.
-"""
+"""An optimisation file (``kind: optimisation``): its schema, its validation, and the plan it gives."""
 
 from __future__ import annotations
 
 import difflib
 import hashlib
 import json
-import math
-import sys
-from collections.abc import Callable, Mapping, Sequence
+from collections.abc import Callable, Mapping
 from dataclasses import dataclass, field
 from pathlib import Path
 from typing import Annotated, Any, Literal
 
-import numpy as np
-import pandas as pd
 from pydantic import Field, field_validator
 
-from ..errors import InputError, refuse_unwritable
-from ..experiment.budget import SHOWN_VEHICLE_DAYS, Keys, PlanSize, busiest_day, refuse
-from ..experiment.project_file import read_project_file
-from ..experiment.executors import Executor, Placement
-from ..experiment.journal import Journal
-from ..experiment.lock import release
-from ..experiment.out_folder import open_output
-from ..experiment.single import package_versions
-from ..experiment.worker import SUMMARY_FILE, RunTask, is_complete
-from ..atomic import write_atomically
-from ..records import METHODS_FILE, RecordBook, write_json, write_parquet
-from ..world import WorldFileError, file_hash, parse_world, read_yaml_mapping
-from ..world.paths import PathProblem, apply_changes, set_path
-from ..world.fields import NumberOnly, Strict, unit
-from ..world.words import words_from_data
-from .policy_search import (
-    FIGURE_SOURCES, FIGURES, Allocation, Constraint, PolicySearchError, PolicySearchResult, Problem, SearchSettings,
-    Variable, candidate_id, search_policy,
-)
+from ...experiment.budget import Keys, PlanSize, busiest_day, refuse
+from ...experiment.project_file import read_project_file
+from ...world import WorldFileError, file_hash, parse_world, read_yaml_mapping
+from ...world.paths import PathProblem, set_path
+from ...world.fields import NumberOnly, Strict, unit
+from .problem import FIGURE_SOURCES, FIGURES, Allocation, Constraint, Problem, SearchSettings, Variable
 
-SIMULATIONS_TABLE = "search/simulations"
 CURRENT = "current"  # the name given to the world as it stands when the file names no such policy
+
 
 class OptimisationFileError(WorldFileError):
     """An optimisation file that cannot be used, with the key path at fault. ``str()`` is one line."""
-
-
-# -- the port model as an evaluator --------------------------------------------------------------
-
-
-class ModelEvaluator:
-    """Candidates as changed worlds, replications as runs through a batch executor (entered by the caller).
-
-    A run is lean by default: its worker sends back the run's :data:`FIGURES` and the journal in ``OUT`` keeps
-    them (:mod:`abm.experiment.journal`); with ``keep_runs`` it also leaves its run directory in
-    ``OUT/runs/<candidate id>/<seed>``. A run found in the journal, or kept complete, is not run again. A
-    candidate whose changed world is invalid gives NaN figures (the search counts it infeasible).
-    """
-
-    figures = FIGURES
-
-    def __init__(
-        self,
-        world: Mapping[str, Any],
-        world_sha256: str,
-        days: int,
-        warmup: int,
-        out: Path,
-        executor: Executor,
-        command: Sequence[str] = (),
-        keep_runs: bool = False,
-    ) -> None:
-        self.world = dict(world)
-        self.world_sha256 = world_sha256
-        self.days, self.warmup = days, warmup
-        self.out = Path(out)
-        self.executor = executor
-        self.command = tuple(command)
-        self.keep_runs = keep_runs
-        self.journal = Journal(self.out, SIMULATIONS_TABLE, "run")
-        self.ran = 0
-        self.reused = 0
-        self.invalid: dict[str, str] = {}  # candidate id -> why its world is invalid
-
-    def run_dir(self, cid: str, seed: int) -> Path:
-        return self.out / "runs" / cid / str(seed)
-
-    def __call__(self, candidates: Sequence[Mapping[str, Any]], seeds: Sequence[int]) -> np.ndarray:
-        out = np.full((len(candidates), len(seeds), len(self.figures)), np.nan)
-        held = self.journal.rows()
-        tasks, where = [], {}
-        for k, changes in enumerate(candidates):
-            cid = candidate_id(changes)
-            try:
-                world = apply_changes(self.world, dict(changes))
-                parse_world(world, f"<candidate {cid}>")
-            except (WorldFileError, PathProblem) as exc:
-                self.invalid[cid] = str(exc)
-                continue
-            write_json({"candidate": cid, "set": dict(changes)}, self.out / "candidates" / f"{cid}.json")
-            for r, seed in enumerate(seeds):
-                key = f"{cid}/{seed}"
-                where[key] = (k, r)
-                run_dir = self.run_dir(cid, seed)
-                if key in held:
-                    self.reused += 1
-                    continue
-                if self.keep_runs and is_complete(run_dir):
-                    self.journal.add(self._row(key, cid, seed, run_figures(
-                        json.loads((run_dir / SUMMARY_FILE).read_text(encoding="utf-8")),
-                        pd.read_parquet(run_dir / METHODS_FILE, columns=["day", "check_minutes"]), self.warmup)))
-                    self.reused += 1
-                    continue
-                if self.keep_runs:
-                    run_dir.parent.mkdir(parents=True, exist_ok=True)
-                tasks.append(
-                    RunTask(
-                        run_id=key,
-                        point=k,
-                        replication=r,
-                        seed=int(seed),
-                        days=self.days,
-                        warmup=self.warmup,
-                        world=world,
-                        world_sha256=self.world_sha256,
-                        out=str(run_dir.resolve()) if self.keep_runs else "",
-                        command=self.command,
-                        values={path: value for path, value in changes.items() if isinstance(value, (int, float, str))},
-                        reduce=SearchFigures(self.warmup),
-                    )
-                )
-        for answer in self.executor.imap(tasks):
-            if answer["ok"]:
-                self.ran += 1
-                cid, seed = answer["run_id"].rsplit("/", 1)
-                self.journal.add(self._row(answer["run_id"], cid, int(seed), answer["reduced"]))
-            else:
-                print(f"policy search: run {answer['run_id']} failed: {answer['error']}", file=sys.stderr)
-        self.journal.end_round()
-        rows = self.journal.rows()
-        for key, (k, r) in where.items():
-            if key in rows:
-                out[k, r] = [float(rows[key][figure]) for figure in self.figures]
-        return out
-
-    def _row(self, key: str, cid: str, seed: int, figures: Sequence[float]) -> dict[str, Any]:
-        return {"run": key, "candidate": cid, "seed": int(seed), **dict(zip(self.figures, map(float, figures),
-                                                                             strict=True))}
-
-
-@dataclass(frozen=True)
-class SearchFigures:
-    """What a worker computes from a candidate's run in memory: the run's :data:`FIGURES`."""
-
-    warmup: int
-
-    def __call__(self, records: RecordBook, summary: Mapping[str, Any]) -> list[float]:
-        return run_figures(summary, records.methods_table(), self.warmup)
-
-
-def run_figures(summary: Mapping[str, Any], methods: pd.DataFrame, warmup: int) -> list[float]:
-    """A run's :data:`FIGURES` from its summary and methods table: the summary's numbers, check hours after the
-    warm-up and encounters."""
-    derived = {
-        "check_hours": float(methods.loc[methods["day"] >= warmup, "check_minutes"].sum()) / 60.0,
-        "encounters": float(summary["detections"]) + float(summary["interdictions"]),
-    }
-    values = []
-    for figure in FIGURES:
-        value = derived[figure] if figure in derived else summary.get(figure)
-        values.append(float(value) if isinstance(value, (int, float)) and not isinstance(value, bool) else math.nan)
-    return values
-
-
-# -- optimisation files -----------------------------------------------------------------------
 
 
 Number = Annotated[float, NumberOnly]
@@ -463,95 +308,6 @@ def _allocation(
     return allocation
 
 
-# -- running an optimisation file -------------------------------------------------------------
-
-HEADER = "optimisation.json"
-
-
-def _open_store(out: Path, plan: OptimisationPlan, command: Sequence[str], resume: bool) -> Path:
-    """Start a search in OUT or take one up; returns the folder's lock, which the caller releases."""
-
-    def changed(held: dict[str, Any]) -> None:
-        raise PolicySearchError(
-            f"{out}: holds a different policy search (the file or its world changed); choose another --out "
-            "(nothing was overwritten)"
-        )
-
-    def write_record() -> None:
-        write_json(
-            {
-                "optimisation": plan.spec.model_dump(mode="json"),
-                "optimisation_file": str(plan.source),
-                "optimisation_sha256": plan.digest(),
-                "world_file": str(plan.world_path),
-                "world_sha256": plan.world_sha256,
-                "packages": package_versions(),
-                "command": list(command),
-            },
-            out / HEADER,
-        )
-
-    lock, _ = open_output(out, HEADER, "policy search", resume, PolicySearchError,
-                          ("optimisation_sha256", plan.digest()), write_record, changed)
-    return lock
-
-
-def run_optimisation(
-    plan: OptimisationPlan,
-    out: str | Path,
-    executor: Executor,
-    resume: bool = False,
-    command: Sequence[str] = (),
-    figure: bool = True,
-    progress: Callable[[int], None] | None = None,
-    keep_runs: bool = False,
-) -> PolicySearchResult:
-    """Search a validated plan with an executor the caller has entered; write the tables, summary and figure.
-
-    ``keep_runs`` keeps every candidate run's directory; by default only its figures are kept.
-    """
-    out = Path(out)
-    lock = _open_store(out, plan, command, resume)
-    try:  # the folder is locked from open to the end: one writer at a time
-        return _search(plan, out, executor, command, figure, progress, keep_runs)
-    finally:
-        release(lock)
-
-
-def _search(
-    plan: OptimisationPlan, out: Path, executor: Executor, command: Sequence[str], figure: bool,
-    progress: Callable[[int], None] | None, keep_runs: bool,
-) -> PolicySearchResult:
-    """The body of :func:`run_optimisation`, in an opened folder."""
-    evaluate = ModelEvaluator(
-        plan.world_data, plan.world_sha256, plan.spec.days, plan.spec.warmup_days, out, executor, command, keep_runs
-    )
-    result = search_policy(
-        evaluate, plan.problem, plan.settings, seed=plan.spec.seed, policies=plan.policies, name=plan.spec.name,
-        progress=progress,
-    )
-    result.search.update({"runs": evaluate.ran, "reused": evaluate.reused, "invalid": dict(evaluate.invalid)})
-    write_parquet(_plain(result.selection), out / "selection.parquet", "search/selection")
-    write_parquet(_plain(result.history), out / "history.parquet", "search/history")
-    write_parquet(_plain(result.frontier), out / "frontier.parquet", "search/frontier")
-    write_atomically(out / "summary.txt", lambda tmp: tmp.write_text(result.summary() + "\n", encoding="utf-8"))
-    if figure:
-        fig = result.frontier_figure(words_from_data(plan.world_data))
-        write_atomically(out / "frontier.png", lambda tmp: fig.savefig(tmp, dpi=110, format="png"))
-    return result
-
-
-def _plain(frame: pd.DataFrame) -> pd.DataFrame:
-    """Columns of mixed values (a policy's settings) as JSON text, so the table writes to Parquet."""
-    out = frame.copy()
-    for column in out.columns:
-        if out[column].dtype == object:
-            kinds = {type(v) for v in out[column] if v is not None and not (isinstance(v, float) and math.isnan(v))}
-            if len(kinds) > 1 or (kinds and not kinds <= {str}):
-                out[column] = [json.dumps(v, default=str) for v in out[column]]
-    return out
-
-
 def describe_optimisation(path: str | Path, allow_large: bool = False) -> str:
     """Validate an optimisation file and say what it would run, in one line."""
     plan = load_optimisation(path, allow_large)
@@ -565,28 +321,3 @@ def describe_optimisation(path: str | Path, allow_large: bool = False) -> str:
         f"replications per candidate, selection {plan.settings.top} + named x {plan.settings.selection_replications} "
         f"fresh seeds; runs of {spec.warmup_days}+{spec.days} days; world {plan.world_path})"
     )
-
-
-def optimise_command(
-    path: str | Path, out: str | Path | None, place: Placement, resume: bool, check: bool, command: Sequence[str],
-    allow_large: bool = False, keep_runs: bool = False,
-) -> None:
-    """``undertow optimise``: validate (``check``) or search where ``place`` says, and print the summary."""
-    if check:
-        print(describe_optimisation(path, allow_large))
-        return
-    if out is None:
-        raise InputError("--out: a policy search needs an output folder (or pass --check to only validate the file)")
-    place.name()  # contradictory options are refused before anything is read
-    refuse_unwritable(out)
-    plan = load_optimisation(path, allow_large, Path(out))
-    if plan.size is not None and plan.size.vehicle_days > SHOWN_VEHICLE_DAYS:
-        print(plan.size.describe(), file=sys.stderr)
-    from ..progress import progress
-
-    with place.make() as runner, progress(
-        plan.settings.maxiter, "generations", "policy search"
-    ) as bar:
-        result = run_optimisation(plan, out, runner, resume, command, progress=bar.update, keep_runs=keep_runs)
-    print(result.summary())
-    print(f"\nselection.parquet, history.parquet, frontier.parquet, summary.txt and frontier.png in {out}", file=sys.stderr)

@@ -1,10 +1,17 @@
 """Rejection ABC, with the local-linear regression adjustment of Beaumont, Zhang & Balding (2002).
 
 :func:`rejection_abc` draws from the prior, simulates every draw and hands the
-resulting :class:`~abm.calibration.abc.ReferenceTable` to
+resulting :class:`~abm.calibration.abc.posterior.ReferenceTable` to
 :func:`rejection_from_table`, which keeps the nearest share and adjusts it.
 The self-check (:mod:`abm.calibration.self_check`) calls the same function on
 the same table with one row left out, so what it measures is this method.
+
+Draw from the prior, simulate, keep the share ``accept`` of draws closest to
+the observed summaries; the tolerance h is the first rejected distance.
+Epanechnikov weights K = 1 - (d/h)^2 and a weighted least-squares fit
+phi_i = a + (s_i - s_obs)'b on the kept draws (phi: each parameter on its
+prior's transform scale) give adjusted values phi_i* = phi_i - (s_i - s_obs)'b.
+Latent quantities are adjusted with the same regression.
 """
 
 from __future__ import annotations
@@ -14,25 +21,51 @@ from collections.abc import Sequence
 
 import numpy as np
 
-from .abc import (
-    REJECTION,
-    REJECTION_PLAIN,
-    ABCError,
-    ABCPosterior,
-    BatchSimulator,
-    Generation,
-    ReferenceTable,
-    column_names,
-    distances,
-    epanechnikov,
-    latent_scale,
-    mad_scale,
-    observed_vector,
-    regression_adjust,
-    simulate_stage,
-    stage_rng,
-)
-from .priors import PriorSet
+from ..priors import PriorSet
+from .distance import distances, mad_scale
+from .posterior import ABCPosterior, Generation, ReferenceTable
+from .seeds import stage_rng
+from .simulation import ABCError, BatchSimulator, column_names, observed_vector, simulate_stage
+
+REJECTION = "rejection with local-linear regression adjustment (Beaumont, Zhang & Balding 2002)"
+REJECTION_PLAIN = "rejection (nearest share of prior draws)"
+
+
+def epanechnikov(d: np.ndarray, h: float) -> np.ndarray:
+    """1 - (d/h)^2 inside the tolerance h, 0 outside; every d is 1 when h is 0 (exact matches only)."""
+    if h <= 0:
+        return (np.asarray(d) <= 0).astype(float)
+    return np.clip(1.0 - (np.asarray(d) / h) ** 2, 0.0, None)
+
+
+def regression_adjust(
+    phi: np.ndarray, summaries: np.ndarray, observed: np.ndarray, scale: np.ndarray, weights: np.ndarray
+) -> tuple[np.ndarray, np.ndarray]:
+    """Local-linear adjustment of each column of ``phi``: phi - (s - s_obs)'b, b by weighted least squares.
+
+    Summaries enter scaled (the adjustment itself does not depend on the
+    scaling; it only keeps the fit well conditioned). Returns the adjusted
+    values and the coefficients ``b`` (one column per column of ``phi``).
+    """
+    x = (np.asarray(summaries, dtype=float) - observed) / scale
+    keep = weights > 0
+    if keep.sum() <= x.shape[1] + 1:
+        raise ABCError(
+            f"the regression adjustment needs more weighted simulations ({int(keep.sum())}) than summaries + 1 "
+            f"({x.shape[1] + 1}); simulate more, accept a larger share, or use fewer summaries"
+        )
+    design = np.column_stack([np.ones(int(keep.sum())), x[keep]])
+    root = np.sqrt(weights[keep])[:, None]
+    # lstsq gives the minimum-norm fit when a summary does not vary among the kept draws.
+    coef, *_ = np.linalg.lstsq(design * root, phi[keep] * root, rcond=None)
+    beta = coef[1:]
+    return phi - x @ beta, beta
+
+
+def latent_scale(latent: np.ndarray) -> tuple[np.ndarray, np.ndarray]:
+    """Latent columns that never go below 0 are adjusted on log(1 + y), so adjusted counts stay >= 0."""
+    nonnegative = (latent >= 0).all(axis=0) if latent.size else np.zeros(latent.shape[1], dtype=bool)
+    return np.where(nonnegative, np.log1p(np.maximum(latent, 0)), latent), nonnegative
 
 
 def kept_count(accept: float, draws: int) -> int:

@@ -22,7 +22,7 @@ import pyarrow.parquet as pq
 import pytest
 import yaml
 
-from abm.analysis.estimator_check import cached_estimates
+from abm.analysis.estimator_check.cache import cached_estimates
 from abm.analysis.optimisation import load_optimisation, run_optimisation
 from abm.analysis.policy_search import FIGURE_SOURCES
 from abm.calibration import load_calibration, run_calibration

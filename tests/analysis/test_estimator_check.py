@@ -50,12 +50,12 @@ from abm.analysis.estimator_check import (
     summarise_check,
     t_interval,
     truth_for_run,
-    wilson_interval,
 )
 from abm.estimate.expansion import expansion_name
 from abm.estimate.frequency import CHAO
 from abm.estimate.report import run_all
 from abm.estimate.results import DEFAULT_LEVEL
+from abm.experiment.compare import wilson_interval
 from abm.experiment.single import run_to_directory
 from abm.world import load_world, parse_world, read_yaml_mapping
 from abm.world.paths import set_path

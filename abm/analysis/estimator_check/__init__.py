@@ -50,7 +50,6 @@ from .summary import (
     clopper_pearson_interval,
     relative_bias_interval,
     summarise_check,
-    t_interval,
 )
 from .truth import (
     BOARDED,
@@ -116,7 +115,6 @@ __all__ = [
     "slug_of",
     "summarise_check",
     "summarised_days",
-    "t_interval",
     "truth_for_run",
     "truth_value",
 ]

@@ -27,7 +27,7 @@ import numpy as np
 import pandas as pd
 from scipy import special  # quantile functions without scipy.stats, whose import costs each worker about 0.45 s
 
-from ...experiment.compare import wilson_interval
+from ...experiment.compare import mean_interval, t_half_width, wilson_interval
 from .per_run import PER_RUN_COLUMNS
 from .truth import EstimatorCheckError
 
@@ -49,16 +49,6 @@ def clopper_pearson_interval(successes: int, n: int, confidence: float = 0.95) -
     return low, high
 
 
-def t_interval(values: Sequence[float], confidence: float = 0.95) -> tuple[float, float, float]:
-    """(mean, low, high): Student-t interval of a mean over runs, n − 1 df; NaN ends for n < 2."""
-    x = np.asarray(values, dtype=float)
-    mean = float(x.mean()) if x.size else math.nan
-    if x.size < 2:
-        return mean, math.nan, math.nan
-    half = float(special.stdtrit(x.size - 1, 0.5 + confidence / 2)) * float(x.std(ddof=1)) / math.sqrt(x.size)
-    return mean, mean - half, mean + half
-
-
 def relative_bias_interval(
     errors: Sequence[float], truths: Sequence[float], confidence: float = 0.95
 ) -> tuple[float, float, float]:
@@ -73,7 +63,7 @@ def relative_bias_interval(
     if e.size < 2:
         return r, math.nan, math.nan
     u = (e - r * t) / t.mean()
-    half = float(special.stdtrit(e.size - 1, 0.5 + confidence / 2)) * float(u.std(ddof=1)) / math.sqrt(e.size)
+    half = t_half_width(u, confidence)
     return r, r - half, r + half
 
 
@@ -107,7 +97,7 @@ def summarise_check(
         for keys, group in per_run.groupby(["slug", *by], sort=True, dropna=False):
             keys = keys if isinstance(keys, tuple) else (keys,)
             errors, truths = group["error"].to_numpy(float), group["truth"].to_numpy(float)
-            bias, bias_low, bias_high = t_interval(errors, confidence)
+            bias, bias_low, bias_high = mean_interval(errors, confidence, finite_only=False)
             rel, rel_low, rel_high = relative_bias_interval(errors, truths, confidence)
             n, hits = len(group), int(group["covered"].sum())
             cov_low, cov_high = interval(hits, n, confidence)

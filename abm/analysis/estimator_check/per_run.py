@@ -14,6 +14,7 @@ from ...estimate.expansion import EXPANSION
 from ...estimate.results import DEFAULT_LEVEL, EstimateResult
 from ...estimate.windows import Window, check_window
 from ...records import read_truth
+from ...world.schema import World
 from .cache import cached_results
 from .estimates import SensitivityChoice, _sensitivities, run_estimators
 from .runs import read_world, summarised_days
@@ -156,48 +157,66 @@ def check_runs(
         world = read_world(path)
         labels = {"behaviour": world.adversary.behaviour, **labels}
         factors += [k for k in labels if k not in factors]
-        route = Route.from_world(world)
-        try:
-            attempts = read_truth(path)["attempts"]
-        except (OSError, ValueError) as exc:
-            raise EstimatorCheckError(f"{path}: no truth records to compare with ({exc})") from None
-        if _cached_setting(path, window, level, sensitivities):
-            results, failures = cached_results(path)  # what the batch's workers already computed
-        else:
-            results, failures = run_estimators(path, window, level, _sensitivities(sensitivities, world))
-        for name, reason in failures:
-            skipped.append({**labels, "run": str(path), "slug": method_slug(name) or slug_of(name), "method": name,
-                            "why": f"cannot run: {reason}"})
-        for result in results:
-            compared, left_out = _comparisons(result, route)
-            for slug, why in left_out:
-                skipped.append({**labels, "run": str(path), "slug": slug, "method": result.method, "why": why})
-            for row in compared:
-                exact = not row["note"]
-                if not exact and not include_inexact:
-                    skipped.append({**labels, "run": str(path), "slug": row["slug"], "method": row["method"],
-                                    "why": f"truth not exact: {row['note']}"})
-                    continue
-                truth = truth_value(row["quantity"], attempts, route, window)
-                error = row["estimate"] - truth
-                rows.append(
-                    {
-                        **labels,
-                        **row,
-                        "run": str(path),
-                        "truth": truth,
-                        "error": error,
-                        "ratio": row["estimate"] / truth if truth else math.nan,
-                        "covered": bool(row["ci_low"] <= truth <= row["ci_high"]),
-                        "exact": exact,
-                    }
-                )
+        compared, left_out = _check_one_run(path, world, labels, window, level, sensitivities, include_inexact)
+        rows += compared
+        skipped += left_out
     per_run = pd.DataFrame(rows, columns=[*factors, *PER_RUN_COLUMNS])
     skipped_frame = pd.DataFrame(skipped, columns=[*factors, *SKIPPED_COLUMNS])
     per_run = per_run.astype({"truth": "int64", "covered": "bool", "exact": "bool"}) if len(per_run) else per_run
     for frame in (per_run, skipped_frame):
         frame.attrs["factors"] = list(factors)
     return per_run, skipped_frame
+
+
+def _check_one_run(
+    path: Path,
+    world: World,
+    labels: Mapping[str, Any],
+    window: Window,
+    level: float,
+    sensitivities: SensitivityChoice,
+    include_inexact: bool,
+) -> tuple[list[dict[str, Any]], list[dict[str, Any]]]:
+    """One run's (comparison rows, skipped rows), each led by its labels and run; see :func:`check_runs`."""
+    route = Route.from_world(world)
+    try:
+        attempts = read_truth(path)["attempts"]
+    except (OSError, ValueError) as exc:
+        raise EstimatorCheckError(f"{path}: no truth records to compare with ({exc})") from None
+    if _cached_setting(path, window, level, sensitivities):
+        results, failures = cached_results(path)  # what the batch's workers already computed
+    else:
+        results, failures = run_estimators(path, window, level, _sensitivities(sensitivities, world))
+    rows: list[dict[str, Any]] = []
+    skipped: list[dict[str, Any]] = []
+    for name, reason in failures:
+        skipped.append({**labels, "run": str(path), "slug": method_slug(name) or slug_of(name), "method": name,
+                        "why": f"cannot run: {reason}"})
+    for result in results:
+        compared, left_out = _comparisons(result, route)
+        for slug, why in left_out:
+            skipped.append({**labels, "run": str(path), "slug": slug, "method": result.method, "why": why})
+        for row in compared:
+            exact = not row["note"]
+            if not exact and not include_inexact:
+                skipped.append({**labels, "run": str(path), "slug": row["slug"], "method": row["method"],
+                                "why": f"truth not exact: {row['note']}"})
+                continue
+            truth = truth_value(row["quantity"], attempts, route, window)
+            error = row["estimate"] - truth
+            rows.append(
+                {
+                    **labels,
+                    **row,
+                    "run": str(path),
+                    "truth": truth,
+                    "error": error,
+                    "ratio": row["estimate"] / truth if truth else math.nan,
+                    "covered": bool(row["ci_low"] <= truth <= row["ci_high"]),
+                    "exact": exact,
+                }
+            )
+    return rows, skipped
 
 
 def _cached_setting(path: Path, window: Window, level: float, sensitivities: SensitivityChoice) -> bool:

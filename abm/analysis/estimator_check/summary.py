@@ -20,8 +20,8 @@ truth <= hi). :func:`summarise_check` aggregates per estimator x factor levels:
 from __future__ import annotations
 
 import math
-from collections.abc import Sequence
-from typing import Literal
+from collections.abc import Callable, Sequence
+from typing import Any, Literal
 
 import numpy as np
 import pandas as pd
@@ -67,6 +67,43 @@ def relative_bias_interval(
     return r, r - half, r + half
 
 
+def _group_figures(
+    group: pd.DataFrame, confidence: float, interval: Callable[[int, int, float], tuple[float, float]]
+) -> dict[str, Any]:
+    """The figures of one estimator at one set of factor levels: every summary column but the keys and settings."""
+    errors, truths = group["error"].to_numpy(float), group["truth"].to_numpy(float)
+    bias, bias_low, bias_high = mean_interval(errors, confidence, finite_only=False)
+    rel, rel_low, rel_high = relative_bias_interval(errors, truths, confidence)
+    n, hits = len(group), int(group["covered"].sum())
+    cov_low, cov_high = interval(hits, n, confidence)
+    mean_truth = float(truths.mean())
+    rmse = float(np.sqrt(np.mean(errors**2)))
+    ratios = group["ratio"].to_numpy(float) if "ratio" in group else np.full(n, math.nan)
+    first = group.iloc[0]
+    return {
+        "method": first.get("method"),
+        "label": first.get("label"),
+        "quantity": first.get("quantity"),
+        "n": n,
+        "mean_estimate": float(group["estimate"].mean()),
+        "mean_truth": mean_truth,
+        "bias": bias,
+        "bias_low": bias_low,
+        "bias_high": bias_high,
+        "relative_bias": rel,
+        "relative_bias_low": rel_low,
+        "relative_bias_high": rel_high,
+        "rmse": rmse,
+        "relative_rmse": rmse / mean_truth if mean_truth else math.nan,
+        "mean_ratio": float(np.mean(ratios)) if np.isfinite(ratios).all() else math.nan,
+        "covered": hits,
+        "coverage": hits / n,
+        "coverage_low": cov_low,
+        "coverage_high": cov_high,
+        "level": float(group["level"].iloc[0]) if "level" in group else math.nan,
+    }
+
+
 def summarise_check(
     per_run: pd.DataFrame,
     by: Sequence[str] | None = None,
@@ -96,38 +133,10 @@ def summarise_check(
     if len(per_run):
         for keys, group in per_run.groupby(["slug", *by], sort=True, dropna=False):
             keys = keys if isinstance(keys, tuple) else (keys,)
-            errors, truths = group["error"].to_numpy(float), group["truth"].to_numpy(float)
-            bias, bias_low, bias_high = mean_interval(errors, confidence, finite_only=False)
-            rel, rel_low, rel_high = relative_bias_interval(errors, truths, confidence)
-            n, hits = len(group), int(group["covered"].sum())
-            cov_low, cov_high = interval(hits, n, confidence)
-            mean_truth = float(truths.mean())
-            rmse = float(np.sqrt(np.mean(errors**2)))
-            ratios = group["ratio"].to_numpy(float) if "ratio" in group else np.full(n, math.nan)
-            first = group.iloc[0]
             rows.append(
                 {
                     **dict(zip(["slug", *by], keys, strict=True)),
-                    "method": first.get("method"),
-                    "label": first.get("label"),
-                    "quantity": first.get("quantity"),
-                    "n": n,
-                    "mean_estimate": float(group["estimate"].mean()),
-                    "mean_truth": mean_truth,
-                    "bias": bias,
-                    "bias_low": bias_low,
-                    "bias_high": bias_high,
-                    "relative_bias": rel,
-                    "relative_bias_low": rel_low,
-                    "relative_bias_high": rel_high,
-                    "rmse": rmse,
-                    "relative_rmse": rmse / mean_truth if mean_truth else math.nan,
-                    "mean_ratio": float(np.mean(ratios)) if np.isfinite(ratios).all() else math.nan,
-                    "covered": hits,
-                    "coverage": hits / n,
-                    "coverage_low": cov_low,
-                    "coverage_high": cov_high,
-                    "level": float(group["level"].iloc[0]) if "level" in group else math.nan,
+                    **_group_figures(group, confidence, interval),
                     "confidence": confidence,
                     "coverage_interval": coverage_interval,
                 }

@@ -1,6 +1,6 @@
 """How wrong do the estimates go when people adapt? Every estimator against simulated truth.
 
-The estimators in :mod:`abm.estimate` read observed records only. This module
+The estimators in :mod:`abm.estimate` read observed records only. This package
 is the one place that puts their results beside the truth records of the same
 run: it reads ``truth/`` (through :func:`abm.records.read_truth`) and the
 run's ``world.json`` (for the route: which boarding points lie before which

@@ -147,7 +147,7 @@ def _run_world(
     print_summary(summary, f"{world.name}: {days} days{after}, seed {seed} -> {out}", words_for(world))
     # the comparison's before window starts after the warm-up, as the summary does
     if any(warmup < iv.day < warmup + days for iv in world.interventions):
-        from .analysis.displacement import write_displacement
+        from .analysis.displacement.comparison import write_displacement
 
         result = write_displacement(out)
         print(f"\nBefore and after the intervention on day {world.interventions[0].day} ({world.interventions[0].name}):")
@@ -168,7 +168,7 @@ def cmd_run(args: argparse.Namespace) -> int:
 
 
 # Where the summary extension of batches and the demo (cached_estimates) lives, for the pool's server to preload.
-BATCH_EXTENSION_MODULES = ("abm.analysis.estimator_check",)
+BATCH_EXTENSION_MODULES = ("abm.analysis.estimator_check.cache",)
 
 
 def _interrupted(command: str, out: str | Path) -> int:
@@ -241,7 +241,7 @@ def _brief_stage(stage: str) -> None:
 
 def cmd_compare(args: argparse.Namespace) -> int:
     """Compare a baseline run with a policy run: where attempts moved and whether the effect is real."""
-    from .analysis.displacement import displacement_between_runs
+    from .analysis.displacement.comparison import displacement_between_runs
 
     print(displacement_between_runs(args.run_a, args.run_b, warmup=args.warmup).summary())
     return EXIT_OK
@@ -287,7 +287,7 @@ def _placement(args: argparse.Namespace) -> Placement:
 def cmd_batch(args: argparse.Namespace) -> int:
     """Run every run of an experiment into a batch folder; print the per-design-point comparison."""
     _start_pool_server(args.executor, args.scheduler, BATCH_EXTENSION_MODULES)
-    from .analysis.estimator_check import cached_estimates
+    from .analysis.estimator_check.cache import cached_estimates
     from .experiment.batch import batch_command
 
     command = ["undertow", *args.argv]

@@ -35,7 +35,7 @@ def run_demo(out: Path, resume: bool, workers: int | None, command: Sequence[str
 def _stages(out: Path, resume: bool, workers: int | None, command: list[str], report: Callable[[str], None],
             experiment: Path, calibration_file: Path) -> int:
     """Calibrate, compare under the posterior, brief (printing each stage as it starts)."""
-    from .analysis.estimator_check import cached_estimates
+    from .analysis.estimator_check.cache import cached_estimates
     from .calibration.config import load_calibration
     from .calibration.run import run_calibration
     from .experiment.batch import print_warning, run_batch

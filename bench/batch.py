@@ -76,7 +76,7 @@ def write_experiment(folder: Path, runs: int, days: int) -> Path:
 
 def timed_batch(path: Path, out: Path, extensions=None) -> tuple[float, float]:
     """Wall time and this process's CPU time of one serial batch in this process, with the estimators' summary columns."""
-    from abm.analysis.estimator_check import cached_estimates
+    from abm.analysis.estimator_check.cache import cached_estimates
     from abm.experiment.batch import run_batch
 
     start, cpu = time.perf_counter(), time.process_time()
@@ -104,7 +104,7 @@ def timed_serial(path: Path, out: Path) -> tuple[float, float, float, float]:
     reading those estimates back into its summary is the store's.
     """
     import abm.experiment.worker as worker
-    from abm.analysis.estimator_check import ESTIMATES_CACHE, cached_estimates
+    from abm.analysis.estimator_check.cache import ESTIMATES_CACHE, cached_estimates
 
     real = worker.run_to_directory
     in_runs = [0.0, 0.0]

@@ -22,7 +22,7 @@ import pyarrow.parquet as pq
 import pytest
 import yaml
 
-from abm.analysis.estimator_check import cached_estimates
+from abm.analysis.estimator_check.cache import cached_estimates
 from abm.analysis.policy_search import FIGURE_SOURCES, load_optimisation, run_optimisation
 from abm.calibration import load_calibration, run_calibration
 from abm.experiment.batch import run_batch

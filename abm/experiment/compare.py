@@ -73,16 +73,30 @@ def bounded_mean_interval(
     return mean, float(special.expit(centre - spread)), float(special.expit(centre + spread))
 
 
-def mean_interval(values: Sequence[float] | np.ndarray, confidence: float = CONFIDENCE) -> tuple[float, float, float]:
-    """Mean and Student-t interval of the mean; the bounds are NaN with fewer than two values."""
+def t_half_width(values: np.ndarray, confidence: float = CONFIDENCE) -> float:
+    """Half the width of the Student-t interval of a mean over ``values`` (two or more): t(n − 1) · sd / sqrt(n)."""
+    n = values.size
+    return float(special.stdtrit(n - 1, 0.5 + confidence / 2)) * float(values.std(ddof=1)) / math.sqrt(n)
+
+
+def mean_interval(
+    values: Sequence[float] | np.ndarray, confidence: float = CONFIDENCE, *, finite_only: bool = True
+) -> tuple[float, float, float]:
+    """Mean and Student-t interval of the mean (n − 1 df); the bounds are NaN with fewer than two values.
+
+    ``finite_only`` leaves NaN and infinite values out first (figures a run
+    could not give); with False they stay in and carry into the mean and the
+    bounds, so a NaN among the values gives NaN rather than the mean of the rest.
+    """
     x = np.asarray(values, dtype=float)
-    x = x[np.isfinite(x)]
+    if finite_only:
+        x = x[np.isfinite(x)]
     if x.size == 0:
         return math.nan, math.nan, math.nan
     mean = float(x.mean())
     if x.size < 2:
         return mean, math.nan, math.nan
-    half = float(special.stdtrit(x.size - 1, 0.5 + confidence / 2) * x.std(ddof=1) / math.sqrt(x.size))
+    half = t_half_width(x, confidence)
     return mean, mean - half, mean + half
 
 

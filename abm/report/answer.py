@@ -24,7 +24,8 @@ from typing import Any
 
 import pandas as pd
 
-from ..analysis.estimator_check import method_slug, sensitivities_from_world
+from ..analysis.estimator_check.estimates import sensitivities_from_world
+from ..analysis.estimator_check.truth import method_slug
 from ..calibration.config import LATENT, LATENT_MEANING
 from ..calibration.run import RELIABILITY_FILE, SELF_CHECK_TABLE
 from ..calibration.self_check import within_nominal

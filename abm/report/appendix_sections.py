@@ -8,7 +8,8 @@ from typing import Any
 
 import pandas as pd
 
-from ..analysis.estimator_check import bias_sentence, describe_quantity
+from ..analysis.estimator_check.sentences import bias_sentence
+from ..analysis.estimator_check.truth import describe_quantity
 from ..estimate import frequency, removal, twosample
 from ..estimate.expansion import EXPANSION
 from ..estimate.expansion import SOURCE as EXPANSION_SOURCE

@@ -30,7 +30,7 @@ from typing import Any
 
 import pandas as pd
 
-from ..analysis.estimator_check import bias_sentence
+from ..analysis.estimator_check.sentences import bias_sentence
 from ..analysis.policy_table import DelayLimits
 from ..errors import InputError
 from ..experiment.compare import bounded_mean_interval, figure_scale

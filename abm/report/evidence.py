@@ -8,7 +8,7 @@ run directories themselves:
   (:func:`abm.analysis.policy_table.run_truth_figures`), and the attempt
   shares by boarding point and time band for the displacement heat map;
 * every estimator against the truth it targets over the summarised days
-  (:func:`abm.analysis.estimator_check.check_runs`). The summary's ``est_``
+  (:func:`abm.analysis.estimator_check.per_run.check_runs`). The summary's ``est_``
   columns cover every recorded day, warm-up included; the briefing re-runs the
   estimators on the days the summary covers, so estimates, truth and the
   policy table all describe the same days;
@@ -28,7 +28,7 @@ runs (or fewer than two) are not eligible. Only an eligible estimator whose
 measured coverage is close to nominal (0.80-0.97 of a nominal 0.90) is
 reliable, and only a reliable one can be the trusted estimator: when none is,
 the briefing says that no closed-form estimator is reliable here. Comparisons whose truth can only be
-counted approximately (see :class:`abm.analysis.estimator_check.Route`) are
+counted approximately (see :class:`abm.analysis.estimator_check.truth.Route`) are
 ranked too, and flagged: the approximation (vehicles referred past a station
 after a false alarm) moves the truth by a few people; an exact comparison wins
 a tie. The trusted estimator is the best reliable one.
@@ -53,7 +53,9 @@ from typing import Any
 import numpy as np
 import pandas as pd
 
-from ..analysis.estimator_check import PASSED_UNFOUND, check_runs, summarise_check
+from ..analysis.estimator_check.per_run import check_runs
+from ..analysis.estimator_check.summary import summarise_check
+from ..analysis.estimator_check.truth import PASSED_UNFOUND
 from ..calibration.self_check import within_nominal
 from ..analysis.policy_table import attempt_shares, read_run_world, run_truth_figures
 from ..records import read_truth, write_parquet

@@ -15,7 +15,9 @@ from typing import Any
 
 import pandas as pd
 
-from ..analysis.estimator_check import cached_results, method_slug, slug_of, truth_for_run
+from ..analysis.estimator_check.cache import cached_results
+from ..analysis.estimator_check.runs import truth_for_run
+from ..analysis.estimator_check.truth import method_slug, slug_of
 from ..experiment.single import SUMMARY_LABELS
 from ..port.load import MINUTES_PER_DAY, OVERLOAD, load_report
 from ..records import DEPARTURES_FILE, QUEUE_HOURS_FILE, QUEUES_FILE

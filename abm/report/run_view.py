@@ -18,7 +18,7 @@ from typing import Any
 
 import pandas as pd
 
-from ..analysis.estimator_check import MANIFEST_FILE, read_world, summarised_days
+from ..analysis.estimator_check.runs import MANIFEST_FILE, read_world, summarised_days
 from ..errors import InputError
 from ..observed import OBSERVED_DIR
 from ..records import DEPARTURES_FILE, QUEUE_HOURS_FILE, QUEUES_FILE, TRUTH_DIR

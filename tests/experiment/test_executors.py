@@ -10,7 +10,7 @@ from pathlib import Path
 import pandas as pd
 import pytest
 
-from abm.analysis.estimator_check import ESTIMATES_CACHE, cached_estimates
+from abm.analysis.estimator_check.cache import ESTIMATES_CACHE, cached_estimates
 from abm.cli import BATCH_EXTENSION_MODULES
 from abm.experiment.batch import run_batch
 from abm.experiment.fork_server import start_method
@@ -117,10 +117,11 @@ def test_workers_fork_from_the_server_with_the_engine_and_the_extensions_modules
     # eval is pickled by name, so sending it imports nothing in the worker: what it sees was preloaded. A
     # worker forked from the server is the server's child, not this process's (as a spawned worker would be).
     make, ask = WORKER_PROBES[executor]
-    loaded = "[name in __import__('sys').modules for name in ('abm.experiment.worker', 'abm.analysis.estimator_check')]"
+    modules = ("abm.experiment.worker", "abm.analysis.estimator_check.cache")
+    loaded = f"[name in __import__('sys').modules for name in {modules!r}]"
     code = f"""
 import os
-from abm.analysis.estimator_check import cached_estimates
+from abm.analysis.estimator_check.cache import cached_estimates
 from abm.experiment.executors import {make.split("(")[0]}
 if __name__ == "__main__":
     with {make} as ex:
@@ -154,7 +155,7 @@ def test_the_command_line_preloads_the_module_of_its_batch_extension() -> None:
 
 def test_a_worker_and_its_estimates_do_not_import_scipy_stats() -> None:
     # scipy.stats takes about 0.45 s to import, paid by every worker process; scipy.special has the quantiles.
-    code = "import sys, abm.experiment.worker, abm.analysis.estimator_check; print('scipy.stats' in sys.modules)"
+    code = "import sys, abm.experiment.worker, abm.analysis.estimator_check.cache; print('scipy.stats' in sys.modules)"
     shown = subprocess.run([sys.executable, "-c", code], capture_output=True, text=True, check=True)
     assert shown.stdout.strip() == "False"
 

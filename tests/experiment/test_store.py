@@ -14,7 +14,7 @@ import pandas as pd
 import pytest
 
 from abm.cli import main
-from abm.analysis.estimator_check import cached_estimates
+from abm.analysis.estimator_check.cache import cached_estimates
 from abm.experiment.batch import run_batch
 from abm.experiment.single import run_to_directory
 from abm.experiment.store import EXPERIMENT_FILE, FAILURES_TABLE, SUMMARY_TABLE

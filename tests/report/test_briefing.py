@@ -27,7 +27,9 @@ import pytest
 import yaml
 from scipy import stats
 
-from abm.analysis.estimator_check import cached_estimates, read_world, sensitivities_from_world
+from abm.analysis.estimator_check.cache import cached_estimates
+from abm.analysis.estimator_check.estimates import sensitivities_from_world
+from abm.analysis.estimator_check.runs import read_world
 from abm.cli import main
 from abm.demo import _clear_previous_demo
 from abm.errors import InputError

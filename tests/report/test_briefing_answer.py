@@ -20,7 +20,7 @@ import pandas as pd
 import pytest
 import yaml
 
-from abm.analysis.estimator_check import cached_estimates
+from abm.analysis.estimator_check.cache import cached_estimates
 from abm.calibration import calibrate
 from abm.calibration.config import LATENT
 from abm.calibration.self_check import within_nominal

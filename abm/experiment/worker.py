@@ -38,6 +38,7 @@ from pathlib import Path
 from typing import Any
 
 from ..atomic import staged_folder
+from ..model import PortModel
 from ..records import RecordBook
 from ..run_files import damage
 from ..world import parse_world
@@ -178,7 +179,7 @@ def _extend(task: RunTask, run_dir: Path) -> None:
             pass
 
 
-def _written_elsewhere(task: RunTask, world: Any, model: Any) -> tuple[dict[str, Any], dict[str, bytes]]:
+def _written_elsewhere(task: RunTask, world: World, model: PortModel) -> tuple[dict[str, Any], dict[str, bytes]]:
     """Write the run directory in a private temporary folder, as it would be written in place; return its files."""
     with tempfile.TemporaryDirectory(prefix="undertow-run-") as private:
         run_dir = Path(private) / Path(task.out).name
@@ -200,12 +201,17 @@ def settle(task: RunTask, answer: dict[str, Any]) -> dict[str, Any]:
     out = Path(task.out)
     files = answer.pop("files", None)
     if files is not None and not is_complete(out):
-        _land(files, out)
+        try:
+            _land(files, out)
+        except OSError as exc:
+            return failure(task, f"{out}: the run's files, sent back by its worker, could not be written here ({exc})",
+                           "")
     if is_complete(out):
         return answer
     where = ("the worker sent its files back, but they did not make a whole run here" if files is not None else
-             "the worker reported it written, but this machine cannot read it back: the workers do not see the "
-             "output folder at this path (leave out --shared-output, and the workers send their runs back)")
+             "the worker reported it written, but this machine cannot read it back whole: do the workers see the "
+             "output folder at this path? (with --shared-output they must; without it, a cluster's workers send "
+             "their runs back)")
     return failure(task, f"{out}: {where}", "")
 
 

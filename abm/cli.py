@@ -16,6 +16,10 @@ from pathlib import Path
 from typing import TYPE_CHECKING, Any
 
 from .errors import InputError, refuse_unwritable
+from .cli_options import (
+    ALLOW_LARGE_HELP, SHARED_OUTPUT_HELP, non_negative_float, non_negative_int, positive_int, scheduler_address, seed_value,
+    version_text, warmup_days,
+)
 from .reference import FILE_KINDS as _KINDS
 
 if TYPE_CHECKING:
@@ -351,67 +355,6 @@ def cmd_optimise(args: argparse.Namespace) -> int:
         return _interrupted("optimise", args.out)
     return EXIT_OK
 
-def _whole_number(minimum: int, what: str = "number") -> Callable[[str], int]:
-    """An argparse type for a whole number of at least ``minimum``."""
-
-    def parse(text: str) -> int:
-        try:
-            value = int(text)
-        except ValueError:
-            raise argparse.ArgumentTypeError(f"expected a whole-number {what}, got '{text}'") from None
-        if value < minimum:
-            raise argparse.ArgumentTypeError(f"expected a {what} of {minimum} or more, got {value}")
-        return value
-
-    return parse
-
-
-_positive_int = _whole_number(1)
-_seed = _whole_number(0, "seed")
-_non_negative_int = _whole_number(0)
-_warmup_days = _whole_number(0, "count of days")
-
-
-def _scheduler_address(text: str) -> str:
-    """A Dask scheduler address: [tcp:// or tls://]HOST:PORT, checked before anything starts."""
-    import re
-
-    if not re.fullmatch(r"((tcp|tls)://)?(\[[0-9a-fA-F:]+\]|[A-Za-z0-9_.-]+):\d{1,5}", text) or int(
-        text.rsplit(":", 1)[1]) > 65535:
-        raise argparse.ArgumentTypeError(f"expected an address like tcp://HOST:PORT, got '{text}'")
-    return text
-
-
-def _non_negative_float(text: str) -> float:
-    try:
-        value = float(text)
-    except ValueError:
-        raise argparse.ArgumentTypeError(f"expected a number, got '{text}'") from None
-    if not 0 <= value < float("inf"):
-        raise argparse.ArgumentTypeError(f"expected a number of 0 or more, got {text}")
-    return value
-
-
-ALLOW_LARGE_HELP = ("start a plan above the size ceilings (e.g. for a cluster); never one that cannot fit one "
-                    "worker's memory or the disk")
-SHARED_OUTPUT_HELP = ("with --scheduler: the workers see --out at the same path and write runs there themselves "
-                      "(by default they send each run back and this command writes it)")
-
-
-def version_text() -> str:
-    """This package's version and those that make records reproducible (the same versions give the same bytes)."""
-    from importlib import metadata
-
-    def of(name: str) -> str:
-        try:
-            return metadata.version(name)
-        except metadata.PackageNotFoundError:
-            return "not installed"
-
-    return (f"undertow {of('undertow')} (python {sys.version.split()[0]}; records depend on numpy {of('numpy')}, "
-            f"numba {of('numba')}, mesa {of('mesa')}, pyarrow {of('pyarrow')})")
-
-
 class _Version(argparse.Action):
     """``--version``: one unwrapped line, computed only when asked."""
 
@@ -437,8 +380,8 @@ def _add_placement(command: argparse.ArgumentParser) -> None:
     command.add_argument(
         "--executor", choices=["serial", "processes", "dask"], help="where runs execute (default serial; dask with --scheduler)"
     )
-    command.add_argument("--workers", type=_positive_int, help="worker processes (default: one per CPU)")
-    command.add_argument("--scheduler", type=_scheduler_address, metavar="ADDRESS", help="an existing Dask scheduler, e.g. tcp://10.0.0.5:8786")
+    command.add_argument("--workers", type=positive_int, help="worker processes (default: one per CPU)")
+    command.add_argument("--scheduler", type=scheduler_address, metavar="ADDRESS", help="an existing Dask scheduler, e.g. tcp://10.0.0.5:8786")
     command.add_argument("--shared-output", action="store_true", help=SHARED_OUTPUT_HELP)
 
 
@@ -482,10 +425,10 @@ def _add_run_commands(sub: Any) -> None:
 
     run = sub.add_parser("run", help="simulate a world and write a run directory")
     run.add_argument("world", help="world YAML file")
-    run.add_argument("--days", type=_positive_int, default=365, help="operating days (default 365)")
-    run.add_argument("--seed", type=_seed, default=0, help="root seed (default 0)")
+    run.add_argument("--days", type=positive_int, default=365, help="operating days (default 365)")
+    run.add_argument("--seed", type=seed_value, default=0, help="root seed (default 0)")
     run.add_argument(
-        "--warmup", type=_warmup_days, default=0, metavar="DAYS",
+        "--warmup", type=warmup_days, default=0, metavar="DAYS",
         help="days simulated first and left out of the summary, as a batch's warmup_days (the records keep them; "
              "default 0)",
     )
@@ -499,7 +442,7 @@ def _add_run_commands(sub: Any) -> None:
     demo.add_argument(
         "--resume", action="store_true", help="keep an earlier demo's complete runs of the same experiment"
     )
-    demo.add_argument("--workers", type=_positive_int, help="worker processes (default: one per CPU)")
+    demo.add_argument("--workers", type=positive_int, help="worker processes (default: one per CPU)")
     demo.set_defaults(func=cmd_demo)
 
 
@@ -511,11 +454,11 @@ def _add_reading_commands(sub: Any) -> None:
     brief.add_argument("--baseline", metavar="LEVEL", help="policy level to compare with (default: the experiment's)")
     brief.add_argument("--format", default="html,md", help="html, md or html,md (default)")
     brief.add_argument(
-        "--max-delay-increase", type=_non_negative_float, metavar="PERCENT",
+        "--max-delay-increase", type=non_negative_float, metavar="PERCENT",
         help="delay limit: p95 time at the crossing at most this much above the baseline's (default 10)",
     )
     brief.add_argument(
-        "--max-missed-increase", type=_non_negative_float, metavar="POINTS",
+        "--max-missed-increase", type=non_negative_float, metavar="POINTS",
         help="delay limit: missed departures at most this many percentage points above the baseline's (default 1)",
     )
     brief.set_defaults(func=cmd_brief)
@@ -524,7 +467,7 @@ def _add_reading_commands(sub: Any) -> None:
     compare.add_argument("run_a", metavar="RUN_A", help="baseline run directory")
     compare.add_argument("run_b", metavar="RUN_B", help="policy run directory (same seed: common random numbers)")
     compare.add_argument(
-        "--warmup", type=_non_negative_int, metavar="DAYS",
+        "--warmup", type=non_negative_int, metavar="DAYS",
         help="days to drop from the start of both runs (default: the runs' own warm-up)",
     )
     compare.set_defaults(func=cmd_compare)
@@ -544,7 +487,7 @@ def _add_reading_commands(sub: Any) -> None:
         metavar="NAME=A,B",
         help="Beta(a, b) sensitivity of a station or check method, for the expansions (repeatable)",
     )
-    estimate.add_argument("--seed", type=_seed, help="seed for the expansions' bootstrap intervals (default: none)")
+    estimate.add_argument("--seed", type=seed_value, help="seed for the expansions' bootstrap intervals (default: none)")
     estimate.set_defaults(func=cmd_estimate)
 
     export = sub.add_parser(

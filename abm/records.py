@@ -18,6 +18,7 @@ depends only on the world and the seed.
 from __future__ import annotations
 
 import json
+import math
 import os
 import uuid
 from collections.abc import Callable
@@ -54,6 +55,28 @@ QUEUE_HOUR_COLUMNS: dict[str, str] = dtypes("queue_hours")
 
 DEPARTURES_FILE = "departures.parquet"
 DEPARTURE_COLUMNS: dict[str, str] = dtypes("departures")
+
+
+def median_and_p95(values: np.ndarray) -> tuple[float, float]:
+    """Exactly ``np.percentile(values, [50, 95])`` (its default linear method) of a non-empty array without NaN.
+
+    Written out from numpy's own steps (the virtual index ``(n - 1) q``, its neighbours, numpy's
+    two-sided interpolation) on one partition of a copy: np.percentile's checks and
+    generality cost several times the partition on a day's few thousand vehicles.
+    """
+    n = values.shape[0]
+    picks = []
+    for q in (0.5, 0.95):
+        virtual = (n - 1) * q
+        low = n - 1 if virtual >= n - 1 else math.floor(virtual)
+        picks.append((virtual, low, min(low + 1, n - 1)))
+    ordered = np.partition(values, sorted({k for _, low, high in picks for k in (low, high)}))
+    out = []
+    for virtual, low, high in picks:
+        a, b = float(ordered[low]), float(ordered[high])
+        gamma, diff = virtual - low, b - a
+        out.append(b - diff * (1 - gamma) if gamma >= 0.5 else a + diff * gamma)
+    return out[0], out[1]
 
 
 def _calendar(minute: np.ndarray) -> tuple[np.ndarray, np.ndarray]:
@@ -161,7 +184,7 @@ class RecordBook:
         if result.departures is not None:
             self._departures.append(result.departures)
         tip = result.time_in_port[np.isfinite(result.time_in_port)]
-        p50, p95 = (float(q) for q in np.percentile(tip, [50, 95])) if tip.size else (float("nan"), float("nan"))
+        p50, p95 = median_and_p95(tip) if tip.size else (float("nan"), float("nan"))
 
         def persons_with(name: str) -> int:
             return int(persons[outcome == name].sum())

@@ -2,8 +2,9 @@
 
 A group boards one vehicle, taken at random among those that stop at the
 point, are of the class it chose, pass in the band it chose and have room for
-the whole group. Finding them is a scan of the day's vehicles per attempt;
-compiled, it costs about as much as a single numpy comparison.
+the whole group. Finding them is one scan of the vehicles passing the point per
+attempt, compiled into a single call: as a chain of numpy steps (or several
+compiled calls) an attempt cost several times the scan itself.
 """
 
 from __future__ import annotations
@@ -13,36 +14,33 @@ import numpy as np
 
 
 @numba.njit(cache=True)
-def stopping_of_class(stops: np.ndarray, vehicle_class: np.ndarray, want_class: int) -> np.ndarray:
-    """Positions (ascending) of passing vehicles that stop at the point and are of class ``want_class``."""
-    found = np.empty(stops.shape[0], dtype=np.int64)
-    k = 0
-    for i in range(stops.shape[0]):
-        if stops[i] and vehicle_class[i] == want_class:
-            found[k] = i
-            k += 1
-    return found[:k]
-
-
-@numba.njit(cache=True)
 def fitting_vehicles(
-    candidates: np.ndarray,
-    at_point: np.ndarray,
-    room: np.ndarray,
+    rows: np.ndarray,
+    stops: np.ndarray,
+    vehicle_class: np.ndarray,
+    capacity: np.ndarray,
+    aboard: np.ndarray,
+    next_arrival: np.ndarray,
+    lead: float,
     band_of_hour: np.ndarray,
+    want_class: int,
     want_band: int,
     size: int,
 ) -> np.ndarray:
-    """The ``candidates`` (ascending positions) that pass in band ``want_band`` with room for ``size``.
+    """Positions ``i`` (ascending) into ``rows`` of the vehicles a group of ``size`` can board at a point.
 
-    ``candidates`` come from :func:`stopping_of_class`; ``at_point`` (absolute minute each passing
-    vehicle is at the point) and ``room`` are indexed by position;
-    ``band_of_hour`` maps an hour of the day to its time band.
+    Vehicle ``rows[i]`` qualifies when it stops at the point (``stops``, one flag per vehicle of the day),
+    is of class ``want_class``, has room for ``size`` more people (its class's ``capacity`` less those
+    ``aboard``), and is at the point, ``lead`` minutes before it reaches the next station at
+    ``next_arrival[i]``, in band ``want_band`` (``band_of_hour`` maps an hour of the day to its band).
     """
-    found = np.empty(candidates.shape[0], dtype=np.int64)
+    found = np.empty(rows.shape[0], dtype=np.int64)
     k = 0
-    for i in candidates:
-        if room[i] >= size and band_of_hour[int(np.floor(at_point[i] / 60.0)) % 24] == want_band:
+    for i in range(rows.shape[0]):
+        r = rows[i]
+        if not stops[r] or vehicle_class[r] != want_class or capacity[want_class] - aboard[r] < size:
+            continue
+        if band_of_hour[int(np.floor((next_arrival[i] - lead) / 60.0)) % 24] == want_band:
             found[k] = i
             k += 1
     return found[:k]

@@ -51,7 +51,7 @@ from ..errors import InputError
 from .checks import StationDraws, draw_for_station
 from .departures import DepartureBoard, build_timetable
 from .layout import DEPARTURE, MONTH_OF_YEAR_DAY, Layout
-from .boarding import fitting_vehicles, stopping_of_class
+from .boarding import fitting_vehicles
 from .station import METHOD_COUNTERS, FifoCarry, MethodTables, StationPass, StationRules, VehicleState, check_station
 from .tallies import StationHours, station_hours
 from .traffic import MINUTES_PER_DAY, DayTraffic, generate_traffic
@@ -378,27 +378,23 @@ class DayEngine:
         if todo.shape[0] == 0:
             return
         aboard, depth = vehicles.aboard, vehicles.depth
-        vclass = vehicles.vehicle_class[rows]
-        room = lay.class_capacity[vclass] - aboard[rows]  # kept in step with ``aboard`` below
         for p in sorted(set(attempts.point[todo].tolist())):
-            at_point = next_arrival - lay.point_lead[p]
-            stops = traffic.stops[p, rows]
-            of_class: dict[int, np.ndarray] = {}  # positions of vehicles that stop here, per class
-            for a in todo[attempts.point[todo] == p]:
-                c = int(attempts.vehicle_class[a])
-                if c not in of_class:
-                    of_class[c] = stopping_of_class(stops, vclass, c)
-                want = (int(attempts.band[a]), int(attempts.size[a]))
-                choices = fitting_vehicles(of_class[c], at_point, room, lay.band_of_hour, *want)
+            lead, stops = float(lay.point_lead[p]), traffic.stops[p]
+            for a in todo[attempts.point[todo] == p].tolist():
+                size = int(attempts.size[a])
+                choices = fitting_vehicles(
+                    rows, stops, vehicles.vehicle_class, lay.class_capacity, aboard, next_arrival, lead,
+                    lay.band_of_hour, int(attempts.vehicle_class[a]), int(attempts.band[a]), size,
+                )  # fmt: skip
                 if choices.shape[0] == 0:
                     result.outcome[a] = NO_VEHICLE
                     continue
-                pick = choices[self.boarding_rng.integers(choices.shape[0])]
-                room[pick] -= attempts.size[a]
-                aboard[rows[pick]] += attempts.size[a]
-                depth[rows[pick]] = max(depth[rows[pick]], attempts.depth[a])
-                result.vehicle[a] = rows[pick]
-                result.minute[a] = at_point[pick]
+                pick = int(choices[self.boarding_rng.integers(choices.shape[0])])
+                vehicle = int(rows[pick])
+                aboard[vehicle] += size
+                depth[vehicle] = max(depth[vehicle], attempts.depth[a])
+                result.vehicle[a] = vehicle
+                result.minute[a] = next_arrival[pick] - lead
 
     @staticmethod
     def _found(

@@ -16,7 +16,7 @@ import numpy as np
 import pytest
 
 from abm.agents.behaviour import logit_probabilities
-from abm.port.boarding import fitting_vehicles, stopping_of_class
+from abm.port.boarding import fitting_vehicles
 from abm.port.queues import MINUTES_PER_HOUR, duty_tables, earliest_fit
 from abm.port.traffic import _cargo_of, draw_classes
 
@@ -48,17 +48,22 @@ def test_boarding_candidates_are_the_vehicles_that_stop_fit_and_pass_in_the_band
     rng = np.random.default_rng(3)
     n = 3000
     stops, vclass = rng.random(n) < 0.6, rng.integers(0, 4, n)
-    at_point = np.sort(rng.random(n) * 1440.0) + 1440.0  # the second day of a run
-    room = rng.integers(0, 4, n)
+    rows = np.sort(rng.choice(n, size=2000, replace=False))  # the vehicles passing this point
+    next_arrival = np.sort(rng.random(rows.size) * 1440.0) + 1440.0  # the second day of a run
+    lead = 25.0
+    capacity = np.array([2, 3, 4, 5])
+    aboard = rng.integers(0, 3, n)
     band_of_hour = np.repeat([0, 1, 2, 0], 6)  # night, morning, afternoon, night again
+    band_now = band_of_hour[np.floor((next_arrival - lead) / 60.0).astype(np.int64) % 24]
+    room = capacity[vclass[rows]] - aboard[rows]
     for want_class in range(4):
-        candidates = stopping_of_class(stops, vclass, want_class)
-        np.testing.assert_array_equal(candidates, np.flatnonzero(stops & (vclass == want_class)))
         for band in range(3):
             for size in (1, 3):
-                band_now = band_of_hour[np.floor(at_point / 60.0).astype(np.int64) % 24]
-                expected = np.flatnonzero(stops & (vclass == want_class) & (band_now == band) & (room >= size))
-                np.testing.assert_array_equal(fitting_vehicles(candidates, at_point, room, band_of_hour, band, size), expected)
+                expected = np.flatnonzero(stops[rows] & (vclass[rows] == want_class) & (band_now == band) & (room >= size))
+                got = fitting_vehicles(
+                    rows, stops, vclass, capacity, aboard, next_arrival, lead, band_of_hour, want_class, band, size
+                )
+                np.testing.assert_array_equal(got, expected)
 
 
 def scan_earliest_fit(t: float, duration: float, lane: int, day_roster: np.ndarray, origin: float) -> float:

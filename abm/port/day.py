@@ -51,7 +51,7 @@ from ..errors import InputError
 from .checks import StationDraws, draw_for_station
 from .departures import DepartureBoard, build_timetable
 from .layout import DEPARTURE, MONTH_OF_YEAR_DAY, Layout
-from .boarding import fitting_vehicles
+from .boarding import fitting_vehicles, stopping_vehicles
 from .station import METHOD_COUNTERS, FifoCarry, MethodTables, StationPass, StationRules, VehicleState, check_station
 from .tallies import StationHours, station_hours
 from .traffic import MINUTES_PER_DAY, DayTraffic, generate_traffic
@@ -379,13 +379,12 @@ class DayEngine:
             return
         aboard, depth = vehicles.aboard, vehicles.depth
         for p in sorted(set(attempts.point[todo].tolist())):
-            lead, stops = float(lay.point_lead[p]), traffic.stops[p]
+            lead = float(lay.point_lead[p])
+            stopping = stopping_vehicles(rows, traffic.stops[p], vehicles.vehicle_class, next_arrival, lead, lay.band_of_hour)
             for a in todo[attempts.point[todo] == p].tolist():
                 size = int(attempts.size[a])
-                choices = fitting_vehicles(
-                    rows, stops, vehicles.vehicle_class, lay.class_capacity, aboard, next_arrival, lead,
-                    lay.band_of_hour, int(attempts.vehicle_class[a]), int(attempts.band[a]), size,
-                )  # fmt: skip
+                want = (int(attempts.vehicle_class[a]), int(attempts.band[a]), size)
+                choices = fitting_vehicles(*stopping, lay.class_capacity, aboard, *want)
                 if choices.shape[0] == 0:
                     result.outcome[a] = NO_VEHICLE
                     continue

@@ -16,7 +16,7 @@ import numpy as np
 import pytest
 
 from abm.agents.behaviour import logit_probabilities
-from abm.port.boarding import fitting_vehicles
+from abm.port.boarding import fitting_vehicles, stopping_vehicles
 from abm.port.queues import MINUTES_PER_HOUR, duty_tables, earliest_fit
 from abm.port.traffic import _cargo_of, draw_classes
 
@@ -56,13 +56,13 @@ def test_boarding_candidates_are_the_vehicles_that_stop_fit_and_pass_in_the_band
     band_of_hour = np.repeat([0, 1, 2, 0], 6)  # night, morning, afternoon, night again
     band_now = band_of_hour[np.floor((next_arrival - lead) / 60.0).astype(np.int64) % 24]
     room = capacity[vclass[rows]] - aboard[rows]
+    stopping = stopping_vehicles(rows, stops, vclass, next_arrival, lead, band_of_hour)
+    np.testing.assert_array_equal(stopping[0], np.flatnonzero(stops[rows]))
     for want_class in range(4):
         for band in range(3):
             for size in (1, 3):
                 expected = np.flatnonzero(stops[rows] & (vclass[rows] == want_class) & (band_now == band) & (room >= size))
-                got = fitting_vehicles(
-                    rows, stops, vclass, capacity, aboard, next_arrival, lead, band_of_hour, want_class, band, size
-                )
+                got = fitting_vehicles(*stopping, capacity, aboard, want_class, band, size)
                 np.testing.assert_array_equal(got, expected)
 
 

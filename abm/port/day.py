@@ -53,7 +53,7 @@ from .departures import DepartureBoard, build_timetable
 from .layout import DEPARTURE, MONTH_OF_YEAR_DAY, Layout
 from .boarding import fitting_vehicles, stopping_vehicles
 from .station import METHOD_COUNTERS, FifoCarry, MethodTables, StationPass, StationRules, VehicleState, check_station
-from .tallies import StationHours, station_hours
+from .tallies import StationHours, count_checks, station_hours
 from .traffic import MINUTES_PER_DAY, DayTraffic, generate_traffic
 
 # Outcome codes of an attempt.
@@ -319,7 +319,7 @@ class DayEngine:
                     station_of, method_of = np.full(rows_empty.shape[0], s), done.method[empty]
                 false_parts.append((done.end[empty], station_of, method_of, cls[rows_empty], cargo[rows_empty]))
             passes.append(done)
-            waits[s] = (done.start - done.arrival)[done.checked]
+            waits[s] = done.wait
             hours.append(station_hours(s, done, staffed, day))  # tallies only: no draws
 
         self._board(attempts, result, DEPARTURE, np.arange(n), vehicles.ready, vehicles, traffic)
@@ -425,26 +425,9 @@ def _aggregate_checks(passes: list[StationPass], lay: Layout) -> dict[str, np.nd
     key = np.concatenate([p.key for p in passes])
     checked = np.concatenate([p.checked for p in passes])
     alarm = np.concatenate([p.alarm for p in passes])
-    # the keys of a day span a few thousand values: counting over that span beats sorting them
-    low = int(key.min()) if key.size else 0
-    index = key - low
-    vehicles = np.bincount(index)
-    present = np.flatnonzero(vehicles)
-    n_s, n_c, n_m = lay.station_method.shape[0], lay.n_classes, lay.method_dist.shape[0]
-    rest, m = np.divmod(present + low, n_m)
-    rest, c = np.divmod(rest, n_c)
-    rest, s = np.divmod(rest, n_s)
-    d, h = np.divmod(rest, 24)
-    return {
-        "day": d,
-        "hour": h,
-        "station": s,
-        "vehicle_class": c,
-        "method": m,
-        "vehicles": vehicles[present],
-        "checks": np.bincount(index[checked], minlength=vehicles.shape[0])[present],
-        "alarms": np.bincount(index[alarm], minlength=vehicles.shape[0])[present],
-    }
+    columns = count_checks(key, checked, alarm, lay.station_method.shape[0], lay.n_classes, lay.method_dist.shape[0])
+    names = ("day", "hour", "station", "vehicle_class", "method", "vehicles", "checks", "alarms")
+    return dict(zip(names, columns, strict=True))
 
 
 def _false_alarm_rows(parts: list[tuple[np.ndarray, ...]]) -> dict[str, np.ndarray]:

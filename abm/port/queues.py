@@ -47,6 +47,7 @@ from .layout import RULES
 from .traffic import MINUTES_PER_DAY
 
 MINUTES_PER_HOUR = 60.0
+HOURS_PER_DAY = 24
 TARGETED, QUEUE_AWARE = RULES.index("targeted"), RULES.index("queue_aware")
 
 # Rows of the per-method counters a day accumulates (one column per method x cargo type).
@@ -300,6 +301,48 @@ def _next_carry(
 
 
 @numba.njit(cache=True)
+def _spread(begin: float, finish: float, first_hour: int, out: np.ndarray) -> None:
+    """Add the minutes of ``[begin, finish)`` to the hours they fall in (``out[k]`` is hour ``first_hour + k``)."""
+    t = begin
+    while t < finish:
+        hour = int(np.floor(t / MINUTES_PER_HOUR))
+        stop = min((hour + 1) * MINUTES_PER_HOUR, finish)
+        out[hour - first_hour] += stop - t
+        t = stop
+
+
+@numba.njit(cache=True)
+def tally_pass(arrival, start, end, checked, first_hour, min_hours):  # fmt: skip
+    """Per absolute hour from ``first_hour``: vehicles reaching the station, checks, minutes waited, lane-minutes
+    checking; and each checked vehicle's hour. Compiled: a plain loop over the vehicles and the hours each
+    interval spans, where numpy would need a dozen calls a station and day (see ``bench/engine.py``); :func:`station_pass` calls it for the records."""
+    last = first_hour + min_hours - 1
+    n_checked = 0
+    for i in range(arrival.shape[0]):
+        last = max(last, int(np.floor(arrival[i] / MINUTES_PER_HOUR)))
+        if checked[i]:
+            n_checked += 1
+            last = max(last, int(np.ceil(end[i] / MINUTES_PER_HOUR)) - 1)
+    n = last - first_hour + 1
+    vehicles = np.zeros(n, dtype=np.int64)
+    checks = np.zeros(n, dtype=np.int64)
+    waiting = np.zeros(n)
+    busy = np.zeros(n)
+    wait_hour = np.empty(n_checked, dtype=np.int64)
+    k = 0
+    for i in range(arrival.shape[0]):
+        hour = int(np.floor(arrival[i] / MINUTES_PER_HOUR))
+        vehicles[hour - first_hour] += 1
+        if checked[i]:
+            checks[hour - first_hour] += 1
+            wait_hour[k] = hour
+            k += 1
+            _spread(arrival[i], start[i], first_hour, waiting)
+            _spread(start[i], end[i], first_hour, busy)
+    return vehicles, checks, waiting, busy, wait_hour
+
+
+@numba.njit(cache=True)
 def station_pass(
     rows, arrival, vclass, cargo, aboard, depth, ready, referred, alarm_station, alarm_method, alarm_hit,
     service, busy_service, u_select, risk_noise, u_detect, u_false,
@@ -312,8 +355,8 @@ def station_pass(
 
     Takes that function's arguments unpacked (its dataclasses' fields in
     order, the carry as its two arrays), with ``rows`` and ``arrival`` sorted by
-    arrival, and returns :class:`abm.port.station.StationPass`'s fields in order
-    with the next day's carry (arrival, start).
+    arrival, and returns :class:`abm.port.station.StationPass`'s fields in order, the pass's
+    tally by hour (:func:`tally_pass`) and the next day's carry (arrival, start).
     """
     arrive = arrival
     n = rows.shape[0]
@@ -401,4 +444,14 @@ def station_pass(
         cal_day = int(np.floor(arrive[i] / MINUTES_PER_DAY))
         clock_hour = int(np.floor(arrive[i] / 60.0)) % 24
         key[i] = (((cal_day * 24 + clock_hour) * n_stations + station) * n_classes + c) * n_methods + m
-    return (rows, arrive, start, end, checked, method, alarm, hit, logged_false, key), (next_arrival, next_start)
+    wait = np.empty(int(checked.sum()))
+    unservable = False
+    k = 0
+    for i in range(n):
+        if checked[i]:
+            wait[k] = start[i] - arrive[i]
+            unservable = unservable or np.isinf(start[i])
+            k += 1
+    tally = tally_pass(arrive, start, end, checked, int(origin // MINUTES_PER_HOUR), HOURS_PER_DAY)
+    fields = (rows, arrive, start, end, checked, method, alarm, hit, logged_false, key, wait, unservable)
+    return fields, tally, (next_arrival, next_start)

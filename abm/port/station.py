@@ -91,11 +91,9 @@ class StationPass:
     hit: np.ndarray  # the check found people
     logged_false: np.ndarray  # the agency logs a false alarm here: nothing found after the alarm
     key: np.ndarray  # aggregation key of (calendar day, hour, station, class, method), see day.py
-
-    @property
-    def unservable(self) -> bool:
-        """Some selected vehicle can never be checked by a staffed lane."""
-        return bool(np.isinf(self.start).any())
+    wait: np.ndarray  # start - arrival of the checked vehicles, in arrival order
+    unservable: bool  # some selected vehicle can never be checked by a staffed lane
+    tally: tuple[np.ndarray, ...]  # by hour from the day's first: abm.port.queues.tally_pass's results
 
 
 def check_station(
@@ -139,5 +137,5 @@ def check_station(
         tables.fatigue_decay, tables.false_alarm, tables.cargo_false,
         staffed, origin, free, worked, carry.arrival, carry.start, counters, n_stations,
     )  # fmt: skip
-    fields, (carry.arrival, carry.start) = out
-    return StationPass(*fields)
+    fields, tally, (carry.arrival, carry.start) = out
+    return StationPass(*fields, tally=tally)

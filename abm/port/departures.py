@@ -20,6 +20,7 @@ them, so a world without them draws nothing and keeps its records.
 from __future__ import annotations
 
 from dataclasses import dataclass
+from functools import cached_property
 
 import numba
 import numpy as np
@@ -28,7 +29,7 @@ from ..world.schema import World
 from ..world.timetable import Departures
 from .checks import sample_duration
 from .layout import DISTS
-from .tallies import departure_counts
+from .tallies import departure_counts, settle_departures
 from .traffic import MINUTES_PER_DAY
 
 HORIZON_DAYS = 7  # departures are looked up this many days ahead of the arrival day
@@ -51,12 +52,12 @@ class Timetable:
     planned: float  # minutes from arrival to check-in a vehicle books by
     class_length: np.ndarray  # (C,) metres; 0 where departures are not measured in metres
 
-    @property
+    @cached_property
     def empty(self) -> bool:
         """True for a crossing whose vehicles leave as soon as they are cleared."""
         return all(m.shape[0] == 0 for m in self.minute)
 
-    @property
+    @cached_property
     def random(self) -> bool:
         """True when some departure may be late or cancelled (and random numbers are drawn)."""
         return any((c > 0).any() for c in self.cancel) or any((d > 0).any() for d in self.delay_chance)
@@ -168,18 +169,15 @@ class DepartureBoard:
             end = start + d.close.shape[0]
             d.places, d.metres = places[start:end], metres[start:end]
             start = end
-        # the first departure whose check-in closes at or after the planned check-in (closes need not ascend)
-        booked = np.searchsorted(np.maximum.accumulate(close), arrival + self.timetable.planned, side="left")
-        stranded = chosen < 0
         leave_at = np.concatenate([d.leave for d in window])
-        leave = np.where(stranded, np.nan, leave_at[np.where(stranded, 0, chosen)])
+        leave, missed, *counted = settle_departures(arrival, self.timetable.planned, close, chosen, leave_at)
         scheduled = np.concatenate([d.scheduled for d in window])
         shortest = float(self.timetable.class_length.min()) if self.timetable.class_length.size else 0.0
         counts = departure_counts(
-            scheduled, booked, chosen, places, metres, leave_at - scheduled,
+            scheduled, *counted, places, metres, leave_at - scheduled,
             np.concatenate([d.cancelled for d in window]), (places < 1.0) | (metres < max(shortest, 1e-9)),
         )  # for the records; no draws
-        return Departed(leave=leave, missed=stranded | (chosen > booked), counts=counts)
+        return Departed(leave=leave, missed=missed, counts=counts)
 
 
 @numba.njit(cache=True)

@@ -285,6 +285,7 @@ class DayEngine:
         waits: dict[int, np.ndarray] = {}
         hours: list[StationHours] = []
 
+        on_duty = np.minimum(staffing.lanes, lay.station_lanes[:, None]).astype(np.int64)  # lanes per station and hour
         for s in range(lay.station_method.shape[0]):
             secondary = bool(lay.station_secondary[s])
             rows = np.flatnonzero(vehicles.referred == s) if secondary else np.flatnonzero(vehicles.referred == -1)
@@ -297,7 +298,7 @@ class DayEngine:
             if stands_down:
                 main = busy_method = int(lay.station_method[s])
             rules = self._rules_for(s, main, busy_method, stands_down)
-            staffed = np.minimum(staffing.lanes[s], lay.station_lanes[s]).astype(np.int64)
+            staffed = on_duty[s]
             # lanes of a station whose method has no rest rule do not track work
             worked = self.worked[s] if np.isfinite(rules.work_limit) else np.zeros(self.free[s].shape[0])
             done = check_station(

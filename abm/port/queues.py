@@ -28,9 +28,10 @@ day's late check cannot be used before that check ends, even by a vehicle
 that arrived before it: the one approximation left at the day boundary.
 
 :func:`station_pass` wraps the recursion in a station's whole pass over a day
-(arrival order, selection chances, detection, alarms, referral, counts); its
-typed front is :func:`abm.port.station.check_station`. It lives here, beside
-the recursion, because numba caches a compiled function by its own file only.
+(arrival order, selection chances, detection, alarms, referral, counts, the
+tally by hour of :func:`tally_pass`); its typed front is
+:func:`abm.port.station.check_station`. It lives here, beside the functions it
+calls, because numba caches a compiled function by its own file only.
 
 Compiled with numba: a plain-Python loop costs about as much as a generic
 event simulator, which would dominate a simulated year.

@@ -3,7 +3,7 @@
 The day engine hands a station the vehicles that reach it (and when); this
 module sorts them into arrival order, decides who is selected, runs the exact
 FIFO recursion of :mod:`abm.port.queues`, finds people, raises alarms, refers
-vehicles to the secondary search area, and counts what the records need. It
+vehicles to the secondary search area, and counts and tallies what the records need. It
 is one numba function (:func:`abm.port.queues.station_pass`, beside the
 recursion it calls, so numba's cache of the two goes stale together) because
 a station's pass is a few dozen array steps per vehicle: as separate numpy
@@ -123,7 +123,7 @@ def check_station(
     and ``vehicles`` are updated in place: found people leave ``aboard``, alarms
     refer vehicles on, every vehicle's ``ready`` becomes the end of its check.
     ``counters`` (len(METHOD_COUNTERS), methods x cargo types) accumulates the
-    per-method figures.
+    per-method figures. The pass comes back with its waits and its tally by hour for the records.
     """
     order = np.argsort(arrival, kind="stable")  # ties keep vehicle order; numpy's sort beats numba's here
     out = station_pass(

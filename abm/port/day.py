@@ -349,8 +349,8 @@ class DayEngine:
         lay = self.layout
         u = self.boarding_rng.random(len(attempts))
         when = self.boarding_rng.random(len(attempts))
-        chance = np.clip(lay.point_interdiction[attempts.point, attempts.band] + staffing.patrol[attempts.point, attempts.band], 0, 1)
-        stopped = u < chance
+        # the chance needs no clipping to [0, 1]: a uniform in [0, 1) is below it exactly when below its clipped value
+        stopped = u < lay.point_interdiction[attempts.point, attempts.band] + staffing.patrol[attempts.point, attempts.band]
         for a in np.flatnonzero(stopped):
             hours = np.flatnonzero(lay.band_of_hour == attempts.band[a])
             minute = (hours[int(when[a] * hours.shape[0])] + (when[a] * hours.shape[0]) % 1.0) * 60.0

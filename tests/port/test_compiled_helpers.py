@@ -6,6 +6,7 @@ gives, because records are compared byte for byte across runs and executors:
 - vehicle classes: NumPy's own ``Generator.choice(k, p=...)`` on the same
   stream is the reference (its algorithm: numpy/random/_generator.pyx, choice:
   normalised cumulative shares searched with ``side="right"``);
+- the daily time-in-port median and p95: NumPy's own ``percentile``;
 - cargo, boarding candidates, lanes on duty: the definitions in their
   docstrings, written out in numpy or as a minute-by-minute scan.
 """
@@ -18,7 +19,9 @@ import pytest
 from abm.agents.behaviour import logit_probabilities
 from abm.port.boarding import fitting_vehicles, stopping_vehicles
 from abm.port.queues import MINUTES_PER_HOUR, duty_tables, earliest_fit
+from abm.port.tallies import count_checks
 from abm.port.traffic import _cargo_of, draw_classes
+from abm.records import median_and_p95
 
 
 @pytest.mark.parametrize("seed", range(20))
@@ -115,3 +118,27 @@ def test_logit_rows_are_the_single_chooser_probabilities() -> None:
     together = logit_probabilities(utility, 2.0, valid, 0.05)
     for row in range(9):
         np.testing.assert_array_equal(together[row], logit_probabilities(utility[row], 2.0, valid[row], 0.05))
+
+
+@pytest.mark.parametrize("seed", range(6))
+def test_daily_median_and_p95_are_numpys_percentiles(seed: int) -> None:
+    rng = np.random.default_rng(seed)
+    for n in (1, 2, 3, 19, 20, 21, 2999, 3000):
+        minutes = rng.lognormal(4.0, 1.0, n)
+        if seed % 2:
+            minutes = np.round(minutes)  # ties
+        assert median_and_p95(minutes) == tuple(np.percentile(minutes, [50, 95]).tolist())
+
+
+def test_check_counts_are_bincounts_of_the_keys() -> None:
+    rng = np.random.default_rng(5)
+    n_s, n_c, n_m = 4, 5, 6
+    hour, s, c, m = rng.integers(48, 80, 9000), rng.integers(0, n_s, 9000), rng.integers(0, n_c, 9000), rng.integers(0, n_m, 9000)
+    key = ((hour * n_s + s) * n_c + c) * n_m + m
+    checked, alarm = rng.random(9000) < 0.3, rng.random(9000) < 0.05
+    present, index = np.unique(key, return_inverse=True)
+    day, hour_of_day, station, vclass, method, vehicles, checks, alarms = count_checks(key, checked, alarm, n_s, n_c, n_m)
+    np.testing.assert_array_equal(((day * 24 + hour_of_day) * n_s + station) * n_c * n_m + vclass * n_m + method, present)
+    np.testing.assert_array_equal(vehicles, np.bincount(index))
+    np.testing.assert_array_equal(checks, np.bincount(index[checked], minlength=present.size))
+    np.testing.assert_array_equal(alarms, np.bincount(index[alarm], minlength=present.size))

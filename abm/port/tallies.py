@@ -65,51 +65,16 @@ def station_hours(station: int, done: StationPass, staffed: np.ndarray, day: int
     )
 
 
-@numba.njit(cache=True)
-def settle_departures(arrival: np.ndarray, planned: float, close: np.ndarray, chosen: np.ndarray, leave_at: np.ndarray):  # fmt: skip
-    """Each vehicle's leave minute and whether it missed its booked departure, and per departure in view
-    the vehicles booked on it, that left on it and that missed it.
-
-    ``arrival`` ascends; ``close`` are the departures' check-in closes (they need not ascend: a vehicle is
-    booked on the first departure whose check-in closes at or after ``arrival + planned``, among the running
-    maximum of the closes); ``chosen`` is each vehicle's departure (-1: stranded) and ``leave_at`` each
-    departure's leaving minute. A booked index past the end means no departure in view. A vehicle missed
-    its booked departure when it left on a later one or not at all, as the daily missed-departure share counts it.
-    Returns leave (NaN when stranded), missed, and the booked, left and missed counts.
-    """
-    k, n = close.shape[0], arrival.shape[0]
-    latest = np.empty(k)
-    running = -np.inf
-    for j in range(k):
-        running = max(running, close[j])
-        latest[j] = running
-    booked = np.searchsorted(latest, arrival + planned)
-    leave = np.empty(n)
-    missed = np.empty(n, dtype=np.bool_)
-    booked_count = np.zeros(k, dtype=np.int64)
-    left_count = np.zeros(k, dtype=np.int64)
-    missed_count = np.zeros(k, dtype=np.int64)
-    for i in range(n):
-        stranded = chosen[i] < 0
-        leave[i] = np.nan if stranded else leave_at[chosen[i]]
-        missed[i] = stranded or chosen[i] > booked[i]
-        if not stranded:
-            left_count[chosen[i]] += 1
-        if booked[i] < k:
-            booked_count[booked[i]] += 1
-            missed_count[booked[i]] += missed[i]
-    return leave, missed, booked_count, left_count, missed_count
-
-
 def departure_counts(
     minute: np.ndarray, booked: np.ndarray, left: np.ndarray, missed: np.ndarray, places: np.ndarray,
     metres: np.ndarray, late: np.ndarray, cancelled: np.ndarray, full: np.ndarray,
 ) -> dict[str, np.ndarray]:
     """Per departure in view: the day's vehicles booked on it, that left on it, that missed it, and its state.
 
-    ``minute`` are the departures' timetabled absolute minutes; ``booked``, ``left`` and ``missed`` the counts
-    of :func:`settle_departures`; ``places`` and ``metres`` the room still free after the day's vehicles
-    boarded (inf where not counted), ``late`` the minutes each leaves late, ``cancelled`` and ``full`` flags.
+    ``minute`` are the departures' timetabled absolute minutes; ``booked``, ``left`` and ``missed`` the
+    counts of :func:`abm.port.departures.settle_departures`; ``places`` and ``metres`` the room still free
+    after the day's vehicles boarded (inf where not counted), ``late`` the minutes each leaves late,
+    ``cancelled`` and ``full`` flags.
     """
     return {
         "minute": minute.copy(),

@@ -7,6 +7,7 @@ gives, because records are compared byte for byte across runs and executors:
   stream is the reference (its algorithm: numpy/random/_generator.pyx, choice:
   normalised cumulative shares searched with ``side="right"``);
 - the daily time-in-port median and p95: NumPy's own ``percentile``;
+- a station's arrival order: NumPy's stable ``argsort``;
 - cargo, boarding candidates, lanes on duty: the definitions in their
   docstrings, written out in numpy or as a minute-by-minute scan.
 """
@@ -18,7 +19,7 @@ import pytest
 
 from abm.agents.behaviour import logit_probabilities
 from abm.port.boarding import fitting_vehicles, stopping_vehicles
-from abm.port.queues import MINUTES_PER_HOUR, duty_tables, earliest_fit
+from abm.port.queues import MINUTES_PER_HOUR, arrival_order, duty_tables, earliest_fit
 from abm.port.tallies import count_checks
 from abm.port.traffic import _cargo_of, draw_classes
 from abm.records import median_and_p95
@@ -142,3 +143,15 @@ def test_check_counts_are_bincounts_of_the_keys() -> None:
     np.testing.assert_array_equal(vehicles, np.bincount(index))
     np.testing.assert_array_equal(checks, np.bincount(index[checked], minlength=present.size))
     np.testing.assert_array_equal(alarms, np.bincount(index[alarm], minlength=present.size))
+
+
+@pytest.mark.parametrize("seed", range(10))
+def test_arrival_order_is_numpys_stable_argsort(seed: int) -> None:
+    rng = np.random.default_rng(seed)
+    n = int(rng.integers(0, 3000))
+    arrival = np.sort(np.round(rng.random(n) * 1440.0))  # rounded: many ties
+    held = rng.random(n) < 0.2
+    arrival[held] += np.round(rng.exponential(20.0, int(held.sum())))  # nearly sorted, as after a station
+    # reversed and shuffled, they exceed the insertion sort's budget and take the merge sort
+    for case in (arrival, np.sort(arrival), arrival[::-1].copy(), rng.permutation(arrival)):
+        np.testing.assert_array_equal(arrival_order(case), np.argsort(case, kind="stable"))

@@ -8,6 +8,9 @@ band they pass it in, are gathered once per point and day
 (:func:`fitting_vehicles`). Both scans count instead of branching: the flags
 are random, so a branch per vehicle is mispredicted about as often as not,
 which had made a scan over the day's vehicles cost three times its arithmetic.
+:func:`board_attempts` runs both for every pending attempt at the points
+before a station, drawing each pick from the boarding stream in one compiled
+call, where a Python loop over the attempts cost more than the scans.
 """
 
 from __future__ import annotations
@@ -70,3 +73,49 @@ def fitting_vehicles(
         found[k] = position[j]
         k += (cls[j] == want_class) & (band[j] == want_band) & (aboard[vehicle[j]] <= room)
     return found[:k]
+
+
+@numba.njit(cache=True)
+def board_attempts(
+    before, point, want_class, want_band, size, want_depth, point_station, point_lead, rows, stops,
+    vehicle_class, next_arrival, band_of_hour, capacity, aboard, depth, rng, outcome, vehicle, minute,
+    pending, no_vehicle,
+):  # fmt: skip
+    """Board every attempt still ``pending`` whose point lies before station ``before`` onto vehicles ``rows``.
+
+    Points are taken in ascending order and, at each point, attempts in order.
+    An attempt boards a vehicle taken at random (``rng.integers``, the same
+    numbers as ``Generator.integers`` in Python) among :func:`fitting_vehicles`;
+    with none its ``outcome`` becomes ``no_vehicle`` and nothing is drawn. The
+    vehicle takes the group (``aboard``) and the deeper of its ``depth`` and the
+    group's; the attempt's ``vehicle`` is that vehicle and its ``minute`` when it
+    passes the point, ``point_lead`` minutes before ``next_arrival``. Arrays are
+    updated in place.
+    """
+    for p in range(point_lead.shape[0]):
+        if point_station[p] != before:
+            continue
+        first = 0  # the point's first pending attempt; the vehicles stopping there are gathered only if there is one
+        while first < point.shape[0] and (point[first] != p or outcome[first] != pending):
+            first += 1
+        if first == point.shape[0]:
+            continue
+        lead = point_lead[p]
+        position, stop_vehicle, stop_class, stop_band = stopping_vehicles(
+            rows, stops[p], vehicle_class, next_arrival, lead, band_of_hour
+        )
+        for a in range(first, point.shape[0]):
+            if point[a] != p or outcome[a] != pending:
+                continue
+            choices = fitting_vehicles(
+                position, stop_vehicle, stop_class, stop_band, capacity, aboard, want_class[a], want_band[a], size[a]
+            )
+            if choices.shape[0] == 0:
+                outcome[a] = no_vehicle
+                continue
+            pick = choices[rng.integers(0, choices.shape[0])]
+            v = rows[pick]
+            aboard[v] += size[a]
+            depth[v] = max(depth[v], want_depth[a])
+            vehicle[a] = v
+            minute[a] = next_arrival[pick] - lead

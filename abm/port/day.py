@@ -51,7 +51,7 @@ from ..errors import InputError
 from .checks import StationDraws, draw_for_station
 from .departures import DepartureBoard, build_timetable
 from .layout import DEPARTURE, MONTH_OF_YEAR_DAY, Layout
-from .boarding import fitting_vehicles, stopping_vehicles
+from .boarding import board_attempts
 from .station import METHOD_COUNTERS, FifoCarry, MethodTables, StationPass, StationRules, VehicleState, check_station
 from .tallies import StationHours, count_checks, station_hours
 from .traffic import MINUTES_PER_DAY, DayTraffic, generate_traffic
@@ -266,6 +266,8 @@ class DayEngine:
             referred_by=np.full(a_n, -1, dtype=np.int64),
         )
         self._interdict(day, attempts, staffing, result)
+        # the positions before which some attempt is still pending: only there is anyone to board
+        boarding_at = set(lay.point_station[attempts.point[result.outcome == PENDING]].tolist())
 
         vehicles = VehicleState(
             vehicle_class=cls,
@@ -290,7 +292,7 @@ class DayEngine:
             secondary = bool(lay.station_secondary[s])
             rows = np.flatnonzero(vehicles.referred == s) if secondary else np.flatnonzero(vehicles.referred == -1)
             arrive = vehicles.ready[rows] + lay.station_travel[s]
-            if not secondary:
+            if s in boarding_at:  # a secondary station has no boarding points
                 self._board(attempts, result, s, rows, arrive, vehicles, traffic)
             d = draws[s]
             main, busy_method, service, busy_service = self._methods_today(s, suspended, d)
@@ -323,7 +325,8 @@ class DayEngine:
             waits[s] = done.wait
             hours.append(station_hours(s, done, staffed, day))  # tallies only: no draws
 
-        self._board(attempts, result, DEPARTURE, np.arange(n), vehicles.ready, vehicles, traffic)
+        if DEPARTURE in boarding_at:
+            self._board(attempts, result, DEPARTURE, np.arange(n), vehicles.ready, vehicles, traffic)
         departed = self.departures.depart(day, traffic.arrival, vehicles.ready, traffic.vehicle_class)
         leave, missed = departed.leave, departed.missed
         crossed = (result.outcome == PENDING) & (result.vehicle >= 0)
@@ -371,30 +374,17 @@ class DayEngine:
 
         A vehicle is at a point ``lead`` minutes before it reaches the next station
         (``next_arrival``); it must stop there, be of the chosen class, pass in the
-        chosen band and have room for the whole group. One such vehicle is taken at random.
+        chosen band and have room for the whole group. One such vehicle is taken at random
+        (:func:`abm.port.boarding.board_attempts`).
         The vehicle's depth becomes the deeper of its own and the group's.
         """
         lay = self.layout
-        todo = np.flatnonzero((result.outcome == PENDING) & (lay.point_station[attempts.point] == before))
-        if todo.shape[0] == 0:
-            return
-        aboard, depth = vehicles.aboard, vehicles.depth
-        for p in sorted(set(attempts.point[todo].tolist())):
-            lead = float(lay.point_lead[p])
-            stopping = stopping_vehicles(rows, traffic.stops[p], vehicles.vehicle_class, next_arrival, lead, lay.band_of_hour)
-            for a in todo[attempts.point[todo] == p].tolist():
-                size = int(attempts.size[a])
-                want = (int(attempts.vehicle_class[a]), int(attempts.band[a]), size)
-                choices = fitting_vehicles(*stopping, lay.class_capacity, aboard, *want)
-                if choices.shape[0] == 0:
-                    result.outcome[a] = NO_VEHICLE
-                    continue
-                pick = int(choices[self.boarding_rng.integers(choices.shape[0])])
-                vehicle = int(rows[pick])
-                aboard[vehicle] += size
-                depth[vehicle] = max(depth[vehicle], attempts.depth[a])
-                result.vehicle[a] = vehicle
-                result.minute[a] = next_arrival[pick] - lead
+        board_attempts(
+            before, attempts.point, attempts.vehicle_class, attempts.band, attempts.size, attempts.depth,
+            lay.point_station, lay.point_lead, rows, traffic.stops, vehicles.vehicle_class, next_arrival,
+            lay.band_of_hour, lay.class_capacity, vehicles.aboard, vehicles.depth, self.boarding_rng,
+            result.outcome, result.vehicle, result.minute, PENDING, NO_VEHICLE,
+        )  # fmt: skip
 
     @staticmethod
     def _found(

@@ -8,12 +8,14 @@ gives, because records are compared byte for byte across runs and executors:
   normalised cumulative shares searched with ``side="right"``);
 - the daily time-in-port median and p95: NumPy's own ``percentile``;
 - a station's arrival order: NumPy's stable ``argsort``;
+- a boarding pick drawn in compiled code: NumPy's ``Generator.integers`` on the same stream;
 - cargo, boarding candidates, lanes on duty: the definitions in their
   docstrings, written out in numpy or as a minute-by-minute scan.
 """
 
 from __future__ import annotations
 
+import numba
 import numpy as np
 import pytest
 
@@ -155,3 +157,19 @@ def test_arrival_order_is_numpys_stable_argsort(seed: int) -> None:
     # reversed and shuffled, they exceed the insertion sort's budget and take the merge sort
     for case in (arrival, np.sort(arrival), arrival[::-1].copy(), rng.permutation(arrival)):
         np.testing.assert_array_equal(arrival_order(case), np.argsort(case, kind="stable"))
+
+
+@numba.njit
+def _compiled_picks(rng: np.random.Generator, counts: np.ndarray) -> np.ndarray:
+    picks = np.empty(counts.shape[0], dtype=np.int64)
+    for i in range(counts.shape[0]):
+        picks[i] = rng.integers(0, counts[i])
+    return picks
+
+
+def test_compiled_boarding_picks_are_numpys_integers_on_the_same_stream() -> None:
+    counts = np.random.default_rng(0).integers(1, 5000, 2000)  # a count of 1 draws nothing in either
+    python, compiled = np.random.default_rng(11), np.random.default_rng(11)
+    expected = [python.integers(k) for k in counts]
+    np.testing.assert_array_equal(_compiled_picks(compiled, counts), expected)
+    assert compiled.random() == python.random()  # and the stream goes on where NumPy's does

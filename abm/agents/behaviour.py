@@ -45,7 +45,8 @@ def logit_probabilities(utility: np.ndarray, rationality: float, valid: np.ndarr
     ``utility`` and ``valid`` may hold one row per chooser (options on the last axis).
     """
     z = np.where(valid, rationality * utility, -np.inf)
-    z = z - np.max(z, axis=-1, keepdims=True, where=valid, initial=-np.inf)
+    # invalid options already hold -inf, so the plain maximum is the maximum over valid ones (and faster)
+    z = z - z.max(axis=-1, keepdims=True, initial=-np.inf)
     weights = np.exp(z)
     logit = weights / weights.sum(axis=-1, keepdims=True)
     uniform = valid / valid.sum(axis=-1, keepdims=True)
@@ -241,11 +242,14 @@ class AdaptiveBehaviour:
 
     # -- daily channels -----------------------------------------------------------------
     def start_of_day(self, day: int, staffing: Staffing, rng: np.random.Generator) -> None:
+        weight, agents = self.params.peer_weight, self._agents
         for target, option, caught in self._messages.pop(day, []):
-            agent = self._agents.get(target)
+            agent = agents.get(target)
             if agent is not None:
-                beliefs = self._decayed(agent.memory, day)
-                (beliefs.caught if caught else beliefs.crossed)[option] += self.params.peer_weight
+                beliefs = agent.memory
+                if beliefs.day < day:  # decayed once a day, however many messages it gets
+                    self._decayed(beliefs, day)
+                (beliefs.caught if caught else beliefs.crossed)[option] += weight
         lagged = self._history.pop(day - self.params.rumour_delay_days, None)
         f = self.params.forgetting
         self._rumour_caught *= f

@@ -164,6 +164,7 @@ class DayEngine:
         self.departures = DepartureBoard(build_timetable(layout.world), np.random.default_rng(departure_seq))
         self._tables: dict[int, MethodTables] = {}
         self._rules: dict[tuple[int, int, int, bool], StationRules] = {}
+        self._band_hours: dict[int, np.ndarray] = {}  # the hours of each band, for interdiction minutes
 
     def change_layout(self, layout: Layout) -> None:
         """Take a changed policy (same stations and points); lanes keep their state, new lanes start free."""
@@ -180,6 +181,7 @@ class DayEngine:
         self.departures.change_timetable(build_timetable(layout.world))
         self._tables = {}
         self._rules = {}
+        self._band_hours = {}
 
     # -- helpers -------------------------------------------------------------------------
     def _tables_for(self, weather: int) -> MethodTables:
@@ -355,7 +357,10 @@ class DayEngine:
         # the chance needs no clipping to [0, 1]: a uniform in [0, 1) is below it exactly when below its clipped value
         stopped = u < lay.point_interdiction[attempts.point, attempts.band] + staffing.patrol[attempts.point, attempts.band]
         for a in np.flatnonzero(stopped):
-            hours = np.flatnonzero(lay.band_of_hour == attempts.band[a])
+            band = int(attempts.band[a])
+            if band not in self._band_hours:
+                self._band_hours[band] = np.flatnonzero(lay.band_of_hour == band)
+            hours = self._band_hours[band]
             minute = (hours[int(when[a] * hours.shape[0])] + (when[a] * hours.shape[0]) % 1.0) * 60.0
             result.outcome[a] = INTERDICTED
             result.minute[a] = day * MINUTES_PER_DAY + minute

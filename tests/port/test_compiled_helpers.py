@@ -8,6 +8,7 @@ gives, because records are compared byte for byte across runs and executors:
   normalised cumulative shares searched with ``side="right"``);
 - the daily time-in-port median and p95: NumPy's own ``percentile``;
 - a station's arrival order: NumPy's stable ``argsort``;
+- durations drawn with in-place arithmetic: the plain expressions, bit for bit;
 - a boarding pick drawn in compiled code: NumPy's ``Generator.integers`` on the same stream;
 - cargo, boarding candidates, lanes on duty: the definitions in their
   docstrings, written out in numpy or as a minute-by-minute scan.
@@ -21,6 +22,7 @@ import pytest
 
 from abm.agents.behaviour import logit_probabilities
 from abm.port.boarding import fitting_vehicles, stopping_vehicles
+from abm.port.checks import sample_duration
 from abm.port.queues import MINUTES_PER_HOUR, arrival_order, duty_tables, earliest_fit
 from abm.port.tallies import count_checks
 from abm.port.traffic import _cargo_of, draw_classes
@@ -173,3 +175,18 @@ def test_compiled_boarding_picks_are_numpys_integers_on_the_same_stream() -> Non
     expected = [python.integers(k) for k in counts]
     np.testing.assert_array_equal(_compiled_picks(compiled, counts), expected)
     assert compiled.random() == python.random()  # and the stream goes on where NumPy's does
+
+
+@pytest.mark.parametrize("dist", ["exponential", "lognormal", "uniform"])
+def test_durations_computed_in_place_are_the_plain_expressions(dist: str) -> None:
+    for mean, cv, spread in [(3.0, 0.2, 0.5), (np.float64(47.3), 1.3, 0.9), (0.1, 0.01, 0.0)]:
+        got = sample_duration(dist, mean, cv, spread, 5000, np.random.default_rng(3))
+        rng = np.random.default_rng(3)
+        if dist == "exponential":
+            expected = mean * rng.standard_exponential(5000)
+        elif dist == "lognormal":
+            sigma2 = np.log1p(cv * cv)
+            expected = np.exp(np.log(mean) - sigma2 / 2 + np.sqrt(sigma2) * rng.standard_normal(5000))
+        else:
+            expected = mean * (1.0 + spread * (2.0 * rng.random(5000) - 1.0))
+        assert got.tobytes() == expected.tobytes()

@@ -165,7 +165,7 @@ class AdaptiveBehaviour:
         self._rumour_crossed = np.zeros(options.size)
         self._history: dict[int, tuple[np.ndarray, np.ndarray]] = {}
         self._presence = np.zeros(options.size)
-        self._links_ahead: deque[tuple[int, np.ndarray]] = deque()  # (groups present, peers) drawn by arriving
+        self._links_ahead: deque[tuple[int, list[int]]] = deque()  # (groups present, peers) drawn by arriving
 
     def refresh(self, world: World, options: OptionSpace) -> None:
         self.params = world.adversary.adaptive
@@ -185,7 +185,7 @@ class AdaptiveBehaviour:
         if n == 0 or present[-1] > LARGEST_POPULATION:
             return  # init_agent draws them itself
         degree = np.minimum(self.params.network_degree, present)
-        peers = samples_without_replacement(self._network_rng, present, degree)
+        peers = samples_without_replacement(self._network_rng, present, degree).tolist()  # ints index the list faster
         ends = np.cumsum(degree)
         for count, end, size in zip(present.tolist(), ends.tolist(), degree.tolist(), strict=True):
             self._links_ahead.append((count, peers[end - size : end]))

@@ -404,9 +404,10 @@ class DayEngine:
 
         ``referred_by`` is, per vehicle, the station whose alarm referred it to this one (-1: none).
         """
-        lookup = {int(v): i for i, v in enumerate(vehicles)}
-        for a in np.flatnonzero(result.outcome == PENDING):
-            i = lookup.get(int(result.vehicle[a]))
+        lookup = {v: i for i, v in enumerate(vehicles.tolist())}
+        boarded = result.vehicle.tolist()  # Python ints: cheaper to look up than numpy scalars
+        for a in np.flatnonzero(result.outcome == PENDING).tolist():
+            i = lookup.get(boarded[a])
             if i is None:
                 continue
             result.outcome[a] = DETECTED

@@ -88,7 +88,9 @@ class PortModel(mesa.Model):
     def _new_groups(self, day: int) -> None:
         adversary = self.world.adversary
         n = int(self.arrivals_rng.poisson(adversary.arrivals_per_day))
-        for size in draw_group_sizes(adversary, n, self.arrivals_rng):
+        sizes = draw_group_sizes(adversary, n, self.arrivals_rng)
+        self.behaviour.arriving(sizes.shape[0])
+        for size in sizes:
             agent = ConcealmentAgent(self, int(size), day)
             self.records.arrival(agent.unique_id, day, agent.size)
             self._in_system += agent.size

@@ -20,7 +20,7 @@ behaviour object; per-agent memory lives on the agent (``agent.memory``).
 
 from __future__ import annotations
 
-from collections import defaultdict
+from collections import defaultdict, deque
 from collections.abc import Sequence
 from dataclasses import dataclass
 from typing import TYPE_CHECKING, Protocol
@@ -30,6 +30,7 @@ import numpy as np
 from ..port.day import Staffing
 from ..world.schema import World
 from .options import OptionSpace
+from .sampling import LARGEST_POPULATION, samples_without_replacement
 
 if TYPE_CHECKING:
     from .concealment import ConcealmentAgent
@@ -44,7 +45,8 @@ def logit_probabilities(utility: np.ndarray, rationality: float, valid: np.ndarr
     ``utility`` and ``valid`` may hold one row per chooser (options on the last axis).
     """
     z = np.where(valid, rationality * utility, -np.inf)
-    z = z - np.max(z, axis=-1, keepdims=True, where=valid, initial=-np.inf)
+    # invalid options already hold -inf, so the plain maximum is the maximum over valid ones (and faster)
+    z = z - z.max(axis=-1, keepdims=True, initial=-np.inf)
     weights = np.exp(z)
     logit = weights / weights.sum(axis=-1, keepdims=True)
     uniform = valid / valid.sum(axis=-1, keepdims=True)
@@ -67,6 +69,9 @@ class Behaviour(Protocol):
     def refresh(self, world: World, options: OptionSpace) -> None:
         """Take the world's (possibly changed) parameters."""
 
+    def arriving(self, n: int) -> None:
+        """``n`` new agents are about to be made, one after another (the next ``init_agent`` calls)."""
+
     def init_agent(self, agent: "ConcealmentAgent") -> None:
         """Give a new agent whatever memory the model needs."""
 
@@ -88,6 +93,9 @@ class Behaviour(Protocol):
 
 class _Quiet:
     """No-op hooks for behaviours that do not need them."""
+
+    def arriving(self, n: int) -> None:
+        return None
 
     def init_agent(self, agent: "ConcealmentAgent") -> None:
         return None
@@ -157,6 +165,7 @@ class AdaptiveBehaviour:
         self._rumour_crossed = np.zeros(options.size)
         self._history: dict[int, tuple[np.ndarray, np.ndarray]] = {}
         self._presence = np.zeros(options.size)
+        self._links_ahead: deque[tuple[int, list[int]]] = deque()  # (groups present, peers) drawn by arriving
 
     def refresh(self, world: World, options: OptionSpace) -> None:
         self.params = world.adversary.adaptive
@@ -167,6 +176,20 @@ class AdaptiveBehaviour:
         self.base_utility = -options.effort - self.params.hazard_aversion * options.hazard - waiting[options.band]
 
     # -- memory -------------------------------------------------------------------------
+    def arriving(self, n: int) -> None:
+        """Draw the links of the next ``n`` newcomers in one compiled call (the numbers ``init_agent`` would draw).
+
+        The i-th newcomer finds ``i`` more groups present than are now (nobody leaves while groups arrive).
+        """
+        present = len(self._agents) + np.arange(n, dtype=np.int64)
+        if n == 0 or present[-1] > LARGEST_POPULATION:
+            return  # init_agent draws them itself
+        degree = np.minimum(self.params.network_degree, present)
+        peers = samples_without_replacement(self._network_rng, present, degree).tolist()  # ints index the list faster
+        ends = np.cumsum(degree)
+        for count, end, size in zip(present.tolist(), ends.tolist(), degree.tolist(), strict=True):
+            self._links_ahead.append((count, peers[end - size : end]))
+
     def init_agent(self, agent: "ConcealmentAgent") -> None:
         k = self.options.size
         day = agent.arrival_day
@@ -174,14 +197,19 @@ class AdaptiveBehaviour:
         present = list(self._agents)  # groups leave the network when they leave the area
         links = self.network.setdefault(agent.unique_id, {})
         self._agents[agent.unique_id] = agent
-        degree = min(self.params.network_degree, len(present))
-        if degree:
-            # links to random groups already in the area: a growing random network
+        if self._links_ahead:
+            count, chosen = self._links_ahead.popleft()
+            if count != len(present):
+                raise RuntimeError(f"links drawn for {count} groups present, but {len(present)} are")
+        else:
+            degree = min(self.params.network_degree, len(present))
             # choice over the count draws exactly what choice over the ids would, without building an array
-            for index in self._network_rng.choice(len(present), size=degree, replace=False):
-                peer = present[index]
-                links[peer] = None
-                self.network[peer][agent.unique_id] = None
+            chosen = self._network_rng.choice(len(present), size=degree, replace=False) if degree else ()
+        # links to random groups already in the area: a growing random network
+        for index in chosen:
+            peer = present[index]
+            links[peer] = None
+            self.network[peer][agent.unique_id] = None
 
     def _decayed(self, beliefs: Beliefs, day: int) -> Beliefs:
         if day > beliefs.day:
@@ -214,11 +242,14 @@ class AdaptiveBehaviour:
 
     # -- daily channels -----------------------------------------------------------------
     def start_of_day(self, day: int, staffing: Staffing, rng: np.random.Generator) -> None:
+        weight, agents = self.params.peer_weight, self._agents
         for target, option, caught in self._messages.pop(day, []):
-            agent = self._agents.get(target)
+            agent = agents.get(target)
             if agent is not None:
-                beliefs = self._decayed(agent.memory, day)
-                (beliefs.caught if caught else beliefs.crossed)[option] += self.params.peer_weight
+                beliefs = agent.memory
+                if beliefs.day < day:  # decayed once a day, however many messages it gets
+                    self._decayed(beliefs, day)
+                (beliefs.caught if caught else beliefs.crossed)[option] += weight
         lagged = self._history.pop(day - self.params.rumour_delay_days, None)
         f = self.params.forgetting
         self._rumour_caught *= f

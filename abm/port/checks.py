@@ -17,18 +17,34 @@ from .layout import DISTS, Layout
 
 
 def sample_duration(dist: str, mean: float, cv: float, spread: float, n: int, rng: np.random.Generator) -> np.ndarray:
-    """Draw n durations (minutes) from one of :data:`DISTS` with the given mean and shape."""
+    """Draw n durations (minutes) from one of :data:`DISTS` with the given mean and shape.
+
+    Arithmetic is done in place on the drawn array (the same operations, operand
+    for operand, as the plain expressions in the comments), which spares a
+    temporary array per step on a day's few thousand vehicles.
+    """
     if dist == "exponential":
-        return mean * rng.standard_exponential(n)
+        out = rng.standard_exponential(n)
+        out *= mean
+        return out
     if dist == "deterministic":
         return np.full(n, mean)
     if dist == "lognormal":
         sigma2 = np.log1p(cv * cv)
-        return np.exp(np.log(mean) - sigma2 / 2 + np.sqrt(sigma2) * rng.standard_normal(n))
+        out = rng.standard_normal(n)  # exp(log(mean) - sigma2 / 2 + sqrt(sigma2) * z)
+        out *= np.sqrt(sigma2)
+        out += np.log(mean) - sigma2 / 2
+        return np.exp(out, out=out)
     if dist == "gamma":
         shape = 1.0 / (cv * cv)
         return rng.gamma(shape, mean / shape, n)
-    return mean * (1.0 + spread * (2.0 * rng.random(n) - 1.0))  # uniform
+    out = rng.random(n)  # uniform: mean * (1 + spread * (2u - 1))
+    out *= 2.0
+    out -= 1.0
+    out *= spread
+    out += 1.0
+    out *= mean
+    return out
 
 
 def sample_service(layout: Layout, method: int, n: int, rng: np.random.Generator) -> np.ndarray:

@@ -51,9 +51,9 @@ from ..errors import InputError
 from .checks import StationDraws, draw_for_station
 from .departures import DepartureBoard, build_timetable
 from .layout import DEPARTURE, MONTH_OF_YEAR_DAY, Layout
-from .boarding import fitting_vehicles, stopping_of_class
+from .boarding import board_attempts
 from .station import METHOD_COUNTERS, FifoCarry, MethodTables, StationPass, StationRules, VehicleState, check_station
-from .tallies import StationHours, station_hours
+from .tallies import StationHours, count_checks, station_hours
 from .traffic import MINUTES_PER_DAY, DayTraffic, generate_traffic
 
 # Outcome codes of an attempt.
@@ -164,6 +164,7 @@ class DayEngine:
         self.departures = DepartureBoard(build_timetable(layout.world), np.random.default_rng(departure_seq))
         self._tables: dict[int, MethodTables] = {}
         self._rules: dict[tuple[int, int, int, bool], StationRules] = {}
+        self._band_hours: dict[int, np.ndarray] = {}  # the hours of each band, for interdiction minutes
 
     def change_layout(self, layout: Layout) -> None:
         """Take a changed policy (same stations and points); lanes keep their state, new lanes start free."""
@@ -180,6 +181,7 @@ class DayEngine:
         self.departures.change_timetable(build_timetable(layout.world))
         self._tables = {}
         self._rules = {}
+        self._band_hours = {}
 
     # -- helpers -------------------------------------------------------------------------
     def _tables_for(self, weather: int) -> MethodTables:
@@ -266,6 +268,8 @@ class DayEngine:
             referred_by=np.full(a_n, -1, dtype=np.int64),
         )
         self._interdict(day, attempts, staffing, result)
+        # the positions before which some attempt is still pending: only there is anyone to board
+        boarding_at = set(lay.point_station[attempts.point[result.outcome == PENDING]].tolist())
 
         vehicles = VehicleState(
             vehicle_class=cls,
@@ -285,11 +289,12 @@ class DayEngine:
         waits: dict[int, np.ndarray] = {}
         hours: list[StationHours] = []
 
+        on_duty = np.minimum(staffing.lanes, lay.station_lanes[:, None]).astype(np.int64)  # lanes per station and hour
         for s in range(lay.station_method.shape[0]):
             secondary = bool(lay.station_secondary[s])
             rows = np.flatnonzero(vehicles.referred == s) if secondary else np.flatnonzero(vehicles.referred == -1)
             arrive = vehicles.ready[rows] + lay.station_travel[s]
-            if not secondary:
+            if s in boarding_at:  # a secondary station has no boarding points
                 self._board(attempts, result, s, rows, arrive, vehicles, traffic)
             d = draws[s]
             main, busy_method, service, busy_service = self._methods_today(s, suspended, d)
@@ -297,7 +302,7 @@ class DayEngine:
             if stands_down:
                 main = busy_method = int(lay.station_method[s])
             rules = self._rules_for(s, main, busy_method, stands_down)
-            staffed = np.minimum(staffing.lanes[s], lay.station_lanes[s]).astype(np.int64)
+            staffed = on_duty[s]
             # lanes of a station whose method has no rest rule do not track work
             worked = self.worked[s] if np.isfinite(rules.work_limit) else np.zeros(self.free[s].shape[0])
             done = check_station(
@@ -319,10 +324,11 @@ class DayEngine:
                     station_of, method_of = np.full(rows_empty.shape[0], s), done.method[empty]
                 false_parts.append((done.end[empty], station_of, method_of, cls[rows_empty], cargo[rows_empty]))
             passes.append(done)
-            waits[s] = (done.start - done.arrival)[done.checked]
+            waits[s] = done.wait
             hours.append(station_hours(s, done, staffed, day))  # tallies only: no draws
 
-        self._board(attempts, result, DEPARTURE, np.arange(n), vehicles.ready, vehicles, traffic)
+        if DEPARTURE in boarding_at:
+            self._board(attempts, result, DEPARTURE, np.arange(n), vehicles.ready, vehicles, traffic)
         departed = self.departures.depart(day, traffic.arrival, vehicles.ready, traffic.vehicle_class)
         leave, missed = departed.leave, departed.missed
         crossed = (result.outcome == PENDING) & (result.vehicle >= 0)
@@ -348,10 +354,13 @@ class DayEngine:
         lay = self.layout
         u = self.boarding_rng.random(len(attempts))
         when = self.boarding_rng.random(len(attempts))
-        chance = np.clip(lay.point_interdiction[attempts.point, attempts.band] + staffing.patrol[attempts.point, attempts.band], 0, 1)
-        stopped = u < chance
+        # the chance needs no clipping to [0, 1]: a uniform in [0, 1) is below it exactly when below its clipped value
+        stopped = u < lay.point_interdiction[attempts.point, attempts.band] + staffing.patrol[attempts.point, attempts.band]
         for a in np.flatnonzero(stopped):
-            hours = np.flatnonzero(lay.band_of_hour == attempts.band[a])
+            band = int(attempts.band[a])
+            if band not in self._band_hours:
+                self._band_hours[band] = np.flatnonzero(lay.band_of_hour == band)
+            hours = self._band_hours[band]
             minute = (hours[int(when[a] * hours.shape[0])] + (when[a] * hours.shape[0]) % 1.0) * 60.0
             result.outcome[a] = INTERDICTED
             result.minute[a] = day * MINUTES_PER_DAY + minute
@@ -370,35 +379,17 @@ class DayEngine:
 
         A vehicle is at a point ``lead`` minutes before it reaches the next station
         (``next_arrival``); it must stop there, be of the chosen class, pass in the
-        chosen band and have room for the whole group. One such vehicle is taken at random.
+        chosen band and have room for the whole group. One such vehicle is taken at random
+        (:func:`abm.port.boarding.board_attempts`).
         The vehicle's depth becomes the deeper of its own and the group's.
         """
         lay = self.layout
-        todo = np.flatnonzero((result.outcome == PENDING) & (lay.point_station[attempts.point] == before))
-        if todo.shape[0] == 0:
-            return
-        aboard, depth = vehicles.aboard, vehicles.depth
-        vclass = vehicles.vehicle_class[rows]
-        room = lay.class_capacity[vclass] - aboard[rows]  # kept in step with ``aboard`` below
-        for p in sorted(set(attempts.point[todo].tolist())):
-            at_point = next_arrival - lay.point_lead[p]
-            stops = traffic.stops[p, rows]
-            of_class: dict[int, np.ndarray] = {}  # positions of vehicles that stop here, per class
-            for a in todo[attempts.point[todo] == p]:
-                c = int(attempts.vehicle_class[a])
-                if c not in of_class:
-                    of_class[c] = stopping_of_class(stops, vclass, c)
-                want = (int(attempts.band[a]), int(attempts.size[a]))
-                choices = fitting_vehicles(of_class[c], at_point, room, lay.band_of_hour, *want)
-                if choices.shape[0] == 0:
-                    result.outcome[a] = NO_VEHICLE
-                    continue
-                pick = choices[self.boarding_rng.integers(choices.shape[0])]
-                room[pick] -= attempts.size[a]
-                aboard[rows[pick]] += attempts.size[a]
-                depth[rows[pick]] = max(depth[rows[pick]], attempts.depth[a])
-                result.vehicle[a] = rows[pick]
-                result.minute[a] = at_point[pick]
+        board_attempts(
+            before, attempts.point, attempts.vehicle_class, attempts.band, attempts.size, attempts.depth,
+            lay.point_station, lay.point_lead, rows, traffic.stops, vehicles.vehicle_class, next_arrival,
+            lay.band_of_hour, lay.class_capacity, vehicles.aboard, vehicles.depth, self.boarding_rng,
+            result.outcome, result.vehicle, result.minute, PENDING, NO_VEHICLE,
+        )  # fmt: skip
 
     @staticmethod
     def _found(
@@ -413,9 +404,10 @@ class DayEngine:
 
         ``referred_by`` is, per vehicle, the station whose alarm referred it to this one (-1: none).
         """
-        lookup = {int(v): i for i, v in enumerate(vehicles)}
-        for a in np.flatnonzero(result.outcome == PENDING):
-            i = lookup.get(int(result.vehicle[a]))
+        lookup = {v: i for i, v in enumerate(vehicles.tolist())}
+        boarded = result.vehicle.tolist()  # Python ints: cheaper to look up than numpy scalars
+        for a in np.flatnonzero(result.outcome == PENDING).tolist():
+            i = lookup.get(boarded[a])
             if i is None:
                 continue
             result.outcome[a] = DETECTED
@@ -430,26 +422,9 @@ def _aggregate_checks(passes: list[StationPass], lay: Layout) -> dict[str, np.nd
     key = np.concatenate([p.key for p in passes])
     checked = np.concatenate([p.checked for p in passes])
     alarm = np.concatenate([p.alarm for p in passes])
-    # the keys of a day span a few thousand values: counting over that span beats sorting them
-    low = int(key.min()) if key.size else 0
-    index = key - low
-    vehicles = np.bincount(index)
-    present = np.flatnonzero(vehicles)
-    n_s, n_c, n_m = lay.station_method.shape[0], lay.n_classes, lay.method_dist.shape[0]
-    rest, m = np.divmod(present + low, n_m)
-    rest, c = np.divmod(rest, n_c)
-    rest, s = np.divmod(rest, n_s)
-    d, h = np.divmod(rest, 24)
-    return {
-        "day": d,
-        "hour": h,
-        "station": s,
-        "vehicle_class": c,
-        "method": m,
-        "vehicles": vehicles[present],
-        "checks": np.bincount(index[checked], minlength=vehicles.shape[0])[present],
-        "alarms": np.bincount(index[alarm], minlength=vehicles.shape[0])[present],
-    }
+    columns = count_checks(key, checked, alarm, lay.station_method.shape[0], lay.n_classes, lay.method_dist.shape[0])
+    names = ("day", "hour", "station", "vehicle_class", "method", "vehicles", "checks", "alarms")
+    return dict(zip(names, columns, strict=True))
 
 
 def _false_alarm_rows(parts: list[tuple[np.ndarray, ...]]) -> dict[str, np.ndarray]:

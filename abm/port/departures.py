@@ -20,6 +20,7 @@ them, so a world without them draws nothing and keeps its records.
 from __future__ import annotations
 
 from dataclasses import dataclass
+from functools import cached_property
 
 import numba
 import numpy as np
@@ -51,12 +52,12 @@ class Timetable:
     planned: float  # minutes from arrival to check-in a vehicle books by
     class_length: np.ndarray  # (C,) metres; 0 where departures are not measured in metres
 
-    @property
+    @cached_property
     def empty(self) -> bool:
         """True for a crossing whose vehicles leave as soon as they are cleared."""
         return all(m.shape[0] == 0 for m in self.minute)
 
-    @property
+    @cached_property
     def random(self) -> bool:
         """True when some departure may be late or cancelled (and random numbers are drawn)."""
         return any((c > 0).any() for c in self.cancel) or any((d > 0).any() for d in self.delay_chance)
@@ -100,7 +101,7 @@ def _rows(dep: Departures) -> list[tuple]:
 
 @dataclass
 class DayDepartures:
-    """One calendar day's departures: when they close and leave, and the room left on them."""
+    """Departures of one or more calendar days: when they close and leave, and the room left on them."""
 
     scheduled: np.ndarray  # absolute minute it is timetabled to leave
     close: np.ndarray  # absolute minute check-in closes
@@ -120,66 +121,97 @@ class Departed:
 
 
 class DepartureBoard:
-    """The departures in view from each day, carrying room left between days."""
+    """The departures in view from each day, carrying room left between days.
+
+    The days in view are kept as one array per field, days ascending (``_sizes``
+    departures each from day ``_first``): each new day drops the day gone and
+    appends the day that comes into view, rather than joining a week of days anew.
+    """
+
+    _FIELDS = ("scheduled", "close", "leave", "places", "metres", "cancelled")
 
     def __init__(self, timetable: Timetable, rng: np.random.Generator) -> None:
         self.timetable = timetable
         self.rng = rng
-        self.days: dict[int, DayDepartures] = {}
+        self._first = 0  # first day in view
+        self._sizes: list[int] = []  # departures of each day in view
+        self._view = DayDepartures(*(np.zeros(0, dtype=bool if f == "cancelled" else float) for f in self._FIELDS))
 
     def change_timetable(self, timetable: Timetable) -> None:
         """Take a changed timetable from the next day that comes into view; days already in view keep theirs."""
         self.timetable = timetable
 
     def _day(self, day: int) -> DayDepartures:
-        if day not in self.days:
-            tt, w = self.timetable, day % 7
-            minute = day * MINUTES_PER_DAY + tt.minute[w]
-            k = minute.shape[0]
-            cancelled, late = np.zeros(k, dtype=bool), np.zeros(k)
-            if tt.random:  # three numbers per departure, drawn whether or not this one is late or cancelled
-                u_cancel, u_late = self.rng.random(k), self.rng.random(k)
-                unit = np.array([sample_duration(DISTS[tt.delay_dist[w][i]], tt.delay_mean[w][i], tt.delay_cv[w][i],
-                                                 tt.delay_spread[w][i], 1, self.rng)[0] for i in range(k)])
-                cancelled = u_cancel < tt.cancel[w]
-                late = np.where(u_late < tt.delay_chance[w], unit, 0.0)
-            self.days[day] = DayDepartures(
-                scheduled=minute, close=minute - tt.cutoff[w], leave=minute + late,
-                places=np.where(cancelled, 0.0, tt.capacity[w]), metres=np.where(cancelled, 0.0, tt.metres[w]),
-                cancelled=cancelled,
-            )
-        return self.days[day]
+        """A day's departures as they come into view (with their delays and cancellations drawn)."""
+        tt, w = self.timetable, day % 7
+        minute = day * MINUTES_PER_DAY + tt.minute[w]
+        k = minute.shape[0]
+        cancelled, late = np.zeros(k, dtype=bool), np.zeros(k)
+        if tt.random:  # three numbers per departure, drawn whether or not this one is late or cancelled
+            u_cancel, u_late = self.rng.random(k), self.rng.random(k)
+            unit = np.array([sample_duration(DISTS[tt.delay_dist[w][i]], tt.delay_mean[w][i], tt.delay_cv[w][i],
+                                             tt.delay_spread[w][i], 1, self.rng)[0] for i in range(k)])
+            cancelled = u_cancel < tt.cancel[w]
+            late = np.where(u_late < tt.delay_chance[w], unit, 0.0)
+        return DayDepartures(
+            scheduled=minute, close=minute - tt.cutoff[w], leave=minute + late,
+            places=np.where(cancelled, 0.0, tt.capacity[w]), metres=np.where(cancelled, 0.0, tt.metres[w]),
+            cancelled=cancelled,
+        )
+
+    def _in_view(self, day: int) -> DayDepartures:
+        """The departures of days ``day`` to ``day + HORIZON_DAYS - 1``, drawing the days that come into view."""
+        gone = 0
+        while self._sizes and self._first < day:
+            gone += self._sizes.pop(0)
+            self._first += 1
+        if not self._sizes:
+            self._first = day
+        new = [self._day(d) for d in range(self._first + len(self._sizes), day + HORIZON_DAYS)]
+        self._sizes += [d.close.shape[0] for d in new]
+        view = self._view
+        self._view = DayDepartures(
+            *(np.concatenate([getattr(view, f)[gone:], *(getattr(d, f) for d in new)]) for f in self._FIELDS)
+        )
+        return self._view
 
     def depart(self, day: int, arrival: np.ndarray, ready: np.ndarray, vehicle_class: np.ndarray) -> Departed:
         """Put the day's vehicles, ready for check-in at ``ready``, on departures; update the room left."""
-        if self.timetable.empty:
+        tt = self.timetable
+        if tt.empty:
             return Departed(leave=ready, missed=np.zeros(ready.shape[0], dtype=bool))
-        self.days.pop(day - 1, None)
-        window = [self._day(d) for d in range(day, day + HORIZON_DAYS)]
-        close = np.concatenate([d.close for d in window])
-        places = np.concatenate([d.places for d in window])
-        metres = np.concatenate([d.metres for d in window])
+        view = self._in_view(day)
         order = np.argsort(ready, kind="stable")
-        length = self.timetable.class_length[vehicle_class]
-        chosen = np.empty(ready.shape[0], dtype=np.int64)
-        chosen[order] = board_departures(ready[order], length[order], close, places, metres)
-        start = 0
-        for d in window:  # write back the room the day's vehicles used
-            end = start + d.close.shape[0]
-            d.places, d.metres = places[start:end], metres[start:end]
-            start = end
-        # the first departure whose check-in closes at or after the planned check-in (closes need not ascend)
-        booked = np.searchsorted(np.maximum.accumulate(close), arrival + self.timetable.planned, side="left")
-        stranded = chosen < 0
-        leave_at = np.concatenate([d.leave for d in window])
-        leave = np.where(stranded, np.nan, leave_at[np.where(stranded, 0, chosen)])
-        scheduled = np.concatenate([d.scheduled for d in window])
-        shortest = float(self.timetable.class_length.min()) if self.timetable.class_length.size else 0.0
+        leave, missed, *counted = depart_vehicles(
+            order, ready, arrival, vehicle_class, tt.class_length, tt.planned, view.close, view.places, view.metres,
+            view.leave,
+        )  # fmt: skip
+        shortest = float(tt.class_length.min()) if tt.class_length.size else 0.0
         counts = departure_counts(
-            scheduled, booked, chosen, places, metres, leave_at - scheduled,
-            np.concatenate([d.cancelled for d in window]), (places < 1.0) | (metres < max(shortest, 1e-9)),
+            view.scheduled, *counted, view.places, view.metres, view.leave - view.scheduled, view.cancelled,
+            (view.places < 1.0) | (view.metres < max(shortest, 1e-9)),
         )  # for the records; no draws
-        return Departed(leave=leave, missed=stranded | (chosen > booked), counts=counts)
+        return Departed(leave=leave, missed=missed, counts=counts)
+
+
+@numba.njit(cache=True)
+def depart_vehicles(order, ready, arrival, vehicle_class, class_length, planned, close, places, metres, leave_at):  # fmt: skip
+    """Board the day's vehicles in ``order`` (``ready`` ascending, ties in vehicle order) with
+    :func:`board_departures`, then settle them with :func:`settle_departures`, in one compiled call.
+
+    ``places`` and ``metres`` are updated in place. Returns :func:`settle_departures`'s results.
+    """
+    n = order.shape[0]
+    ready_sorted = np.empty(n)
+    length_sorted = np.empty(n)
+    for j in range(n):
+        ready_sorted[j] = ready[order[j]]
+        length_sorted[j] = class_length[vehicle_class[order[j]]]
+    chosen_sorted = board_departures(ready_sorted, length_sorted, close, places, metres)
+    chosen = np.empty(n, dtype=np.int64)
+    for j in range(n):
+        chosen[order[j]] = chosen_sorted[j]
+    return settle_departures(arrival, planned, close, chosen, leave_at)
 
 
 @numba.njit(cache=True)
@@ -208,3 +240,39 @@ def board_departures(
             metres[k] -= length[i]
             chosen[i] = k
     return chosen
+
+
+@numba.njit(cache=True)
+def settle_departures(arrival: np.ndarray, planned: float, close: np.ndarray, chosen: np.ndarray, leave_at: np.ndarray):  # fmt: skip
+    """Each vehicle's leave minute and whether it missed its booked departure, and per departure in view
+    the vehicles booked on it, that left on it and that missed it.
+
+    ``arrival`` ascends; ``close`` are the departures' check-in closes (they need not ascend: a vehicle is
+    booked on the first departure whose check-in closes at or after ``arrival + planned``, among the running
+    maximum of the closes); ``chosen`` is each vehicle's departure (-1: stranded) and ``leave_at`` each
+    departure's leaving minute. A booked index past the end means no departure in view. A vehicle missed
+    its booked departure when it left on a later one or not at all, as the daily missed-departure share counts it.
+    Returns leave (NaN when stranded), missed, and the booked, left and missed counts.
+    """
+    k, n = close.shape[0], arrival.shape[0]
+    latest = np.empty(k)
+    running = -np.inf
+    for j in range(k):
+        running = max(running, close[j])
+        latest[j] = running
+    booked = np.searchsorted(latest, arrival + planned)
+    leave = np.empty(n)
+    missed = np.empty(n, dtype=np.bool_)
+    booked_count = np.zeros(k, dtype=np.int64)
+    left_count = np.zeros(k, dtype=np.int64)
+    missed_count = np.zeros(k, dtype=np.int64)
+    for i in range(n):
+        stranded = chosen[i] < 0
+        leave[i] = np.nan if stranded else leave_at[chosen[i]]
+        missed[i] = stranded or chosen[i] > booked[i]
+        if not stranded:
+            left_count[chosen[i]] += 1
+        if booked[i] < k:
+            booked_count[booked[i]] += 1
+            missed_count[booked[i]] += missed[i]
+    return leave, missed, booked_count, left_count, missed_count

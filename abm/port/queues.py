@@ -28,9 +28,10 @@ day's late check cannot be used before that check ends, even by a vehicle
 that arrived before it: the one approximation left at the day boundary.
 
 :func:`station_pass` wraps the recursion in a station's whole pass over a day
-(arrival order, selection chances, detection, alarms, referral, counts); its
-typed front is :func:`abm.port.station.check_station`. It lives here, beside
-the recursion, because numba caches a compiled function by its own file only.
+(arrival order, selection chances, detection, alarms, referral, counts, the
+tally by hour of :func:`tally_pass`); its typed front is
+:func:`abm.port.station.check_station`. It lives here, beside the functions it
+calls, because numba caches a compiled function by its own file only.
 
 Compiled with numba: a plain-Python loop costs about as much as a generic
 event simulator, which would dominate a simulated year.
@@ -47,6 +48,7 @@ from .layout import RULES
 from .traffic import MINUTES_PER_DAY
 
 MINUTES_PER_HOUR = 60.0
+HOURS_PER_DAY = 24
 TARGETED, QUEUE_AWARE = RULES.index("targeted"), RULES.index("queue_aware")
 
 # Rows of the per-method counters a day accumulates (one column per method x cargo type).
@@ -300,6 +302,73 @@ def _next_carry(
 
 
 @numba.njit(cache=True)
+def _spread(begin: float, finish: float, first_hour: int, out: np.ndarray) -> None:
+    """Add the minutes of ``[begin, finish)`` to the hours they fall in (``out[k]`` is hour ``first_hour + k``)."""
+    t = begin
+    while t < finish:
+        hour = int(np.floor(t / MINUTES_PER_HOUR))
+        stop = min((hour + 1) * MINUTES_PER_HOUR, finish)
+        out[hour - first_hour] += stop - t
+        t = stop
+
+
+@numba.njit(cache=True)
+def tally_pass(arrival, start, end, checked, first_hour, min_hours):  # fmt: skip
+    """Per absolute hour from ``first_hour``: vehicles reaching the station, checks, minutes waited, lane-minutes
+    checking; and each checked vehicle's hour. Compiled: a plain loop over the vehicles and the hours each
+    interval spans, where numpy would need a dozen calls a station and day (see ``bench/engine.py``); :func:`station_pass` calls it for the records."""
+    last = first_hour + min_hours - 1
+    n_checked = 0
+    for i in range(arrival.shape[0]):
+        last = max(last, int(np.floor(arrival[i] / MINUTES_PER_HOUR)))
+        if checked[i]:
+            n_checked += 1
+            last = max(last, int(np.ceil(end[i] / MINUTES_PER_HOUR)) - 1)
+    n = last - first_hour + 1
+    vehicles = np.zeros(n, dtype=np.int64)
+    checks = np.zeros(n, dtype=np.int64)
+    waiting = np.zeros(n)
+    busy = np.zeros(n)
+    wait_hour = np.empty(n_checked, dtype=np.int64)
+    k = 0
+    for i in range(arrival.shape[0]):
+        hour = int(np.floor(arrival[i] / MINUTES_PER_HOUR))
+        vehicles[hour - first_hour] += 1
+        if checked[i]:
+            checks[hour - first_hour] += 1
+            wait_hour[k] = hour
+            k += 1
+            _spread(arrival[i], start[i], first_hour, waiting)
+            _spread(start[i], end[i], first_hour, busy)
+    return vehicles, checks, waiting, busy, wait_hour
+
+
+@numba.njit(cache=True)
+def arrival_order(arrival: np.ndarray) -> np.ndarray:
+    """``np.argsort(arrival, kind="stable")``: ties keep their order.
+
+    A station's arrivals come nearly sorted (vehicles leave the station before
+    it in their order, bar those held by a check), so an insertion sort moves
+    few entries and beats numpy's sort of the same array. Past a budget of
+    moves (arrivals far from sorted) it hands over to a merge sort.
+    """
+    n = arrival.shape[0]
+    order = np.arange(n)
+    budget = 16 * n
+    for i in range(1, n):
+        a = arrival[i]
+        j = i
+        while j > 0 and arrival[order[j - 1]] > a:
+            order[j] = order[j - 1]
+            j -= 1
+        order[j] = i
+        budget -= i - j
+        if budget < 0:
+            return np.argsort(arrival, kind="mergesort")
+    return order
+
+
+@numba.njit(cache=True)
 def station_pass(
     rows, arrival, vclass, cargo, aboard, depth, ready, referred, alarm_station, alarm_method, alarm_hit,
     service, busy_service, u_select, risk_noise, u_detect, u_false,
@@ -311,11 +380,13 @@ def station_pass(
     """A station's pass over the day's vehicles: the compiled body of :func:`abm.port.station.check_station`.
 
     Takes that function's arguments unpacked (its dataclasses' fields in
-    order, the carry as its two arrays), with ``rows`` and ``arrival`` sorted by
-    arrival, and returns :class:`abm.port.station.StationPass`'s fields in order
-    with the next day's carry (arrival, start).
+    order, the carry as its two arrays), and returns :class:`abm.port.station.StationPass`'s
+    fields in order (``rows`` and ``arrival`` sorted by arrival, ties in the order given), the pass's
+    tally by hour (:func:`tally_pass`) and the next day's carry (arrival, start).
     """
-    arrive = arrival
+    order = arrival_order(arrival)
+    rows = rows[order]
+    arrive = arrival[order]
     n = rows.shape[0]
     n_classes, n_methods, n_cargo = service_factor.shape[1], service_factor.shape[0], service_factor.shape[2]
     queue_aware = rule == QUEUE_AWARE and not secondary
@@ -401,4 +472,14 @@ def station_pass(
         cal_day = int(np.floor(arrive[i] / MINUTES_PER_DAY))
         clock_hour = int(np.floor(arrive[i] / 60.0)) % 24
         key[i] = (((cal_day * 24 + clock_hour) * n_stations + station) * n_classes + c) * n_methods + m
-    return (rows, arrive, start, end, checked, method, alarm, hit, logged_false, key), (next_arrival, next_start)
+    wait = np.empty(int(checked.sum()))
+    unservable = False
+    k = 0
+    for i in range(n):
+        if checked[i]:
+            wait[k] = start[i] - arrive[i]
+            unservable = unservable or np.isinf(start[i])
+            k += 1
+    tally = tally_pass(arrive, start, end, checked, int(origin // MINUTES_PER_HOUR), HOURS_PER_DAY)
+    fields = (rows, arrive, start, end, checked, method, alarm, hit, logged_false, key, wait, unservable)
+    return fields, tally, (next_arrival, next_start)

@@ -3,7 +3,7 @@
 The day engine hands a station the vehicles that reach it (and when); this
 module sorts them into arrival order, decides who is selected, runs the exact
 FIFO recursion of :mod:`abm.port.queues`, finds people, raises alarms, refers
-vehicles to the secondary search area, and counts what the records need. It
+vehicles to the secondary search area, and counts and tallies what the records need. It
 is one numba function (:func:`abm.port.queues.station_pass`, beside the
 recursion it calls, so numba's cache of the two goes stale together) because
 a station's pass is a few dozen array steps per vehicle: as separate numpy
@@ -91,11 +91,9 @@ class StationPass:
     hit: np.ndarray  # the check found people
     logged_false: np.ndarray  # the agency logs a false alarm here: nothing found after the alarm
     key: np.ndarray  # aggregation key of (calendar day, hour, station, class, method), see day.py
-
-    @property
-    def unservable(self) -> bool:
-        """Some selected vehicle can never be checked by a staffed lane."""
-        return bool(np.isinf(self.start).any())
+    wait: np.ndarray  # start - arrival of the checked vehicles, in arrival order
+    unservable: bool  # some selected vehicle can never be checked by a staffed lane
+    tally: tuple[np.ndarray, ...]  # by hour from the day's first: abm.port.queues.tally_pass's results
 
 
 def check_station(
@@ -125,11 +123,10 @@ def check_station(
     and ``vehicles`` are updated in place: found people leave ``aboard``, alarms
     refer vehicles on, every vehicle's ``ready`` becomes the end of its check.
     ``counters`` (len(METHOD_COUNTERS), methods x cargo types) accumulates the
-    per-method figures.
+    per-method figures. The pass comes back with its waits and its tally by hour for the records.
     """
-    order = np.argsort(arrival, kind="stable")  # ties keep vehicle order; numpy's sort beats numba's here
     out = station_pass(
-        rows[order], arrival[order], vehicles.vehicle_class, vehicles.cargo, vehicles.aboard, vehicles.depth,
+        rows, arrival, vehicles.vehicle_class, vehicles.cargo, vehicles.aboard, vehicles.depth,
         vehicles.ready, vehicles.referred, vehicles.alarm_station, vehicles.alarm_method, vehicles.alarm_hit,
         service, busy_service, u_select, risk_noise, u_detect, u_false,
         rules.station, rules.rule, rules.secondary, rules.stands_down, rules.threshold, rules.noise_sd,
@@ -139,5 +136,5 @@ def check_station(
         tables.fatigue_decay, tables.false_alarm, tables.cargo_false,
         staffed, origin, free, worked, carry.arrival, carry.start, counters, n_stations,
     )  # fmt: skip
-    fields, (carry.arrival, carry.start) = out
-    return StationPass(*fields)
+    fields, tally, (carry.arrival, carry.start) = out
+    return StationPass(*fields, tally=tally)

@@ -3,7 +3,9 @@
 Nothing here draws a random number or changes the day's state: the tallies
 are read off what the day engine has already computed (a station's
 :class:`~abm.port.station.StationPass`, the departure each vehicle was booked
-on and left on), so a run's other records stay byte-identical.
+on and left on), so a run's other records stay byte-identical. A station's
+vehicles are tallied by hour inside its compiled pass
+(:func:`abm.port.queues.tally_pass`), which has them at hand.
 
 Station hours are keyed by the absolute hour (``minute // 60`` counted from
 day 0), so a check that runs past midnight, or a vehicle of one day checked
@@ -27,10 +29,8 @@ from dataclasses import dataclass
 import numba
 import numpy as np
 
+from .queues import HOURS_PER_DAY, MINUTES_PER_HOUR
 from .station import StationPass
-
-MINUTES_PER_HOUR = 60.0
-HOURS_PER_DAY = 24
 
 
 @dataclass(frozen=True)
@@ -47,54 +47,10 @@ class StationHours:
     wait_hour: np.ndarray  # per checked vehicle, in the order of the day's waits: the absolute hour it arrived
 
 
-@numba.njit(cache=True)
-def _spread(begin: float, finish: float, first_hour: int, out: np.ndarray) -> None:
-    """Add the minutes of ``[begin, finish)`` to the hours they fall in (``out[k]`` is hour ``first_hour + k``)."""
-    t = begin
-    while t < finish:
-        hour = int(np.floor(t / MINUTES_PER_HOUR))
-        stop = min((hour + 1) * MINUTES_PER_HOUR, finish)
-        out[hour - first_hour] += stop - t
-        t = stop
-
-
-@numba.njit(cache=True)
-def tally_pass(arrival, start, end, checked, first_hour, min_hours):  # fmt: skip
-    """Per absolute hour from ``first_hour``: vehicles reaching the station, checks, minutes waited, lane-minutes
-    checking; and each checked vehicle's hour. Compiled: a plain loop over the vehicles and the hours each
-    interval spans, where numpy would need a dozen calls a station and day (see ``bench/engine.py``)."""
-    last = first_hour + min_hours - 1
-    n_checked = 0
-    for i in range(arrival.shape[0]):
-        last = max(last, int(np.floor(arrival[i] / MINUTES_PER_HOUR)))
-        if checked[i]:
-            n_checked += 1
-            last = max(last, int(np.ceil(end[i] / MINUTES_PER_HOUR)) - 1)
-    n = last - first_hour + 1
-    vehicles = np.zeros(n, dtype=np.int64)
-    checks = np.zeros(n, dtype=np.int64)
-    waiting = np.zeros(n)
-    busy = np.zeros(n)
-    wait_hour = np.empty(n_checked, dtype=np.int64)
-    k = 0
-    for i in range(arrival.shape[0]):
-        hour = int(np.floor(arrival[i] / MINUTES_PER_HOUR))
-        vehicles[hour - first_hour] += 1
-        if checked[i]:
-            checks[hour - first_hour] += 1
-            wait_hour[k] = hour
-            k += 1
-            _spread(arrival[i], start[i], first_hour, waiting)
-            _spread(start[i], end[i], first_hour, busy)
-    return vehicles, checks, waiting, busy, wait_hour
-
-
 def station_hours(station: int, done: StationPass, staffed: np.ndarray, day: int) -> StationHours:
     """Tally a station's pass of operating day ``day``; ``staffed`` is its lanes on duty per hour (24)."""
     first = day * HOURS_PER_DAY
-    vehicles, checks, waiting, busy, wait_hour = tally_pass(
-        done.arrival, done.start, done.end, done.checked, first, HOURS_PER_DAY
-    )
+    vehicles, checks, waiting, busy, wait_hour = done.tally  # the compiled pass tallied its own vehicles
     staffed_minutes = np.zeros(vehicles.shape[0])
     staffed_minutes[:HOURS_PER_DAY] = staffed * MINUTES_PER_HOUR
     return StationHours(
@@ -110,28 +66,58 @@ def station_hours(station: int, done: StationPass, staffed: np.ndarray, day: int
 
 
 def departure_counts(
-    minute: np.ndarray, booked: np.ndarray, chosen: np.ndarray, places: np.ndarray, metres: np.ndarray,
-    late: np.ndarray, cancelled: np.ndarray, full: np.ndarray,
+    minute: np.ndarray, booked: np.ndarray, left: np.ndarray, missed: np.ndarray, places: np.ndarray,
+    metres: np.ndarray, late: np.ndarray, cancelled: np.ndarray, full: np.ndarray,
 ) -> dict[str, np.ndarray]:
     """Per departure in view: the day's vehicles booked on it, that left on it, that missed it, and its state.
 
-    ``minute`` are the departures' timetabled absolute minutes, ``booked`` and ``chosen`` each vehicle's
-    index into them (``chosen`` -1: stranded; ``booked`` past the end: no departure in view), ``places`` and
-    ``metres`` the room still free after the day's vehicles boarded (inf where not counted), ``late`` the
-    minutes each leaves late, ``cancelled`` and ``full`` flags. A vehicle missed its booked departure when it
-    left on a later one or not at all, as the daily missed-departure share counts it.
+    ``minute`` are the departures' timetabled absolute minutes; ``booked``, ``left`` and ``missed`` the
+    counts of :func:`abm.port.departures.settle_departures`; ``places`` and ``metres`` the room still free
+    after the day's vehicles boarded (inf where not counted), ``late`` the minutes each leaves late,
+    ``cancelled`` and ``full`` flags.
     """
-    k = minute.shape[0]
-    in_window = booked < k
-    missed = (chosen < 0) | (chosen > booked)
     return {
         "minute": minute.copy(),
-        "booked": np.bincount(booked[in_window], minlength=k),
-        "left": np.bincount(chosen[chosen >= 0], minlength=k),
-        "missed": np.bincount(booked[in_window & missed], minlength=k),
+        "booked": booked,
+        "left": left,
+        "missed": missed,
         "places_left": np.where(np.isfinite(places), places, np.nan),
         "metres_left": np.where(np.isfinite(metres), metres, np.nan),
         "late_minutes": np.asarray(late, dtype=np.float64).copy(),
         "cancelled": np.asarray(cancelled, dtype=bool).copy(),
         "full": np.asarray(full, dtype=bool).copy(),
     }
+
+
+@numba.njit(cache=True)
+def count_checks(key: np.ndarray, checked: np.ndarray, alarm: np.ndarray, n_stations: int, n_classes: int, n_methods: int):  # fmt: skip
+    """Vehicles, checks and alarms per aggregation key (ascending, keys present only), with each key's parts.
+
+    ``key`` is ``((hour * n_stations + station) * n_classes + class) * n_methods + method`` per vehicle
+    and station pass, ``hour`` counted from day 0. Returns calendar day, hour of the day, station,
+    class, method, vehicles, checks, alarms. The keys of a day span a few thousand values: counting
+    over that span beats sorting them, and one compiled loop beats a bincount per column.
+    """
+    low = key.min() if key.size else 0
+    span = key.max() - low + 1 if key.size else 0
+    vehicles = np.zeros(span, dtype=np.int64)
+    checks = np.zeros(span, dtype=np.int64)
+    alarms = np.zeros(span, dtype=np.int64)
+    for i in range(key.shape[0]):
+        j = key[i] - low
+        vehicles[j] += 1
+        checks[j] += checked[i]
+        alarms[j] += alarm[i]
+    present = np.flatnonzero(vehicles)
+    k = present.shape[0]
+    out = np.empty((8, k), dtype=np.int64)
+    for j in range(k):
+        rest = present[j] + low
+        rest, out[4, j] = divmod(rest, n_methods)
+        rest, out[3, j] = divmod(rest, n_classes)
+        rest, out[2, j] = divmod(rest, n_stations)
+        out[0, j], out[1, j] = divmod(rest, 24)
+        out[5, j] = vehicles[present[j]]
+        out[6, j] = checks[present[j]]
+        out[7, j] = alarms[present[j]]
+    return out

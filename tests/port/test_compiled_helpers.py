@@ -6,19 +6,27 @@ gives, because records are compared byte for byte across runs and executors:
 - vehicle classes: NumPy's own ``Generator.choice(k, p=...)`` on the same
   stream is the reference (its algorithm: numpy/random/_generator.pyx, choice:
   normalised cumulative shares searched with ``side="right"``);
+- the daily time-in-port median and p95: NumPy's own ``percentile``;
+- a station's arrival order: NumPy's stable ``argsort``;
+- durations drawn with in-place arithmetic: the plain expressions, bit for bit;
+- a boarding pick drawn in compiled code: NumPy's ``Generator.integers`` on the same stream;
 - cargo, boarding candidates, lanes on duty: the definitions in their
   docstrings, written out in numpy or as a minute-by-minute scan.
 """
 
 from __future__ import annotations
 
+import numba
 import numpy as np
 import pytest
 
 from abm.agents.behaviour import logit_probabilities
-from abm.port.boarding import fitting_vehicles, stopping_of_class
-from abm.port.queues import MINUTES_PER_HOUR, duty_tables, earliest_fit
+from abm.port.boarding import fitting_vehicles, stopping_vehicles
+from abm.port.checks import sample_duration
+from abm.port.queues import MINUTES_PER_HOUR, arrival_order, duty_tables, earliest_fit
+from abm.port.tallies import count_checks
 from abm.port.traffic import _cargo_of, draw_classes
+from abm.records import median_and_p95
 
 
 @pytest.mark.parametrize("seed", range(20))
@@ -48,17 +56,22 @@ def test_boarding_candidates_are_the_vehicles_that_stop_fit_and_pass_in_the_band
     rng = np.random.default_rng(3)
     n = 3000
     stops, vclass = rng.random(n) < 0.6, rng.integers(0, 4, n)
-    at_point = np.sort(rng.random(n) * 1440.0) + 1440.0  # the second day of a run
-    room = rng.integers(0, 4, n)
+    rows = np.sort(rng.choice(n, size=2000, replace=False))  # the vehicles passing this point
+    next_arrival = np.sort(rng.random(rows.size) * 1440.0) + 1440.0  # the second day of a run
+    lead = 25.0
+    capacity = np.array([2, 3, 4, 5])
+    aboard = rng.integers(0, 3, n)
     band_of_hour = np.repeat([0, 1, 2, 0], 6)  # night, morning, afternoon, night again
+    band_now = band_of_hour[np.floor((next_arrival - lead) / 60.0).astype(np.int64) % 24]
+    room = capacity[vclass[rows]] - aboard[rows]
+    stopping = stopping_vehicles(rows, stops, vclass, next_arrival, lead, band_of_hour)
+    np.testing.assert_array_equal(stopping[0], np.flatnonzero(stops[rows]))
     for want_class in range(4):
-        candidates = stopping_of_class(stops, vclass, want_class)
-        np.testing.assert_array_equal(candidates, np.flatnonzero(stops & (vclass == want_class)))
         for band in range(3):
             for size in (1, 3):
-                band_now = band_of_hour[np.floor(at_point / 60.0).astype(np.int64) % 24]
-                expected = np.flatnonzero(stops & (vclass == want_class) & (band_now == band) & (room >= size))
-                np.testing.assert_array_equal(fitting_vehicles(candidates, at_point, room, band_of_hour, band, size), expected)
+                expected = np.flatnonzero(stops[rows] & (vclass[rows] == want_class) & (band_now == band) & (room >= size))
+                got = fitting_vehicles(*stopping, capacity, aboard, want_class, band, size)
+                np.testing.assert_array_equal(got, expected)
 
 
 def scan_earliest_fit(t: float, duration: float, lane: int, day_roster: np.ndarray, origin: float) -> float:
@@ -110,3 +123,70 @@ def test_logit_rows_are_the_single_chooser_probabilities() -> None:
     together = logit_probabilities(utility, 2.0, valid, 0.05)
     for row in range(9):
         np.testing.assert_array_equal(together[row], logit_probabilities(utility[row], 2.0, valid[row], 0.05))
+
+
+@pytest.mark.parametrize("seed", range(6))
+def test_daily_median_and_p95_are_numpys_percentiles(seed: int) -> None:
+    rng = np.random.default_rng(seed)
+    for n in (1, 2, 3, 19, 20, 21, 2999, 3000):
+        minutes = rng.lognormal(4.0, 1.0, n)
+        if seed % 2:
+            minutes = np.round(minutes)  # ties
+        assert median_and_p95(minutes) == tuple(np.percentile(minutes, [50, 95]).tolist())
+
+
+def test_check_counts_are_bincounts_of_the_keys() -> None:
+    rng = np.random.default_rng(5)
+    n_s, n_c, n_m = 4, 5, 6
+    hour, s, c, m = rng.integers(48, 80, 9000), rng.integers(0, n_s, 9000), rng.integers(0, n_c, 9000), rng.integers(0, n_m, 9000)
+    key = ((hour * n_s + s) * n_c + c) * n_m + m
+    checked, alarm = rng.random(9000) < 0.3, rng.random(9000) < 0.05
+    present, index = np.unique(key, return_inverse=True)
+    day, hour_of_day, station, vclass, method, vehicles, checks, alarms = count_checks(key, checked, alarm, n_s, n_c, n_m)
+    np.testing.assert_array_equal(((day * 24 + hour_of_day) * n_s + station) * n_c * n_m + vclass * n_m + method, present)
+    np.testing.assert_array_equal(vehicles, np.bincount(index))
+    np.testing.assert_array_equal(checks, np.bincount(index[checked], minlength=present.size))
+    np.testing.assert_array_equal(alarms, np.bincount(index[alarm], minlength=present.size))
+
+
+@pytest.mark.parametrize("seed", range(10))
+def test_arrival_order_is_numpys_stable_argsort(seed: int) -> None:
+    rng = np.random.default_rng(seed)
+    n = int(rng.integers(0, 3000))
+    arrival = np.sort(np.round(rng.random(n) * 1440.0))  # rounded: many ties
+    held = rng.random(n) < 0.2
+    arrival[held] += np.round(rng.exponential(20.0, int(held.sum())))  # nearly sorted, as after a station
+    # reversed and shuffled, they exceed the insertion sort's budget and take the merge sort
+    for case in (arrival, np.sort(arrival), arrival[::-1].copy(), rng.permutation(arrival)):
+        np.testing.assert_array_equal(arrival_order(case), np.argsort(case, kind="stable"))
+
+
+@numba.njit
+def _compiled_picks(rng: np.random.Generator, counts: np.ndarray) -> np.ndarray:
+    picks = np.empty(counts.shape[0], dtype=np.int64)
+    for i in range(counts.shape[0]):
+        picks[i] = rng.integers(0, counts[i])
+    return picks
+
+
+def test_compiled_boarding_picks_are_numpys_integers_on_the_same_stream() -> None:
+    counts = np.random.default_rng(0).integers(1, 5000, 2000)  # a count of 1 draws nothing in either
+    python, compiled = np.random.default_rng(11), np.random.default_rng(11)
+    expected = [python.integers(k) for k in counts]
+    np.testing.assert_array_equal(_compiled_picks(compiled, counts), expected)
+    assert compiled.random() == python.random()  # and the stream goes on where NumPy's does
+
+
+@pytest.mark.parametrize("dist", ["exponential", "lognormal", "uniform"])
+def test_durations_computed_in_place_are_the_plain_expressions(dist: str) -> None:
+    for mean, cv, spread in [(3.0, 0.2, 0.5), (np.float64(47.3), 1.3, 0.9), (0.1, 0.01, 0.0)]:
+        got = sample_duration(dist, mean, cv, spread, 5000, np.random.default_rng(3))
+        rng = np.random.default_rng(3)
+        if dist == "exponential":
+            expected = mean * rng.standard_exponential(5000)
+        elif dist == "lognormal":
+            sigma2 = np.log1p(cv * cv)
+            expected = np.exp(np.log(mean) - sigma2 / 2 + np.sqrt(sigma2) * rng.standard_normal(5000))
+        else:
+            expected = mean * (1.0 + spread * (2.0 * rng.random(5000) - 1.0))
+        assert got.tobytes() == expected.tobytes()

@@ -24,7 +24,7 @@ import pytest
 from scipy import stats
 
 from abm.experiment.single import run_to_directory, simulate
-from abm.port.tallies import tally_pass
+from abm.port.queues import tally_pass
 from abm.records import DEPARTURES_FILE, QUEUE_HOURS_FILE, QUEUES_FILE, RecordBook
 from abm.world import load_world
 

@@ -14,8 +14,8 @@ table with the same function (:func:`abm.calibration.abc.rejection.rejection_fro
 exactly as a fresh calibration with the same seed would. Truths are simulated
 with seeds of their own, never in the reference table.
 
-    .venv/bin/python bench/coverage.py                      # 50 truths per behaviour, both worlds
-    .venv/bin/python bench/coverage.py --truths 20 --worlds small
+    .venv/bin/python bench/calibration_coverage.py  # 50 truths per behaviour, both worlds
+    .venv/bin/python bench/calibration_coverage.py --truths 20 --worlds small
 
 Targets (issue 16): crossings covered in at least 85% of truths for static and
 adaptive behaviour on both worlds; on Kestrel Quay a median interval width of

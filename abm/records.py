@@ -84,6 +84,37 @@ def _calendar(minute: np.ndarray) -> tuple[np.ndarray, np.ndarray]:
     return day.astype(np.int64), minute - day * MINUTES_PER_DAY
 
 
+def _daily_row(result: DayResult, persons: np.ndarray, staff_hours: float, in_system: int) -> dict[str, Any]:
+    """A day's KPIs: observed counts, time at the crossing, and the truth columns."""
+    outcome = result.attempts.outcome
+    fa = result.false_alarms
+    tip = result.time_in_port[np.isfinite(result.time_in_port)]
+    p50, p95 = median_and_p95(tip) if tip.size else (float("nan"), float("nan"))
+
+    def persons_with(name: str) -> int:
+        return int(persons[outcome == OUTCOME_CODES[name]].sum())
+
+    checks = result.check_rows
+    return {
+        "day": result.day,
+        "vehicles": result.traffic.size,
+        "checks": int(checks["checks"].sum()),
+        "alarms": int(checks["alarms"].sum()),
+        "detections": persons_with("detected"),
+        "interdictions": persons_with("interdicted"),
+        "false_alarms": int(fa["minute"].shape[0]),
+        "time_in_port_p50_min": p50,
+        "time_in_port_p95_min": p95,
+        # the mean of a bool array, as np.mean gives it (an exact count over the size), without its overhead
+        "missed_departure_share": np.count_nonzero(result.missed) / result.missed.size if result.missed.size else 0.0,
+        "staff_hours": staff_hours,
+        "truth_attempts": int(persons.sum()),
+        "truth_crossings": persons_with("crossed"),
+        "truth_no_vehicle": persons_with("no_vehicle"),
+        "truth_in_system": in_system,
+    }
+
+
 @dataclass
 class RecordBook:
     """Accumulates a run's records day by day; builds the tables at the end."""
@@ -127,11 +158,8 @@ class RecordBook:
         in_system: int,
     ) -> None:
         """Record one day: attempts (truth), encounters and checks (observed), daily KPIs."""
-        world = self.layout.world
         res = result.attempts
         outcome = res.outcome  # codes (OUTCOME_NAMES); compared as codes, named once at the end
-        station_names = np.array(world.station_names + [""], dtype=object)
-        method_names = np.array(world.method_names + [""], dtype=object)
         ids = np.arange(self._next_attempt, self._next_attempt + outcome.shape[0])
         self._next_attempt += outcome.shape[0]
         # Codes only: the tables are built once at the end, which costs far less than a frame a day.
@@ -151,6 +179,30 @@ class RecordBook:
                 "minute": res.minute - result.day * MINUTES_PER_DAY,
             }
         )
+        self._add_encounters(result, ids, refs, attempts_point)
+        self._checks.append(result.check_rows)
+        self._false_alarms.append(result.false_alarms)
+        self._methods.append((result.day, result.weather, result.method_rows))
+        self._time_in_port.append(result.time_in_port.astype(np.float32))
+        self._missed.append(result.missed)
+        for s, w in result.queue_wait.items():
+            self._waits.setdefault(s, []).append(w.astype(np.float32))
+        for tally in result.station_hours:
+            self._station_hours.append(tally)
+            self._wait_hours.setdefault(tally.station, []).append(tally.wait_hour.astype(np.int32))
+        if result.departures is not None:
+            self._departures.append(result.departures)
+        self._daily.append(_daily_row(result, persons, staff_hours, in_system))
+
+    def _add_encounters(
+        self, result: DayResult, ids: np.ndarray, refs: list[list[str | None] | None], attempts_point: np.ndarray
+    ) -> None:
+        """One encounter row per person met (detected or interdicted) in the day's attempts (observed)."""
+        world = self.layout.world
+        res = result.attempts
+        outcome = res.outcome
+        station_names = np.array(world.station_names + [""], dtype=object)
+        method_names = np.array(world.method_names + [""], dtype=object)
         met = np.flatnonzero((outcome == DETECTED) | (outcome == INTERDICTED))
         met_day, met_minute = _calendar(res.minute[met])
         for a, day, minute in zip(met.tolist(), met_day.tolist(), met_minute.tolist(), strict=True):
@@ -170,46 +222,6 @@ class RecordBook:
                         "referred_by": station_names[res.referred_by[a]] if detected else "",
                     }
                 )
-        self._checks.append(result.check_rows)
-        fa = result.false_alarms
-        self._false_alarms.append(fa)
-        self._methods.append((result.day, result.weather, result.method_rows))
-        self._time_in_port.append(result.time_in_port.astype(np.float32))
-        self._missed.append(result.missed)
-        for s, w in result.queue_wait.items():
-            self._waits.setdefault(s, []).append(w.astype(np.float32))
-        for tally in result.station_hours:
-            self._station_hours.append(tally)
-            self._wait_hours.setdefault(tally.station, []).append(tally.wait_hour.astype(np.int32))
-        if result.departures is not None:
-            self._departures.append(result.departures)
-        tip = result.time_in_port[np.isfinite(result.time_in_port)]
-        p50, p95 = median_and_p95(tip) if tip.size else (float("nan"), float("nan"))
-
-        def persons_with(name: str) -> int:
-            return int(persons[outcome == OUTCOME_CODES[name]].sum())
-
-        checks = result.check_rows
-        self._daily.append(
-            {
-                "day": result.day,
-                "vehicles": result.traffic.size,
-                "checks": int(checks["checks"].sum()),
-                "alarms": int(checks["alarms"].sum()),
-                "detections": persons_with("detected"),
-                "interdictions": persons_with("interdicted"),
-                "false_alarms": int(fa["minute"].shape[0]),
-                "time_in_port_p50_min": p50,
-                "time_in_port_p95_min": p95,
-                # the mean of a bool array, as np.mean gives it (an exact count over the size), without its overhead
-                "missed_departure_share": np.count_nonzero(result.missed) / result.missed.size if result.missed.size else 0.0,
-                "staff_hours": staff_hours,
-                "truth_attempts": int(persons.sum()),
-                "truth_crossings": persons_with("crossed"),
-                "truth_no_vehicle": persons_with("no_vehicle"),
-                "truth_in_system": in_system,
-            }
-        )
 
     # -- tables ----------------------------------------------------------------------
     def truth_tables(self) -> dict[str, pd.DataFrame]:

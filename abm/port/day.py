@@ -134,6 +134,34 @@ class DayResult:
     departures: dict[str, np.ndarray] | None = None  # per departure in the window: booked, left, missed
 
 
+def _pending_results(n: int) -> AttemptResult:
+    """The day's attempts before anything happened to them."""
+    return AttemptResult(
+        outcome=np.full(n, PENDING, dtype=np.int64),
+        station=np.full(n, -1, dtype=np.int64),
+        method=np.full(n, -1, dtype=np.int64),
+        minute=np.full(n, np.nan),
+        vehicle=np.full(n, -1, dtype=np.int64),
+        referred_by=np.full(n, -1, dtype=np.int64),
+    )
+
+
+def _arrived_vehicles(traffic: DayTraffic) -> VehicleState:
+    """The day's vehicles as they arrive: nobody aboard, nothing referred or alarmed yet."""
+    n = traffic.size
+    return VehicleState(
+        vehicle_class=traffic.vehicle_class,
+        cargo=traffic.cargo,
+        aboard=np.zeros(n, dtype=np.int64),
+        depth=np.zeros(n, dtype=np.int64),
+        ready=traffic.arrival.copy(),
+        referred=np.full(n, -1, dtype=np.int64),
+        alarm_station=np.full(n, -1, dtype=np.int64),
+        alarm_method=np.full(n, -1, dtype=np.int64),
+        alarm_hit=np.zeros(n, dtype=bool),
+    )
+
+
 class DayEngine:
     """Runs operating days one after another, keeping lanes and departures' room between days."""
 
@@ -250,7 +278,6 @@ class DayEngine:
             raise ValueError(f"an attempt's depth index exceeds the world's {len(lay.depth_names)} depth level(s)")
         traffic = generate_traffic(lay, day, self.traffic_rng, self.stop_rng, self.cargo_rng)
         n, origin = traffic.size, day * MINUTES_PER_DAY
-        cls, cargo = traffic.vehicle_class, traffic.cargo
         weather = self._weather(day)
         suspended = lay.method_outdoor & lay.weather_suspends[weather]
         draws = [
@@ -258,30 +285,12 @@ class DayEngine:
             for s, (rng, crng) in enumerate(zip(self.station_rngs, self.condition_rngs, strict=True))
         ]
 
-        a_n = len(attempts)
-        result = AttemptResult(
-            outcome=np.full(a_n, PENDING, dtype=np.int64),
-            station=np.full(a_n, -1, dtype=np.int64),
-            method=np.full(a_n, -1, dtype=np.int64),
-            minute=np.full(a_n, np.nan),
-            vehicle=np.full(a_n, -1, dtype=np.int64),
-            referred_by=np.full(a_n, -1, dtype=np.int64),
-        )
+        result = _pending_results(len(attempts))
         self._interdict(day, attempts, staffing, result)
         # the positions before which some attempt is still pending: only there is anyone to board
         boarding_at = set(lay.point_station[attempts.point[result.outcome == PENDING]].tolist())
 
-        vehicles = VehicleState(
-            vehicle_class=cls,
-            cargo=cargo,
-            aboard=np.zeros(n, dtype=np.int64),
-            depth=np.zeros(n, dtype=np.int64),
-            ready=traffic.arrival.copy(),
-            referred=np.full(n, -1, dtype=np.int64),
-            alarm_station=np.full(n, -1, dtype=np.int64),
-            alarm_method=np.full(n, -1, dtype=np.int64),
-            alarm_hit=np.zeros(n, dtype=bool),
-        )
+        vehicles = _arrived_vehicles(traffic)
         tables = self._tables_for(weather)
         counters = np.zeros((len(METHOD_COUNTERS), lay.method_dist.shape[0] * len(lay.cargo_names)))
         passes: list[StationPass] = []
@@ -312,17 +321,7 @@ class DayEngine:
             if done.unservable:
                 name = lay.world.stations[s].name
                 raise StationUnservable(f"station '{name}' selected a vehicle on day {day} that no staffed lane can check")
-            if done.hit.any():
-                found = done.rows[done.hit]
-                referred_by = vehicles.alarm_station[found] if secondary else np.full(found.shape[0], -1)
-                self._found(result, found, s, done.method[done.hit], done.end[done.hit], referred_by)
-            if done.logged_false.any():
-                empty, rows_empty = done.logged_false, done.rows[done.logged_false]
-                if secondary:
-                    station_of, method_of = vehicles.alarm_station[rows_empty], vehicles.alarm_method[rows_empty]
-                else:
-                    station_of, method_of = np.full(rows_empty.shape[0], s), done.method[empty]
-                false_parts.append((done.end[empty], station_of, method_of, cls[rows_empty], cargo[rows_empty]))
+            self._take_findings(result, done, s, secondary, vehicles, false_parts)
             passes.append(done)
             waits[s] = done.wait
             hours.append(station_hours(s, done, staffed, day))  # tallies only: no draws
@@ -348,6 +347,25 @@ class DayEngine:
             station_hours=hours,
             departures=departed.counts,
         )
+
+    def _take_findings(
+        self, result: AttemptResult, done: StationPass, s: int, secondary: bool, vehicles: VehicleState,
+        false_parts: list[tuple[np.ndarray, ...]],
+    ) -> None:
+        """Record the people a station's pass found, and its false alarms (at a secondary station, credited to the
+        station and method whose alarm referred the vehicle)."""
+        if done.hit.any():
+            found = done.rows[done.hit]
+            referred_by = vehicles.alarm_station[found] if secondary else np.full(found.shape[0], -1)
+            self._found(result, found, s, done.method[done.hit], done.end[done.hit], referred_by)
+        if done.logged_false.any():
+            empty, rows_empty = done.logged_false, done.rows[done.logged_false]
+            if secondary:
+                station_of, method_of = vehicles.alarm_station[rows_empty], vehicles.alarm_method[rows_empty]
+            else:
+                station_of, method_of = np.full(rows_empty.shape[0], s), done.method[empty]
+            false_parts.append((done.end[empty], station_of, method_of, vehicles.vehicle_class[rows_empty],
+                                vehicles.cargo[rows_empty]))
 
     def _interdict(self, day: int, attempts: Attempts, staffing: Staffing, result: AttemptResult) -> None:
         """Attempts stopped at the boarding point by fences or patrols, at a random minute of their band."""

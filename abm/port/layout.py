@@ -123,6 +123,44 @@ def _cargo_tables(world: World, cargo: list[str]) -> np.ndarray:
     return cum
 
 
+def _selection_tables(world: World, band_of_hour: np.ndarray) -> tuple[np.ndarray, np.ndarray]:
+    """Each station's selection share by hour and class, normally and when its queue is long: (stations, 24, classes)."""
+    classes, bands = world.class_names, world.band_names
+    n_s, n_c = len(world.stations), len(classes)
+    fraction = np.zeros((n_s, 24, n_c))
+    busy = np.zeros((n_s, 24, n_c))
+    for s, station in enumerate(world.stations):
+        sel = station.selection
+        factor = np.array([sel.class_factor.get(c, 1.0) for c in classes])
+        by_hour = np.array([sel.fraction_by_band.get(bands[band_of_hour[h]], sel.fraction) for h in range(24)])
+        if sel.rule == "all":
+            fraction[s] = 1.0
+            busy[s] = 1.0
+        else:
+            fraction[s] = np.clip(by_hour[:, None] * factor[None, :], 0.0, 1.0)
+            busy[s] = np.clip(sel.busy_fraction * factor[None, :].repeat(24, 0), 0.0, 1.0)
+    return fraction, busy
+
+
+def _method_cargo_tables(world: World, cargo: list[str]) -> tuple[np.ndarray, np.ndarray, np.ndarray]:
+    """Per method and cargo: detection and false-alarm factors; per method, class and cargo: the service factor."""
+    methods, classes = world.methods, world.class_names
+    n_m = len(methods)
+    cargo_detect = np.ones((n_m, len(cargo)))
+    cargo_false = np.ones((n_m, len(cargo)))
+    service_factor = np.ones((n_m, len(classes), len(cargo)))
+    for i, m in enumerate(methods):
+        for k, name in enumerate(cargo):
+            if name in m.cargo:
+                cargo_detect[i, k] = m.cargo[name].detection_factor
+                cargo_false[i, k] = m.cargo[name].false_alarm_factor
+        by_class = _per_class(m.service.class_factor, classes, 1.0)
+        cargo_default = m.service.cargo_factor.get(DEFAULT_KEY, 1.0)
+        by_cargo = np.array([m.service.cargo_factor.get(k, cargo_default) for k in cargo])
+        service_factor[i] = by_class[:, None] * by_cargo[None, :]
+    return cargo_detect, cargo_false, service_factor
+
+
 def build_layout(world: World) -> Layout:
     """Compile a validated world into index arrays."""
     classes, bands = world.class_names, world.band_names
@@ -138,19 +176,7 @@ def build_layout(world: World) -> Layout:
     m_index = {m.name: i for i, m in enumerate(methods)}
     s_index = {s.name: i for i, s in enumerate(world.stations)}
 
-    n_s = len(world.stations)
-    fraction = np.zeros((n_s, 24, n_c))
-    busy = np.zeros((n_s, 24, n_c))
-    for s, station in enumerate(world.stations):
-        sel = station.selection
-        factor = np.array([sel.class_factor.get(c, 1.0) for c in classes])
-        by_hour = np.array([sel.fraction_by_band.get(bands[band_of_hour[h]], sel.fraction) for h in range(24)])
-        if sel.rule == "all":
-            fraction[s] = 1.0
-            busy[s] = 1.0
-        else:
-            fraction[s] = np.clip(by_hour[:, None] * factor[None, :], 0.0, 1.0)
-            busy[s] = np.clip(sel.busy_fraction * factor[None, :].repeat(24, 0), 0.0, 1.0)
+    fraction, busy = _selection_tables(world, band_of_hour)
 
     points = world.boarding_points
     interdiction = np.array([[p.interdiction.get(b, p.interdiction.get(DEFAULT_KEY, 0.0)) for b in bands] for p in points])
@@ -164,18 +190,7 @@ def build_layout(world: World) -> Layout:
     false_weather = np.array(
         [[m.weather[w].false_alarm if w in m.weather else m.false_alarm for w in weather_names] for m in methods]
     )
-    cargo_detect = np.ones((n_m, len(cargo)))
-    cargo_false = np.ones((n_m, len(cargo)))
-    service_factor = np.ones((n_m, n_c, len(cargo)))
-    for i, m in enumerate(methods):
-        for k, name in enumerate(cargo):
-            if name in m.cargo:
-                cargo_detect[i, k] = m.cargo[name].detection_factor
-                cargo_false[i, k] = m.cargo[name].false_alarm_factor
-        by_class = _per_class(m.service.class_factor, classes, 1.0)
-        cargo_default = m.service.cargo_factor.get(DEFAULT_KEY, 1.0)
-        by_cargo = np.array([m.service.cargo_factor.get(k, cargo_default) for k in cargo])
-        service_factor[i] = by_class[:, None] * by_cargo[None, :]
+    cargo_detect, cargo_false, service_factor = _method_cargo_tables(world, cargo)
     fatigue = [
         (m.fatigue.decay_minutes, m.fatigue.work_minutes, m.fatigue.rest_minutes) if m.fatigue else (np.inf,) * 3
         for m in methods

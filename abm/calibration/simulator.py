@@ -94,10 +94,10 @@ class CandidateFigures:
 
 
 def candidate_summaries(spec: SummarySpec, table: Callable[[str], pd.DataFrame], warmup: int) -> list[float]:
-    """A candidate's summaries from the observed tables ``table(name)`` gives (in memory, or from its run
-    directory), computed as for the observed records calibrated to."""
+    """A candidate's summaries from the observed tables ``table(name)`` gives, in the schema's dtypes (in memory,
+    or read back and conformed from its run directory), computed as for the observed records calibrated to."""
     names = ("encounters", "checks") if spec.needs_checks() else ("encounters",)
-    return [float(v) for v in spec.compute({name: conform(name, table(name)) for name in names}, warmup)]
+    return [float(v) for v in spec.compute({name: table(name) for name in names}, warmup)]
 
 
 def latent_of(summary: Mapping[str, Any]) -> list[float]:
@@ -213,7 +213,7 @@ class ModelSimulator:
         """A kept candidate run's figures, read from its run directory."""
         summary = json.loads((run_dir / SUMMARY_FILE).read_text(encoding="utf-8"))
         return {"summaries": candidate_summaries(self.figures.spec,
-                                                 lambda name: pd.read_parquet(run_dir / OBSERVED_DIR / f"{name}.parquet"),
+                                                 lambda name: conform(name, pd.read_parquet(run_dir / OBSERVED_DIR / f"{name}.parquet")),
                                                  self.figures.warmup),
                 "latent": latent_of(summary)}
 

@@ -21,6 +21,7 @@ import json
 import math
 from dataclasses import dataclass, field
 from pathlib import Path
+from collections.abc import Sequence
 from typing import Any
 
 import numpy as np
@@ -244,10 +245,15 @@ class RecordBook:
         }
         return {name: frame.astype(TRUTH_COLUMNS[name]) for name, frame in frames.items()}
 
-    def observed_tables(self) -> dict[str, pd.DataFrame]:
-        """The observed record set (what an agency holds)."""
+    def observed_tables(self, names: Sequence[str] = tuple(OBSERVED_COLUMNS)) -> dict[str, pd.DataFrame]:
+        """The observed record set (what an agency holds), or only the tables ``names`` asks for."""
+        build = {"stations": self._stations_table, "checks": self._checks_table, "encounters": self._encounters_table,
+                 "false_alarms": self._false_alarms_table}
+        return {name: conform(name, build[name]()) for name in names}
+
+    def _stations_table(self) -> pd.DataFrame:
         world = self.layout.world
-        stations = pd.DataFrame(
+        return pd.DataFrame(
             {
                 "station": world.station_names,
                 "position": np.arange(len(world.stations)),
@@ -255,37 +261,38 @@ class RecordBook:
                 "method": [s.method for s in world.stations],
             }
         )
+
+    def _checks_table(self) -> pd.DataFrame:
+        world = self.layout.world
         keys = ["day", "hour", "station", "vehicle_class", "method"]
         raw = {k: np.concatenate([c[k] for c in self._checks]) for k in self._checks[0]} if self._checks else None
-        if raw is not None and raw["day"].size:
-            checks = pd.DataFrame(raw).groupby(keys, as_index=False, sort=True)[["vehicles", "checks", "alarms"]].sum()
-            checks["station"] = np.array(world.station_names, dtype=object)[checks["station"]]
-            checks["vehicle_class"] = np.array(world.class_names, dtype=object)[checks["vehicle_class"]]
-            checks["method"] = np.array(world.method_names, dtype=object)[checks["method"]]
-        else:
-            checks = pd.DataFrame(columns=list(OBSERVED_COLUMNS["checks"]))
-        encounters = pd.DataFrame(self._encounters, columns=list(OBSERVED_COLUMNS["encounters"]))
-        if self._false_alarms:
-            raw_fa = {k: np.concatenate([day[k] for day in self._false_alarms]) for k in self._false_alarms[0]}
-            fa_day, fa_minute = _calendar(raw_fa["minute"])
-            false_alarms = pd.DataFrame(
-                {
-                    "day": fa_day,
-                    "minute": fa_minute,
-                    "station": np.array(world.station_names, dtype=object)[raw_fa["station"]],
-                    "method": np.array(world.method_names, dtype=object)[raw_fa["method"]],
-                    "vehicle_class": np.array(world.class_names, dtype=object)[raw_fa["vehicle_class"]],
-                }
-            )
-        else:
-            false_alarms = pd.DataFrame(columns=list(OBSERVED_COLUMNS["false_alarms"]))
-        false_alarms = false_alarms.sort_values(["day", "minute"], kind="stable", ignore_index=True)
-        return {
-            "stations": conform("stations", stations),
-            "checks": conform("checks", checks),
-            "encounters": conform("encounters", encounters),
-            "false_alarms": conform("false_alarms", false_alarms),
-        }
+        if raw is None or not raw["day"].size:
+            return pd.DataFrame(columns=list(OBSERVED_COLUMNS["checks"]))
+        checks = pd.DataFrame(raw).groupby(keys, as_index=False, sort=True)[["vehicles", "checks", "alarms"]].sum()
+        checks["station"] = np.array(world.station_names, dtype=object)[checks["station"]]
+        checks["vehicle_class"] = np.array(world.class_names, dtype=object)[checks["vehicle_class"]]
+        checks["method"] = np.array(world.method_names, dtype=object)[checks["method"]]
+        return checks
+
+    def _encounters_table(self) -> pd.DataFrame:
+        return pd.DataFrame(self._encounters, columns=list(OBSERVED_COLUMNS["encounters"]))
+
+    def _false_alarms_table(self) -> pd.DataFrame:
+        world = self.layout.world
+        if not self._false_alarms:
+            return pd.DataFrame(columns=list(OBSERVED_COLUMNS["false_alarms"]))
+        raw_fa = {k: np.concatenate([day[k] for day in self._false_alarms]) for k in self._false_alarms[0]}
+        fa_day, fa_minute = _calendar(raw_fa["minute"])
+        false_alarms = pd.DataFrame(
+            {
+                "day": fa_day,
+                "minute": fa_minute,
+                "station": np.array(world.station_names, dtype=object)[raw_fa["station"]],
+                "method": np.array(world.method_names, dtype=object)[raw_fa["method"]],
+                "vehicle_class": np.array(world.class_names, dtype=object)[raw_fa["vehicle_class"]],
+            }
+        )
+        return false_alarms.sort_values(["day", "minute"], kind="stable", ignore_index=True)
 
     def daily_table(self) -> pd.DataFrame:
         """Daily KPIs; ``truth_`` columns come from simulated truth."""

@@ -88,16 +88,20 @@ class CandidateFigures:
     warmup: int
 
     def __call__(self, records: RecordBook, summary: Mapping[str, Any]) -> dict[str, list[float]]:
-        observed = records.observed_tables()
+        observed = records.observed_tables(tables_read(self.spec))  # only what the summaries read
         return {"summaries": candidate_summaries(self.spec, observed.__getitem__, self.warmup),
                 "latent": latent_of(summary)}
+
+
+def tables_read(spec: SummarySpec) -> tuple[str, ...]:
+    """The observed tables a candidate's summaries are computed from."""
+    return ("encounters", "checks") if spec.needs_checks() else ("encounters",)
 
 
 def candidate_summaries(spec: SummarySpec, table: Callable[[str], pd.DataFrame], warmup: int) -> list[float]:
     """A candidate's summaries from the observed tables ``table(name)`` gives, in the schema's dtypes (in memory,
     or read back and conformed from its run directory), computed as for the observed records calibrated to."""
-    names = ("encounters", "checks") if spec.needs_checks() else ("encounters",)
-    return [float(v) for v in spec.compute({name: table(name) for name in names}, warmup)]
+    return [float(v) for v in spec.compute({name: table(name) for name in tables_read(spec)}, warmup)]
 
 
 def latent_of(summary: Mapping[str, Any]) -> list[float]:
